@@ -1,0 +1,61 @@
+"""envsample: check HDR environment maps, build their importance-sampling tables, prove them with MIS.
+
+The public surface is declared here; names are imported lazily from the module
+that holds them, so ``import envsample`` is cheap and the CLI starts fast.
+
+Conventions (see :mod:`envsample.sphere`): radians inside, degrees only at the
+boundary; solid angles in steradians; pdfs per steradian; images float32
+``(H, W, 3)`` linear RGB with row 0 at the zenith; directions float64 ``(N, 3)``.
+"""
+
+from __future__ import annotations
+
+import importlib
+
+__version__ = "0.1.0"
+
+_EXPORTS = {
+    # errors
+    "EnvsampleError": "errors",
+    "MapReadError": "errors",
+    "MapValidationError": "errors",
+    "TableFormatError": "errors",
+    "EnvsampleWarning": "errors",
+    # constants
+    "luminance_weights": "constants",
+    # io
+    "MapImage": "io",
+    "read_map": "io",
+    "write_map": "io",
+    # sphere
+    "uv_to_direction": "sphere",
+    "direction_to_uv": "sphere",
+    "pixel_solid_angles": "sphere",
+    "row_solid_angles": "sphere",
+    "pixel_center_directions": "sphere",
+    # distribution
+    "build_alias": "distribution",
+    # table
+    "EnvTable": "table",
+    "Samples": "table",
+    "build_table": "table",
+    "load_table": "table",
+    # skies
+    "make_sky": "skies",
+    "sky_kinds": "skies",
+}
+
+__all__ = sorted(_EXPORTS) + ["__version__"]
+
+
+def __getattr__(name: str):
+    module = _EXPORTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'envsample' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"envsample.{module}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return __all__

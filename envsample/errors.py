@@ -1,0 +1,36 @@
+"""Exceptions and warnings raised by envsample.
+
+Every message is one line that names the file (or parameter), the problem and,
+where there is one, the remedy.  The CLI prints ``str(error)`` and exits with
+status 2; tracebacks appear only with ``--debug``.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "EnvsampleError",
+    "MapReadError",
+    "MapValidationError",
+    "TableFormatError",
+    "EnvsampleWarning",
+]
+
+
+class EnvsampleError(Exception):
+    """Base class of every error envsample raises on purpose."""
+
+
+class MapReadError(EnvsampleError):
+    """A map file could not be read: missing, empty, truncated, corrupt or of an unknown type."""
+
+
+class MapValidationError(EnvsampleError):
+    """A map was read but its pixels or shape are not acceptable (NaN/Inf, aspect, size, LDR)."""
+
+
+class TableFormatError(EnvsampleError):
+    """A sampling table on disk is corrupt, truncated, of another schema version or inconsistent."""
+
+
+class EnvsampleWarning(UserWarning):
+    """Suspicious but legal input (an all-black map, clamped negative pixels, a map that looks upside down)."""

@@ -1,0 +1,222 @@
+"""The direction convention of envsample, exact pixel solid angles and shading frames.
+
+Convention (one for the whole package, stored in every table)
+-------------------------------------------------------------
+An equirectangular ("lat-long") map of H rows and W columns covers the sphere.
+
+* ``v`` in [0, 1] runs from the **top** of the image (v = 0, row 0) to the bottom
+  (v = 1).  The polar angle from the up axis is ``theta = pi * v`` (radians):
+  row 0 touches the zenith, the last row the nadir.
+* ``u`` in [0, 1) runs from the left edge to the right edge.  The azimuth is
+  ``phi = 2*pi*(u - 0.5) + rotation`` (radians).
+* Directions are unit vectors in a right-handed frame (forward ``f``, right ``r``,
+  up ``a``) with ``r = f x a``::
+
+      d = sin(theta) * (cos(phi) * f + sin(phi) * r) + cos(theta) * a
+
+  ``up="y"``: a = +Y, f = -Z, r = +X (the usual y-up camera frame).
+  ``up="z"``: a = +Z, f = +Y, r = +X.
+  The centre of the image (u = 0.5, v = 0.5) therefore looks forward, and
+  moving right in the image turns to the viewer's right, as seen from inside the
+  sphere.  ``rotate_deg`` (degrees at the API boundary, radians inside) turns the
+  environment about the up axis: with rotation R the image centre looks at azimuth R.
+
+Pixel (i, j) covers theta in [pi*i/H, pi*(i+1)/H] and u in [j/W, (j+1)/W]; its
+solid angle is exactly ``(cos theta_i - cos theta_{i+1}) * 2*pi / W`` steradians.
+
+References
+----------
+- Duff, T., Burgess, J., Christensen, P., Hery, C., Kensler, A., Liani, M. and
+  Villemin, R. (2017). Building an Orthonormal Basis, Revisited. JCGT 6(1).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+__all__ = [
+    "UP_AXES",
+    "convention",
+    "uv_to_direction",
+    "direction_to_uv",
+    "row_cos_edges",
+    "row_solid_angles",
+    "pixel_solid_angles",
+    "direction_to_pixel",
+    "pixel_center_directions",
+    "orthonormal_basis",
+    "to_local",
+    "to_world",
+]
+
+#: Frames (forward, right, up) for each supported up axis.  right = forward x up.
+UP_AXES: dict[str, tuple[tuple[float, float, float], ...]] = {
+    "y": ((0.0, 0.0, -1.0), (1.0, 0.0, 0.0), (0.0, 1.0, 0.0)),
+    "z": ((0.0, 1.0, 0.0), (1.0, 0.0, 0.0), (0.0, 0.0, 1.0)),
+}
+
+
+def _frame(up: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    try:
+        f, r, a = UP_AXES[str(up).lower()]
+    except KeyError:
+        raise ValueError(f"unknown up axis {up!r}; valid: {', '.join(UP_AXES)}") from None
+    return np.array(f), np.array(r), np.array(a)
+
+
+def convention(up: str = "y", rotate_deg: float = 0.0) -> dict:
+    """A JSON-ready description of the direction convention, stored in every table."""
+    f, r, a = _frame(up)
+    return {
+        "projection": "equirectangular",
+        "up_axis": str(up).lower(),
+        "forward": f.tolist(),
+        "right": r.tolist(),
+        "up": a.tolist(),
+        "handedness": "right",
+        "rotation_deg": float(rotate_deg),
+        "u": "0 at the left edge, increasing to the right; phi = 2*pi*(u - 0.5) + rotation",
+        "v": "0 at the top row (zenith), 1 at the bottom row (nadir); theta = pi * v",
+        "direction": "d = sin(theta)*(cos(phi)*forward + sin(phi)*right) + cos(theta)*up",
+    }
+
+
+def uv_to_direction(u, v, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
+    """Unit directions for image coordinates.
+
+    Parameters
+    ----------
+    u, v : array_like
+        Image coordinates in [0, 1] (broadcast together); see the module docstring.
+    up : {"y", "z"}
+        The world up axis.
+    rotate_deg : float
+        Rotation of the environment about the up axis, degrees.
+
+    Returns
+    -------
+    ndarray, float64, shape ``broadcast(u, v).shape + (3,)``
+    """
+    u = np.asarray(u, dtype=np.float64)
+    v = np.asarray(v, dtype=np.float64)
+    f, r, a = _frame(up)
+    phi = 2.0 * math.pi * (u - 0.5) + math.radians(rotate_deg)
+    theta = math.pi * v
+    st = np.sin(theta)
+    return _combine(st * np.cos(phi), st * np.sin(phi), np.cos(theta), f, r, a)
+
+
+def _combine(cf, cr, ca, f, r, a) -> np.ndarray:
+    cf, cr, ca = np.broadcast_arrays(cf, cr, ca)
+    out = np.empty(cf.shape + (3,), dtype=np.float64)
+    for k in range(3):
+        out[..., k] = cf * f[k] + cr * r[k] + ca * a[k]
+    return out
+
+
+def direction_to_uv(d, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    """Image coordinates ``(u, v)`` of directions; the inverse of :func:`uv_to_direction`.
+
+    ``d`` is array_like of shape ``(..., 3)``; it need not be normalised (zero
+    vectors map to u = 0.5, v = 0.5).  ``u`` is wrapped into [0, 1), ``v`` lies in [0, 1].
+    Returns two float64 arrays of shape ``d.shape[:-1]``.
+    """
+    d = np.asarray(d, dtype=np.float64)
+    if d.shape[-1:] != (3,):
+        raise ValueError(f"directions must have shape (..., 3), got {d.shape}")
+    f, r, a = _frame(up)
+    cf = d @ f
+    cr = d @ r
+    ca = d @ a
+    horiz = np.hypot(cf, cr)
+    theta = np.arctan2(horiz, ca)
+    phi = np.arctan2(cr, cf) - math.radians(rotate_deg)
+    u = phi / (2.0 * math.pi) + 0.5
+    u -= np.floor(u)
+    u = np.where(u >= 1.0, 0.0, u)
+    v = theta / math.pi
+    return u, v
+
+
+def row_cos_edges(height: int) -> np.ndarray:
+    """cos(theta) at the H+1 row edges, float64, decreasing from 1 (zenith) to -1 (nadir)."""
+    _check_size(height, 1)
+    out = np.cos(np.pi * np.arange(height + 1) / height)
+    out[0], out[-1] = 1.0, -1.0
+    return out
+
+
+def row_solid_angles(height: int, width: int) -> np.ndarray:
+    """Exact solid angle of one pixel in each row, steradians, float64 shape (H,).
+
+    ``(cos theta_i - cos theta_{i+1}) * 2*pi / W``, evaluated as
+    ``2 sin(theta_mid) sin(dtheta/2) * 2*pi / W`` to avoid cancellation near the poles.
+    ``row_solid_angles(H, W).sum() * W == 4*pi`` to rounding.
+    """
+    _check_size(height, width)
+    dtheta = math.pi / height
+    mid = (np.arange(height) + 0.5) * dtheta
+    return 2.0 * np.sin(mid) * math.sin(dtheta / 2.0) * (2.0 * math.pi / width)
+
+
+def pixel_solid_angles(height: int, width: int) -> np.ndarray:
+    """Exact solid angle of every pixel, steradians: a read-only float64 (H, W) view.
+
+    The array is a broadcast of :func:`row_solid_angles` and costs no memory per
+    pixel; it sums to 4*pi.
+    """
+    return np.broadcast_to(row_solid_angles(height, width)[:, None], (height, width))
+
+
+def direction_to_pixel(d, height: int, width: int, *, up: str = "y", rotate_deg: float = 0.0):
+    """Row and column (int64 arrays) of the pixel that contains each direction."""
+    u, v = direction_to_uv(d, up=up, rotate_deg=rotate_deg)
+    col = np.minimum((u * width).astype(np.int64), width - 1)
+    row = np.minimum((v * height).astype(np.int64), height - 1)
+    return row, col
+
+
+def pixel_center_directions(height: int, width: int, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
+    """Directions through the centre (in u and v) of every pixel, float64 (H, W, 3)."""
+    _check_size(height, width)
+    u = (np.arange(width) + 0.5) / width
+    v = (np.arange(height) + 0.5) / height
+    return uv_to_direction(u[None, :], v[:, None], up=up, rotate_deg=rotate_deg)
+
+
+def orthonormal_basis(n) -> tuple[np.ndarray, np.ndarray]:
+    """Tangent and bitangent ``(t, b)`` completing unit normals ``n`` (..., 3) to a right-handed frame.
+
+    ``t x b = n``.  Branch-free construction of Duff et al. (2017), JCGT 6(1), listing 3.
+    """
+    n = np.asarray(n, dtype=np.float64)
+    x, y, z = n[..., 0], n[..., 1], n[..., 2]
+    sign = np.where(z >= 0.0, 1.0, -1.0)
+    a = -1.0 / (sign + z)
+    b = x * y * a
+    t = np.stack([1.0 + sign * x * x * a, sign * b, -sign * x], axis=-1)
+    bt = np.stack([b, sign + y * y * a, -y], axis=-1)
+    return t, bt
+
+
+def to_local(d, n) -> np.ndarray:
+    """Express world directions ``d`` (..., 3) in the frame (t, b, n) of normals ``n``; z is along n."""
+    d = np.asarray(d, dtype=np.float64)
+    n = np.asarray(n, dtype=np.float64)
+    t, b = orthonormal_basis(n)
+    return np.stack([np.sum(d * t, -1), np.sum(d * b, -1), np.sum(d * n, -1)], axis=-1)
+
+
+def to_world(local, n) -> np.ndarray:
+    """Map local directions (x along t, y along b, z along n) back to world space."""
+    local = np.asarray(local, dtype=np.float64)
+    n = np.asarray(n, dtype=np.float64)
+    t, b = orthonormal_basis(n)
+    return local[..., 0:1] * t + local[..., 1:2] * b + local[..., 2:3] * n
+
+
+def _check_size(height, width) -> None:
+    if int(height) != height or int(width) != width or height < 1 or width < 1:
+        raise ValueError(f"height and width must be positive integers, got {height}x{width}")
