@@ -1,0 +1,474 @@
+"""EnvTable: importance-sampling tables of an equirectangular environment map.
+
+The table is a piecewise-constant 2D distribution over the map's cells (or over a
+coarser grid of cells, see ``size``).  The weight of cell (i, j) is its luminance
+times its **exact** solid angle ``(cos theta_i - cos theta_{i+1}) * 2*pi / w``:
+the sin-theta weighting of the lat-long parameterisation done exactly rather than
+with sin(theta) at the cell centre.
+
+Sampling draws a cell (by CDF inversion over the marginal and conditional CDFs,
+or with an alias table) and then a direction within it by one of two in-cell
+mappings:
+
+* ``equal-area`` (default): azimuth uniform within the column and cos(theta)
+  uniform within the row band, so the solid-angle pdf is constant within a cell:
+  ``pdf = Y_ij / sum(Y * dOmega)`` per steradian.  A grey map is then sampled
+  exactly in proportion to its radiance and the estimate of the integral of L has
+  zero variance.
+* ``uv-linear``: v uniform within the row, the convention of renderers that warp
+  (u, v) linearly; ``pdf = p(u, v) / (2 * pi**2 * sin(theta))`` with ``p(u, v)``
+  the density in the unit square (Pharr, Jakob & Humphreys 2016, sec. 14.2.4).
+
+Options: a coarser table grid by area-weighted box filtering (power preserved,
+no bright pixel lost); a defensive mixture with uniform sphere sampling
+(Hesterberg 1995); and MIS compensation (Karlík et al. 2019), which subtracts the
+sphere's mean luminance so the table concentrates on the bright parts and must
+only be used inside an MIS combination.
+
+References
+----------
+- Pharr, M., Jakob, W. and Humphreys, G. (2016). Physically Based Rendering,
+  3rd ed., sec. 13.6.7 (2D piecewise-constant distributions), sec. 14.2.4
+  (infinite area lights).
+- Hesterberg, T. (1995). Weighted average importance sampling and defensive
+  mixture distributions. Technometrics 37(2), 185-194.
+- Karlík, O., Šik, M., Vévoda, P., Skřivan, T. and Křivánek, J. (2019). MIS
+  compensation: optimizing sampling techniques in multiple importance sampling.
+  ACM TOG 38(6), article 151.
+- Vose, M. D. (1991), see :mod:`envsample.distribution`.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from . import distribution as dist
+from .color import canonical_primaries, luminance
+from .errors import EnvsampleWarning, MapValidationError
+from .sphere import convention, direction_to_uv, row_cos_edges, row_solid_angles, _frame
+
+__all__ = ["MAPPINGS", "SAMPLE_METHODS", "EnvTable", "Samples", "build_table", "load_table", "parse_size"]
+
+#: In-cell mappings a table can use.
+MAPPINGS = ("equal-area", "uv-linear")
+#: Cell-selection methods of :meth:`EnvTable.sample`.
+SAMPLE_METHODS = ("inverse", "alias")
+
+#: Position within a cell is kept this far (relative) from the cell's edges, so that a
+#: sampled direction maps back into the cell it was drawn from despite rounding.
+_EDGE = 1e-7
+
+
+def parse_size(size) -> tuple[int, int] | None:
+    """``None``, ``(width, height)`` or ``"WxH"`` -> ``(width, height)`` of positive ints."""
+    if size is None:
+        return None
+    if isinstance(size, str):
+        parts = size.lower().replace(" ", "").split("x")
+        if len(parts) != 2 or not all(p.isdigit() for p in parts):
+            raise ValueError(f"size {size!r} is not of the form WIDTHxHEIGHT, e.g. 2048x1024")
+        size = (int(parts[0]), int(parts[1]))
+    w, h = (int(size[0]), int(size[1]))
+    if w < 1 or h < 1:
+        raise ValueError(f"size must be positive, got {w}x{h}")
+    return w, h
+
+
+def _overlap_matrix(src_edges: np.ndarray, dst_edges: np.ndarray):
+    """Sparse (dst, src) matrix of the overlap lengths of two increasing partitions of one interval."""
+    from scipy import sparse
+
+    edges = np.union1d(src_edges, dst_edges)
+    mids = 0.5 * (edges[:-1] + edges[1:])
+    lengths = np.diff(edges)
+    si = np.clip(np.searchsorted(src_edges, mids, side="right") - 1, 0, src_edges.size - 2)
+    di = np.clip(np.searchsorted(dst_edges, mids, side="right") - 1, 0, dst_edges.size - 2)
+    keep = lengths > 0
+    return sparse.csr_matrix(
+        (lengths[keep], (di[keep], si[keep])), shape=(dst_edges.size - 1, src_edges.size - 1)
+    )
+
+
+def reduce_power(values: np.ndarray, size: tuple[int, int]) -> np.ndarray:
+    """Area-weighted box filter of a lat-long array to ``size = (w, h)`` cells.
+
+    ``values`` is (H, W) or (H, W, C) radiance-like data.  Each output cell holds
+    the solid-angle-weighted mean of the source over the cell, so
+    ``sum(out * dOmega_out) == sum(values * dOmega_in)`` (power is preserved) and a
+    bright pixel always lands, diluted, in the cell(s) that overlap it.  Works for
+    any sizes (not only integer factors): rows overlap in cos(theta), columns in u.
+    Returns float32.
+    """
+    H, W = values.shape[:2]
+    w, h = size
+    # Row overlaps measured in -cos(theta) (increasing), column overlaps in u.
+    rows = _overlap_matrix(-row_cos_edges(H), -row_cos_edges(h))
+    cols = _overlap_matrix(np.arange(W + 1) / W, np.arange(w + 1) / w)
+    flat = values.reshape(H, W, -1).astype(np.float64)
+    out = np.empty((h, w, flat.shape[2]), dtype=np.float64)
+    for c in range(flat.shape[2]):
+        out[:, :, c] = (rows @ (cols @ flat[:, :, c].T).T)
+    # Divide by each output cell's measure (its cos-theta band times its u width).
+    out /= (np.diff(-row_cos_edges(h))[:, None, None] * (1.0 / w))
+    out = out.astype(np.float32)
+    return out.reshape((h, w) + values.shape[2:])
+
+
+@dataclass
+class Samples:
+    """Directions drawn from a table.
+
+    Attributes
+    ----------
+    directions : float64 (N, 3) unit vectors in the table's convention.
+    pdf : float64 (N,) solid-angle density, per steradian.
+    cells : int64 (N,) flat cell index ``row * table_width + col``.
+    radiance : float32 (N, 3), the map's radiance in each direction (computed on first access).
+    """
+
+    directions: np.ndarray
+    pdf: np.ndarray
+    cells: np.ndarray
+    _table: "EnvTable" = field(repr=False, default=None)
+
+    @functools.cached_property
+    def radiance(self) -> np.ndarray:
+        return self._table.eval(self.directions)
+
+    def __len__(self) -> int:
+        return int(self.pdf.shape[0])
+
+
+class EnvTable:
+    """Sampling tables of one environment map; build with :func:`build_table`, load with :func:`load_table`.
+
+    Attributes
+    ----------
+    image : float32 (H, W, 3) radiance used by :meth:`eval` (full resolution).
+    height, width : image size.  table_height, table_width : cell grid size.
+    up, rotate_deg : direction convention (see :mod:`envsample.sphere`).
+    mapping : ``"equal-area"`` or ``"uv-linear"``.  primaries : luminance primaries.
+    uniform_mix : weight of uniform sphere sampling in the mixture (0 = none).
+    compensated : True for an MIS-compensated table (valid only inside MIS).
+    marginal_cdf : float32 (h + 1,).  conditional_cdf : float32 (h, w + 1).
+    alias_probability : float32 (h * w,).  alias_index : int32 (h * w,).
+    cell_pdf : float32 (h, w): solid-angle pdf of each cell for the equal-area
+        mapping (per steradian); ``cell_probability`` is ``cell_pdf * dOmega``.
+    integrals : dict, ``"rgb"`` = per-channel integral of L over the sphere and
+        ``"luminance"`` = integral of the luminance, in map units times steradians.
+    metadata : JSON-ready dict (options, source, recommendation...).
+    """
+
+    def __init__(
+        self,
+        *,
+        image: np.ndarray,
+        marginal_cdf: np.ndarray,
+        conditional_cdf: np.ndarray,
+        alias_probability: np.ndarray,
+        alias_index: np.ndarray,
+        cell_pdf: np.ndarray,
+        metadata: dict,
+    ):
+        self.image = image
+        self.marginal_cdf = marginal_cdf
+        self.conditional_cdf = conditional_cdf
+        self.alias_probability = alias_probability
+        self.alias_index = alias_index
+        self.cell_pdf = cell_pdf
+        self.metadata = metadata
+        self.height, self.width = int(image.shape[0]), int(image.shape[1])
+        self.table_height, self.table_width = (int(s) for s in cell_pdf.shape)
+        conv = metadata["convention"]
+        self.up = conv["up_axis"]
+        self.rotate_deg = float(conv["rotation_deg"])
+        opts = metadata["options"]
+        self.mapping = opts["mapping"]
+        self.primaries = opts["primaries"]
+        self.uniform_mix = float(opts["uniform_mix"])
+        self.compensated = bool(opts.get("compensate", False))
+        self.integrals = metadata["integrals"]
+        self._row_sa = row_solid_angles(self.table_height, self.table_width)
+        self._cos_edges = row_cos_edges(self.table_height)
+        self._rot = math.radians(self.rotate_deg)
+        self._frame = _frame(self.up)
+
+    # ------------------------------------------------------------------ facts
+    @property
+    def cell_probability(self) -> np.ndarray:
+        """Probability of drawing each cell, float64 (h, w), summing to 1."""
+        return self.cell_pdf.astype(np.float64) * self._row_sa[:, None]
+
+    @property
+    def luminance(self) -> np.ndarray:
+        """The sampled function per cell (luminance, or compensated/mixed luminance), float32 (h, w).
+
+        Reconstructed from the pdf: ``cell_pdf * integral``; for a plain table this is
+        the (area-weighted) luminance of the map's cells.
+        """
+        return (self.cell_pdf * np.float32(self.metadata["sampled_integral"])).astype(np.float32)
+
+    def __repr__(self) -> str:
+        return (
+            f"EnvTable(image={self.width}x{self.height}, table={self.table_width}x{self.table_height}, "
+            f"mapping={self.mapping!r}, primaries={self.primaries!r}, up={self.up!r})"
+        )
+
+    # --------------------------------------------------------------- sampling
+    def sample(self, u, *, method: str = "inverse") -> Samples:
+        """Draw directions from the table.
+
+        Parameters
+        ----------
+        u : array_like (N, 2)
+            Uniform numbers in [0, 1).  ``method="inverse"`` maps them monotonically
+            (u[:, 0] picks the row band, u[:, 1] the column), preserving stratification.
+            ``method="alias"`` picks the cell in O(1) from u[:, 0] (whose leftover
+            fraction then places the sample in azimuth) and uses u[:, 1] within the row band.
+
+        Returns
+        -------
+        Samples with float64 directions (N, 3) and pdf per steradian (N,).
+        The same ``u`` always gives bit-identical output.
+        """
+        u = np.asarray(u, dtype=np.float64)
+        if u.ndim != 2 or u.shape[1] != 2:
+            raise ValueError(f"u must have shape (N, 2), got {u.shape}")
+        if method == "inverse":
+            row, fv = dist.sample_cdf(self.marginal_cdf, u[:, 0])
+            col, fu = dist.sample_row_cdfs(self.conditional_cdf, row, u[:, 1])
+        elif method == "alias":
+            cell, fu = dist.sample_alias(self.alias_probability, self.alias_index, u[:, 0])
+            row, col = np.divmod(cell, self.table_width)
+            fv = np.clip(u[:, 1], 0.0, 1.0)
+        else:
+            raise ValueError(f"unknown sampling method {method!r}; valid: {', '.join(SAMPLE_METHODS)}")
+        np.clip(fu, _EDGE, 1.0 - _EDGE, out=fu)
+        fv = np.clip(fv, _EDGE, 1.0 - _EDGE)
+        h, w = self.table_height, self.table_width
+        phi = (2.0 * math.pi / w) * (col + fu) - math.pi + self._rot
+        if self.mapping == "equal-area":
+            c0 = self._cos_edges[row]
+            c1 = self._cos_edges[row + 1]
+            cos_t = c0 - fv * (c0 - c1)
+            sin_t = np.sqrt(np.maximum(0.0, (1.0 - cos_t) * (1.0 + cos_t)))
+            pdf = self.cell_pdf[row, col].astype(np.float64)
+        else:
+            theta = (math.pi / h) * (row + fv)
+            cos_t, sin_t = np.cos(theta), np.sin(theta)
+            p = self.cell_pdf[row, col].astype(np.float64) * self._row_sa[row]
+            pdf = p * (h * w) / (2.0 * math.pi**2 * sin_t)
+        d = _directions(sin_t * np.cos(phi), sin_t * np.sin(phi), cos_t, self._frame)
+        cells = (row * w + col).astype(np.int64)
+        return Samples(directions=d, pdf=pdf, cells=cells, _table=self)
+
+    def cells_of(self, directions) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Row, column (int64) of the table cell containing each direction, and sin(theta)."""
+        d = np.asarray(directions, dtype=np.float64)
+        u, v = direction_to_uv(d, up=self.up, rotate_deg=self.rotate_deg)
+        h, w = self.table_height, self.table_width
+        col = np.minimum((u * w).astype(np.int64), w - 1)
+        row = np.minimum((v * h).astype(np.int64), h - 1)
+        return row, col, np.sin(math.pi * v)
+
+    def pdf(self, directions) -> np.ndarray:
+        """Solid-angle pdf (per steradian, float64 (N,)) of drawing ``directions`` (N, 3) from this table."""
+        row, col, sin_t = self.cells_of(directions)
+        if self.mapping == "equal-area":
+            return self.cell_pdf[row, col].astype(np.float64)
+        h, w = self.table_height, self.table_width
+        p = self.cell_pdf[row, col].astype(np.float64) * self._row_sa[row]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = p * (h * w) / (2.0 * math.pi**2 * sin_t)
+        return np.where(sin_t > 0, out, 0.0)
+
+    def eval(self, directions) -> np.ndarray:
+        """Radiance of the full-resolution map in ``directions`` (N, 3): float32 (N, 3), nearest pixel."""
+        d = np.asarray(directions, dtype=np.float64)
+        u, v = direction_to_uv(d, up=self.up, rotate_deg=self.rotate_deg)
+        col = np.minimum((u * self.width).astype(np.int64), self.width - 1)
+        row = np.minimum((v * self.height).astype(np.int64), self.height - 1)
+        return self.image[row, col]
+
+    # ------------------------------------------------------------------- disk
+    def save(self, prefix, *, raw: bool = False) -> list[Path]:
+        """Write ``PREFIX.npz`` and ``PREFIX.json`` (and ``PREFIX.bin`` with ``raw=True``) atomically."""
+        from .tableio import save_table
+
+        return save_table(self, prefix, raw=raw)
+
+    def arrays(self) -> dict[str, np.ndarray]:
+        """The arrays stored on disk, by name (see docs/table-format.md)."""
+        return {
+            "marginal_cdf": self.marginal_cdf,
+            "conditional_cdf": self.conditional_cdf,
+            "alias_probability": self.alias_probability,
+            "alias_index": self.alias_index,
+            "cell_pdf": self.cell_pdf,
+            "radiance": self.image,
+        }
+
+
+def _directions(cf, cr, ca, frame) -> np.ndarray:
+    f, r, a = frame
+    out = np.empty(cf.shape + (3,), dtype=np.float64)
+    for k in range(3):
+        out[:, k] = cf * f[k] + cr * r[k] + ca * a[k]
+    return out
+
+
+def _as_image(rgb):
+    """Accept a MapImage-like object (with ``.rgb``) or an array; return (float32 (H,W,3), source dict)."""
+    source = None
+    if hasattr(rgb, "rgb"):
+        source = rgb.describe() if hasattr(rgb, "describe") else None
+        rgb = rgb.rgb
+    arr = np.asarray(rgb)
+    if arr.ndim != 3 or arr.shape[2] != 3:
+        raise MapValidationError(f"map must be an (H, W, 3) RGB array, got shape {arr.shape}")
+    if arr.shape[0] < 1 or arr.shape[1] < 1:
+        raise MapValidationError(f"map is empty (shape {arr.shape})")
+    arr = arr.astype(np.float32, copy=False)
+    return arr, source
+
+
+def build_table(
+    rgb,
+    *,
+    size=None,
+    primaries: str = "bt709",
+    mapping: str = "equal-area",
+    uniform_mix: float = 0.0,
+    up: str = "y",
+    rotate_deg: float = 0.0,
+    compensate: bool = False,
+) -> EnvTable:
+    """Build the sampling tables of an equirectangular map.
+
+    Parameters
+    ----------
+    rgb : MapImage or array_like (H, W, 3)
+        Linear radiance, row 0 at the zenith.  Must be finite and non-negative
+        (validate files with :func:`envsample.io.validate_map` first).
+    size : (width, height) or "WxH", optional
+        Table grid; the map is reduced by an area-weighted box filter (power
+        preserved).  Default: the map's own resolution.
+    primaries : str
+        Luminance weights: ``bt709`` (default; alias ``srgb``), ``bt2020``,
+        ``acescg``, ``aces2065-1``, ``max`` or ``mean``.
+    mapping : {"equal-area", "uv-linear"}
+        In-cell mapping (module docstring).
+    uniform_mix : float in [0, 1)
+        Weight of uniform sphere sampling mixed into the table (Hesterberg 1995).
+    up : {"y", "z"}; rotate_deg : float (degrees)
+        Direction convention, see :mod:`envsample.sphere`.
+    compensate : bool
+        Subtract the sphere-mean luminance and clamp at zero (Karlík et al. 2019).
+        Such a table is valid only inside MIS.
+
+    Returns
+    -------
+    EnvTable
+    """
+    image, source = _as_image(rgb)
+    if not np.isfinite(image).all():
+        raise MapValidationError("map has NaN or Inf pixels; repair them first (read with validate_map(repair=True))")
+    if (image < 0).any():
+        raise MapValidationError("map has negative pixels; clamp them first (validate_map does)")
+    primaries = canonical_primaries(primaries)
+    if mapping not in MAPPINGS:
+        raise ValueError(f"unknown mapping {mapping!r}; valid: {', '.join(MAPPINGS)}")
+    uniform_mix = float(uniform_mix)
+    if not 0.0 <= uniform_mix < 1.0:
+        raise ValueError(f"uniform_mix must be in [0, 1), got {uniform_mix}")
+    size = parse_size(size)
+    conv = convention(up, rotate_deg)
+    H, W = image.shape[:2]
+
+    # Per-channel integrals at full resolution (float64 accumulation).
+    row_sa_full = row_solid_angles(H, W)
+    rgb_integral = (image.sum(axis=1, dtype=np.float64) * row_sa_full[:, None]).sum(axis=0)
+
+    lum = luminance(image, primaries)
+    lum_integral_full = float(np.dot(lum.sum(axis=1, dtype=np.float64), row_sa_full))
+    if size is not None and size != (W, H):
+        lum = reduce_power(lum, size)
+    h, w = lum.shape
+    row_sa = row_solid_angles(h, w)
+
+    notes = []
+    if compensate:
+        mean = lum_integral_full / (4.0 * math.pi)
+        np.subtract(lum, np.float32(mean), out=lum)
+        np.maximum(lum, 0.0, out=lum)
+    # Rows' weighted sums give the marginal; built together with the conditional CDFs.
+    conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
+    total = float(row_totals.sum())
+    if not total > 0.0:
+        if compensate:
+            notes.append("compensation removed every cell (a constant map): the table is uniform")
+        else:
+            warnings.warn(
+                "map is entirely black: the table samples the sphere uniformly", EnvsampleWarning, stacklevel=2
+            )
+            notes.append("map is entirely black: uniform table")
+        lum = np.ones((h, w), dtype=np.float32)
+        conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
+        total = float(row_totals.sum())
+    if uniform_mix > 0.0:
+        # Mixture density (1 - m) Y / total + m / (4 pi), still constant within a cell.
+        lum *= np.float32((1.0 - uniform_mix) / total)
+        lum += np.float32(uniform_mix / (4.0 * math.pi))
+        conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
+        total = float(row_totals.sum())
+    marginal, _ = dist.build_cdf(row_totals)
+    a_prob, a_index = dist.build_alias(lum, row_scale=row_sa)
+    # lum becomes the cell pdf in place: pdf = f / integral(f) per steradian.
+    lum *= np.float32(1.0 / total)
+    cell_pdf = lum
+
+    from . import __version__
+
+    metadata = {
+        "convention": conv,
+        "options": {
+            "size": None if size is None else [int(size[0]), int(size[1])],
+            "primaries": primaries,
+            "mapping": mapping,
+            "uniform_mix": uniform_mix,
+            "compensate": bool(compensate),
+        },
+        "integrals": {
+            "rgb": [float(x) for x in rgb_integral],
+            "luminance": lum_integral_full,
+            "units": "map radiance units times steradians",
+        },
+        "sampled_integral": total,
+        "source": source,
+        "notes": notes,
+        "tool_version": __version__,
+    }
+    if compensate:
+        metadata["valid_only_inside_mis"] = True
+    return EnvTable(
+        image=image,
+        marginal_cdf=marginal,
+        conditional_cdf=conditional,
+        alias_probability=a_prob,
+        alias_index=a_index,
+        cell_pdf=cell_pdf,
+        metadata=metadata,
+    )
+
+
+def load_table(prefix_or_path) -> EnvTable:
+    """Load a table written by :meth:`EnvTable.save`; see :func:`envsample.tableio.load_table`."""
+    from .tableio import load_table as _load
+
+    return _load(prefix_or_path)
