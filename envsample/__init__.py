@@ -40,6 +40,11 @@ _EXPORTS = {
     "Samples": "table",
     "build_table": "table",
     "load_table": "table",
+    "parse_size": "table",
+    "SCHEMA_VERSION": "tableio",
+    "read_table_json": "tableio",
+    # color
+    "luminance": "color",
     # skies
     "make_sky": "skies",
     "sky_kinds": "skies",

@@ -215,8 +215,8 @@ def load_table(prefix_or_path):
                 arrays[name] = z[name]
     except TableFormatError:
         raise
-    except (zipfile.BadZipFile, OSError, ValueError, EOFError) as exc:
-        raise TableFormatError(f"{npz_path}: corrupt or truncated ({exc}); rebuild the table") from None
+    except (zipfile.BadZipFile, OSError, ValueError, EOFError):
+        raise TableFormatError(f"{npz_path}: corrupt or truncated (not a readable NPZ archive); rebuild the table") from None
     for name, a in arrays.items():
         entry = doc["arrays"].get(name)
         if entry is None:
