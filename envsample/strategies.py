@@ -30,7 +30,7 @@ Strategies (``STRATEGIES`` maps names to classes, :func:`make_strategy` dispatch
     GGX / Trowbridge-Reitz microfacet reflection (Walter et al. 2007) sampled with
     the distribution of visible normals (Heitz 2018).  F = 1 (a white, lossless
     mirror material: the lobe shape is what is being measured); G2 is the
-    **height-correlated** Smith masking-shadowing function (Heitz 2014, eq. 99).
+    **height-correlated** Smith masking-shadowing function (Heitz 2014).
     Reflected directions that fall below the surface are returned with their pdf and
     contribute nothing (``eval`` is 0 there); the pdf is *not* renormalised, so it
     integrates to 1 over the whole sphere.
@@ -282,7 +282,7 @@ class LambertBSDF(CosineHemisphere):
 def ggx_d(h, alpha) -> np.ndarray:
     """GGX normal distribution D(h) per sr of microfacet normals, local unit h (N, 3).
 
-    Walter et al. (2007) eq. 33: D = alpha^2 / (pi cos^4 t (alpha^2 + tan^2 t)^2),
+    Walter et al. (2007), eq. 33 (from memory): D = alpha^2 / (pi cos^4 t (alpha^2 + tan^2 t)^2),
     written as alpha^2 / (pi (cos^2 t (alpha^2 - 1) + 1)^2); zero for h_z <= 0.
     Normalised so that integral of D(h) cos t_h over the hemisphere is 1.
     """
@@ -296,7 +296,7 @@ def ggx_d(h, alpha) -> np.ndarray:
 def ggx_lambda(v, alpha) -> np.ndarray:
     """Smith Lambda for GGX, local unit v (N, 3): (-1 + sqrt(1 + alpha^2 tan^2 t)) / 2.
 
-    Heitz (2014) eq. 72; written with tan^2 = (1 - z^2)/z^2 and evaluated as
+    Heitz (2014), section 5; written with tan^2 = (1 - z^2)/z^2 and evaluated as
     (sqrt(z^2 + alpha^2 (1 - z^2)) / |z| - 1)/2 to stay finite at grazing angles.
     """
     v = np.asarray(v, dtype=np.float64)
@@ -307,13 +307,13 @@ def ggx_lambda(v, alpha) -> np.ndarray:
 
 
 def ggx_g1(v, alpha) -> np.ndarray:
-    """Smith masking G1(v) = 1 / (1 + Lambda(v)) for v above the surface, else 0 (Heitz 2014 eq. 43)."""
+    """Smith masking G1(v) = 1 / (1 + Lambda(v)) for v above the surface, else 0 (Heitz 2014)."""
     v = np.asarray(v, dtype=np.float64)
     return np.where(v[:, 2] > 0.0, 1.0 / (1.0 + ggx_lambda(v, alpha)), 0.0)
 
 
 def ggx_g2(wi, wo, alpha) -> np.ndarray:
-    """Height-correlated Smith masking-shadowing G2 = 1 / (1 + Lambda(wo) + Lambda(wi)) (Heitz 2014 eq. 99).
+    """Height-correlated Smith masking-shadowing G2 = 1 / (1 + Lambda(wo) + Lambda(wi)) (Heitz 2014, eq. 99 from memory).
 
     Reflection only: zero unless both directions are above the surface.
     """
@@ -353,9 +353,10 @@ class GGXReflection:
     ``frame.wo`` and ``frame.roughness`` (GGX alpha) are required.
 
     * ``eval`` = D(h) G2(wi, wo) F / (4 |n.wi| |n.wo|) with h = normalize(wi + wo),
-      zero when wi or wo is below the surface (Walter et al. 2007 eq. 20).
-    * ``pdf`` of the reflected direction = G1(wo) D(h) / (4 wo_z) (Heitz 2018 eq. 17
-      with the reflection Jacobian 1/(4 wo.h)).  It is non-zero for reflected
+      zero when wi or wo is below the surface (Walter et al. 2007, eq. 20 from memory).
+    * ``pdf`` of the reflected direction = G1(wo) D(h) / (4 wo_z): the visible-normal
+      density G1(wo) max(0, wo.h) D(h) / wo_z (Heitz 2018) times the reflection
+      Jacobian 1/(4 wo.h) (Walter et al. 2007).  It is non-zero for reflected
       directions below the surface: they are sampled, contribute nothing, and are
       kept in the normalisation.  Zero when wo is below the surface.
     """

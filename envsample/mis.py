@@ -1,0 +1,572 @@
+"""Multiple importance sampling: heuristics, estimators of irradiance and of glossy reflection.
+
+Heuristics (Veach 1997, section 9.2)
+------------------------------------
+With ``q_i = n_i p_i(x)`` (``n_i`` samples of strategy ``i`` in multi-sample MIS, or
+its selection probability ``c_i`` in one-sample MIS):
+
+``balance``   w_i = q_i / sum_k q_k                       (the balance heuristic)
+``power``     w_i = q_i^beta / sum_k q_k^beta, beta = 2    (power heuristic)
+``maximum``   w_i = 1 if q_i is the largest, else 0        (maximum heuristic)
+``cutoff``    w_i = q_i / sum of q_k >= alpha q_max, 0 if q_i < alpha q_max  (cutoff heuristic)
+
+Each is its own function in ``HEURISTICS``; :func:`mis_weights` dispatches by ``method=``.
+Every heuristic gives weights that sum to 1 wherever some pdf is positive and a
+zero weight wherever a strategy's pdf is zero, the two conditions of Veach's
+unbiasedness argument (section 9.1).  Ties in ``maximum`` go to the first strategy.
+
+Estimators
+----------
+* single strategy:  F = (1/N) sum_j f(X_j) / p(X_j)
+* multi-sample MIS (Veach 1997, section 9.2.1): F = sum_i (1/n_i) sum_j w_i(X_ij) f(X_ij) / p_i(X_ij)
+* one-sample MIS (Veach section 9.2.4): pick strategy I with probability c_I, then
+  F = w_I(X) f(X) / (c_I p_I(X)); ``spp`` such estimates are averaged.
+
+The integrands, per shading point with unit normal n (world space, the table's
+direction convention):
+
+* irradiance ``E(n) = integral of L(w) max(0, n.w) dw`` (map units x sr); the "BSDF"
+  strategy is then the cosine density, which matches the clamped cosine exactly;
+* glossy outgoing radiance ``L_o(n, wo) = integral of L(w) f(w, wo) max(0, n.w) dw`` for
+  the GGX reflection of :class:`envsample.strategies.GGXReflection` (F = 1).
+
+Named estimators are listed by :func:`estimators`.  Each normal gets ``spp`` samples;
+the uniforms come from ``numpy.random.default_rng(seed)`` drawn normal by normal in
+a fixed order, so results are reproducible bit for bit and do not depend on how the
+normals are chunked to bound memory.
+
+These are Monte Carlo *estimates* for preparing assets, not certified lighting
+calculations.
+
+References
+----------
+- Veach, E. (1997). Robust Monte Carlo Methods for Light Transport Simulation. PhD
+  thesis, Stanford University, chapter 9 (Multiple Importance Sampling).
+- Veach, E. and Guibas, L. J. (1995). Optimally Combining Sampling Techniques for
+  Monte Carlo Rendering. SIGGRAPH 95.
+- Karlik, O., Sik, M., Vevoda, P., Skrivan, T. and Krivanek, J. (2019). MIS
+  Compensation: Optimizing Sampling Techniques in Multiple Importance Sampling.
+  ACM Transactions on Graphics 38(6) (why a compensated table is valid only inside MIS).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .color import luminance
+from .strategies import CosineHemisphere, Frame, GGXReflection, TableStrategy, UniformHemisphere, UniformSphere, make_frame
+
+__all__ = [
+    "HEURISTICS",
+    "balance_heuristic",
+    "power_heuristic",
+    "maximum_heuristic",
+    "cutoff_heuristic",
+    "mis_weights",
+    "sample_counts",
+    "EstimatorSamples",
+    "firefly_index",
+    "estimators",
+    "estimate_irradiance",
+    "estimate_glossy",
+    "estimate",
+]
+
+#: Samples per processing chunk (normals x spp); bounds memory to tens of MB.
+DEFAULT_CHUNK_SAMPLES = 1 << 17
+
+
+# --- heuristics ----------------------------------------------------------------
+
+
+def _normalise(weights: np.ndarray) -> np.ndarray:
+    total = weights.sum(axis=0)
+    return np.divide(weights, total, out=np.zeros_like(weights), where=total > 0.0)
+
+
+def balance_heuristic(q: np.ndarray) -> np.ndarray:
+    """Balance heuristic w_i = q_i / sum_k q_k (Veach 1997, section 9.2); q = n_i p_i, shape (k, N)."""
+    return _normalise(np.array(q, dtype=np.float64))
+
+
+def power_heuristic(q: np.ndarray, *, beta: float = 2.0) -> np.ndarray:
+    """Power heuristic w_i = q_i^beta / sum_k q_k^beta (Veach 1997, section 9.2); beta > 0, default 2."""
+    beta = float(beta)
+    if not (beta > 0.0 and math.isfinite(beta)):
+        raise ValueError(f"power heuristic beta must be a finite number > 0, got {beta}")
+    q = np.asarray(q, dtype=np.float64)
+    qmax = q.max(axis=0)
+    # Scaling by the largest q first keeps q**beta finite for sharp lobes and suns.
+    r = np.divide(q, qmax, out=np.zeros_like(q), where=qmax > 0.0)
+    return _normalise(r**beta)
+
+
+def maximum_heuristic(q: np.ndarray) -> np.ndarray:
+    """Maximum heuristic: weight 1 for the strategy with the largest q_i, else 0 (Veach 1997, section 9.2).
+
+    Ties go to the first strategy; all weights are 0 where every q is 0.
+    """
+    q = np.asarray(q, dtype=np.float64)
+    w = np.zeros_like(q)
+    if q.shape[1]:
+        best = np.argmax(q, axis=0)
+        cols = np.arange(q.shape[1])
+        w[best, cols] = (q[best, cols] > 0.0).astype(np.float64)
+    return w
+
+
+def cutoff_heuristic(q: np.ndarray, *, alpha: float = 0.1) -> np.ndarray:
+    """Cutoff heuristic (Veach 1997, section 9.2): drop q_i < alpha * q_max, balance the rest; 0 <= alpha <= 1.
+
+    alpha = 0 is the balance heuristic; alpha = 1 keeps only the largest (ties share).
+    The default 0.1 is our choice, not a published optimum.
+    """
+    alpha = float(alpha)
+    if not (0.0 <= alpha <= 1.0):
+        raise ValueError(f"cutoff heuristic alpha must lie in [0, 1], got {alpha}")
+    q = np.asarray(q, dtype=np.float64)
+    qmax = q.max(axis=0)
+    keep = (q >= alpha * qmax) & (q > 0.0)
+    return _normalise(np.where(keep, q, 0.0))
+
+
+#: Heuristics by name; each takes q = n_i p_i (k, N) and its own keyword parameters.
+HEURISTICS = {
+    "balance": balance_heuristic,
+    "power": power_heuristic,
+    "maximum": maximum_heuristic,
+    "cutoff": cutoff_heuristic,
+}
+_HEURISTIC_PARAMS = {"balance": (), "power": ("beta",), "maximum": (), "cutoff": ("alpha",)}
+_HEURISTIC_ALIASES = {"max": "maximum"}
+
+
+def _heuristic_name(method: str) -> str:
+    key = _HEURISTIC_ALIASES.get(method, method)
+    if key not in HEURISTICS:
+        valid = ", ".join(list(HEURISTICS) + list(_HEURISTIC_ALIASES))
+        raise ValueError(f"unknown MIS heuristic {method!r}; valid names: {valid}")
+    return key
+
+
+def mis_weights(pdfs, counts, *, method: str = "balance", **params) -> np.ndarray:
+    """MIS weights of k strategies at N points, float64 (k, N).
+
+    Parameters
+    ----------
+    pdfs : array_like (k, N)
+        Density of each strategy at each point, per steradian (any common measure works).
+    counts : array_like (k,)
+        Samples per strategy n_i (multi-sample MIS) or selection probabilities c_i
+        (one-sample MIS); non-negative.
+    method : {"balance", "power", "maximum" (alias "max"), "cutoff"}
+    **params
+        ``beta`` for power (default 2), ``alpha`` for cutoff (default 0.1).
+    """
+    key = _heuristic_name(method)
+    extra = set(params) - set(_HEURISTIC_PARAMS[key])
+    if extra:
+        allowed = ", ".join(_HEURISTIC_PARAMS[key]) or "none"
+        raise ValueError(f"parameter(s) {', '.join(sorted(extra))} do not apply to the {key} heuristic; allowed: {allowed}")
+    p = np.asarray(pdfs, dtype=np.float64)
+    if p.ndim != 2:
+        raise ValueError(f"pdfs must have shape (k, N), got {p.shape}")
+    c = np.asarray(counts, dtype=np.float64).reshape(-1)
+    if c.shape[0] != p.shape[0]:
+        raise ValueError(f"counts has {c.shape[0]} entries but pdfs has {p.shape[0]} strategies")
+    if np.any(c < 0.0) or np.any(p < 0.0) or not np.all(np.isfinite(p)):
+        raise ValueError("pdfs and counts must be finite and non-negative")
+    return HEURISTICS[key](c[:, None] * p, **params)
+
+
+def sample_counts(spp: int, fractions) -> tuple[int, ...]:
+    """Split ``spp`` samples among strategies in proportion to ``fractions`` (largest remainder), each >= 1."""
+    f = np.asarray(fractions, dtype=np.float64)
+    if spp < f.size:
+        raise ValueError(f"spp={spp} is too small for multi-sample MIS over {f.size} strategies; use spp >= {f.size}")
+    raw = f * spp
+    n = np.floor(raw).astype(np.int64)
+    order = np.argsort(-(raw - n), kind="stable")
+    n[order[: spp - int(n.sum())]] += 1
+    while np.any(n < 1):  # give every strategy at least one sample, taken from the largest
+        n[np.argmax(n)] -= 1
+        n[np.argmin(n)] += 1
+    return tuple(int(x) for x in n)
+
+
+# --- estimator registry ----------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Spec:
+    kind: str  # "single" | "multi" | "one-sample"
+    roles: tuple[str, ...]
+    heuristic: str | None = None
+    glossy_only: bool = False
+
+
+def _build_registry() -> dict[str, _Spec]:
+    reg = {
+        "cosine": _Spec("single", ("cosine",)),
+        "uniform": _Spec("single", ("uniform-hemisphere",)),
+        "sphere": _Spec("single", ("uniform-sphere",)),
+        "table": _Spec("single", ("table",)),
+        "bsdf": _Spec("single", ("bsdf",)),
+        "bsdf-ggx": _Spec("single", ("ggx",), glossy_only=True),
+    }
+    pairs = (("balance", "balance"), ("power", "power"), ("maximum", "max"), ("cutoff", "cutoff"))
+    for model, prefix in (("multi", "mis"), ("one-sample", "one-sample")):
+        for h, short in pairs:
+            reg[f"{prefix}-{short}"] = _Spec(model, ("table", "bsdf"), h)
+    return reg
+
+
+_ESTIMATORS = _build_registry()
+
+
+def estimators(kind: str | None = None) -> tuple[str, ...]:
+    """Names of the estimators; ``kind`` = "irradiance" or "glossy" keeps those valid for it.
+
+    ``bsdf`` samples the "BSDF" of the integrand: the clamped cosine (cosine density)
+    for irradiance, GGX visible normals for glossy.  ``mis-*`` combine the table and
+    the BSDF strategy with multi-sample MIS, ``one-sample-*`` with one-sample MIS;
+    ``fractions`` sets the share of table samples (or the table's selection probability).
+    """
+    if kind not in (None, "irradiance", "glossy"):
+        raise ValueError(f"unknown integrand kind {kind!r}; valid names: irradiance, glossy")
+    return tuple(n for n, s in _ESTIMATORS.items() if not (s.glossy_only and kind == "irradiance"))
+
+
+def _spec(name: str, kind: str) -> _Spec:
+    spec = _ESTIMATORS.get(name)
+    if spec is None or (spec.glossy_only and kind == "irradiance"):
+        raise ValueError(f"unknown {kind} estimator {name!r}; valid names: {', '.join(estimators(kind))}")
+    return spec
+
+
+def _strategy_for(role: str, kind: str, table, table_method: str):
+    if role == "table":
+        return TableStrategy(table, method=table_method)
+    if role == "bsdf":
+        role = "ggx" if kind == "glossy" else "cosine"
+    return {"cosine": CosineHemisphere, "uniform-hemisphere": UniformHemisphere,
+            "uniform-sphere": UniformSphere, "ggx": GGXReflection}[role]()
+
+
+def _fractions(fractions, k: int) -> np.ndarray:
+    if fractions is None:
+        return np.full(k, 1.0 / k)
+    f = np.atleast_1d(np.asarray(fractions, dtype=np.float64))
+    if f.size == 1 and k == 2:
+        f = np.array([f[0], 1.0 - f[0]])
+    if f.size != k or not np.all(np.isfinite(f)) or np.any(f <= 0.0) or abs(f.sum() - 1.0) > 1e-9:
+        raise ValueError(
+            f"fractions must be one table share in (0, 1) or {k} positive numbers summing to 1, got {fractions!r}"
+        )
+    return f / f.sum()
+
+
+# --- per-sample results ----------------------------------------------------------
+
+
+def firefly_index(contributions, axis=None) -> np.ndarray:
+    """Largest sample contribution divided by the mean contribution (``axis=None``: over all samples).
+
+    A diagnostic (common practice): large values mean rare, very bright samples.
+    Returns 0 where the mean is 0.
+    """
+    c = np.asarray(contributions, dtype=np.float64)
+    mx = np.max(c, axis=axis)
+    mean = np.mean(c, axis=axis)
+    return np.divide(mx, mean, out=np.zeros_like(np.asarray(mean, dtype=np.float64)), where=np.asarray(mean) > 0)
+
+
+@dataclass
+class EstimatorSamples:
+    """Per-sample contributions of an estimate, for variance and firefly diagnostics.
+
+    ``contributions`` (N, spp) float64 are luminances (same primaries as the table)
+    of the per-sample terms f w / p, scaled so their mean over axis 1 is the
+    luminance of the estimate: in multi-sample MIS a sample of strategy i carries
+    (spp / n_i) w_i f / p_i.  ``strategy`` (N, spp) int8 names the strategy each
+    sample came from (index into ``strategies``).
+    """
+
+    estimator: str
+    kind: str
+    strategies: tuple[str, ...]
+    contributions: np.ndarray
+    strategy: np.ndarray
+    counts: tuple[int, ...] | None = None
+    fractions: tuple[float, ...] | None = None
+    seed: object = None
+    heuristic: str | None = None
+    params: dict = field(default_factory=dict)
+
+    @property
+    def spp(self) -> int:
+        return self.contributions.shape[1]
+
+    def variance(self) -> np.ndarray:
+        """Estimated variance (N,) of each normal's luminance estimate.
+
+        Single-strategy and one-sample MIS: samples are i.i.d., so s^2 / spp.
+        Multi-sample MIS: the strata add, sum_i n_i s_i^2 / spp^2 (the multi-sample
+        estimator is a sum of independent per-strategy means).  If some n_i < 2, the pooled s^2 / spp is used,
+        which never underestimates the stratified variance in expectation.
+        """
+        c = self.contributions
+        spp = c.shape[1]
+        if spp < 2:
+            return np.full(c.shape[0], np.nan)
+        if self.kind == "multi" and self.counts and min(self.counts) >= 2:
+            total = np.zeros(c.shape[0])
+            start = 0
+            for n in self.counts:
+                total += n * np.var(c[:, start:start + n], axis=1, ddof=1)
+                start += n
+            return total / spp**2
+        return np.var(c, axis=1, ddof=1) / spp
+
+    def standard_error(self) -> np.ndarray:
+        """sqrt(variance()), (N,)."""
+        return np.sqrt(self.variance())
+
+    def firefly_index(self, axis=None):
+        """:func:`firefly_index` of the contributions (pooled over all normals by default)."""
+        return firefly_index(self.contributions, axis=axis)
+
+
+# --- the estimator engine --------------------------------------------------------
+
+
+def _check_spp(spp) -> int:
+    if isinstance(spp, bool) or int(spp) != spp or spp < 1:
+        raise ValueError(f"spp must be a positive integer, got {spp!r}")
+    return int(spp)
+
+
+def _check_table(table) -> None:
+    for attr in ("sample", "pdf", "eval"):
+        if not callable(getattr(table, attr, None)):
+            raise ValueError(f"table has no {attr}() method; pass an EnvTable from envsample.build_table or load_table")
+
+
+def _safe_ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
+    # A sample drawn with zero density (measure-zero edges) contributes nothing.
+    return np.divide(num, den, out=np.zeros_like(num), where=den > 0.0)
+
+
+def _multi_chunk(strategies, counts, heuristic, params, factor, table, frame, u, contrib_y, primaries):
+    m, spp = u.shape[0], u.shape[1]
+    est = np.zeros((m, 3))
+    start = 0
+    for i, (s, n) in enumerate(zip(strategies, counts)):
+        fr = frame.repeat(n)
+        d, p_own = s.sample(u[:, start:start + n, :2].reshape(-1, 2), fr)
+        pdfs = np.stack([p_own if k == i else other.pdf(d, fr) for k, other in enumerate(strategies)])
+        w = mis_weights(pdfs, counts, method=heuristic, **params)[i]
+        scale = _safe_ratio(w * factor(d, fr), p_own) * (spp / n)
+        rad = np.asarray(table.eval(d), dtype=np.float64)
+        est += (scale[:, None] * rad).reshape(m, n, 3).sum(axis=1)
+        if contrib_y is not None:
+            contrib_y[:, start:start + n] = (scale * luminance(rad, primaries)).reshape(m, n)
+        start += n
+    return est / spp
+
+
+def _one_sample_chunk(strategies, fractions, heuristic, params, factor, table, frame, u, contrib_y, strat, primaries):
+    m, spp = u.shape[0], u.shape[1]
+    flat_u = u.reshape(-1, 3)
+    sel = np.searchsorted(np.cumsum(fractions)[:-1], flat_u[:, 2], side="right")
+    fr_all = frame.repeat(spp)
+    scale = np.zeros(m * spp)
+    rad = np.zeros((m * spp, 3))
+    for i, s in enumerate(strategies):
+        idx = np.nonzero(sel == i)[0]
+        if idx.size == 0:
+            continue
+        fr = fr_all.take(idx)
+        d, p_own = s.sample(flat_u[idx, :2], fr)
+        pdfs = np.stack([p_own if k == i else other.pdf(d, fr) for k, other in enumerate(strategies)])
+        w = mis_weights(pdfs, fractions, method=heuristic, **params)[i]
+        scale[idx] = _safe_ratio(w * factor(d, fr), fractions[i] * p_own)
+        rad[idx] = np.asarray(table.eval(d), dtype=np.float64)
+    if contrib_y is not None:
+        contrib_y[:] = (scale * luminance(rad, primaries)).reshape(m, spp)
+        strat[:] = sel.reshape(m, spp)
+    return (scale[:, None] * rad).reshape(m, spp, 3).mean(axis=1)
+
+
+def _single_chunk(strategy, factor, table, frame, u, contrib_y, primaries):
+    m, spp = u.shape[0], u.shape[1]
+    fr = frame.repeat(spp)
+    d, p = strategy.sample(u.reshape(-1, 2), fr)
+    scale = _safe_ratio(factor(d, fr), p)
+    rad = np.asarray(table.eval(d), dtype=np.float64)
+    if contrib_y is not None:
+        contrib_y[:] = (scale * luminance(rad, primaries)).reshape(m, spp)
+    return (scale[:, None] * rad).reshape(m, spp, 3).mean(axis=1)
+
+
+def estimate(table, frame: Frame, factor, strategies, *, kind: str = "single", fractions=None, spp: int,
+             seed=None, heuristic: str = "balance", params: dict | None = None, name: str = "custom",
+             return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
+    """Generic Monte Carlo estimate of ``integral of L(w) factor(w) dw`` at every frame.
+
+    ``factor(directions, frame) -> (M,)`` is the non-negative part of the integrand
+    besides the map radiance (``max(0, n.w)`` for irradiance).  ``strategies`` is a
+    sequence of strategy objects; ``kind`` "single" (exactly one strategy), "multi"
+    (multi-sample MIS with ``sample_counts(spp, fractions)`` samples each) or
+    "one-sample" (selection probabilities ``fractions``).  Returns (N, 3) float64
+    and, with ``return_samples``, an :class:`EstimatorSamples`.
+
+    A compensated table strategy cannot be the only strategy (nor can all strategies
+    be compensated): it is zero where the map is dimmer than its mean, so alone it is
+    biased.  ValueError "valid only inside MIS".
+    """
+    spp = _check_spp(spp)
+    strategies = tuple(strategies)
+    if kind not in ("single", "multi", "one-sample"):
+        raise ValueError(f"unknown estimator kind {kind!r}; valid names: single, multi, one-sample")
+    if kind == "single" and len(strategies) != 1:
+        raise ValueError(f"a single-strategy estimator takes exactly one strategy, got {len(strategies)}")
+    if not strategies:
+        raise ValueError("no strategies given; pass at least one")
+    if all(getattr(s, "compensated", False) for s in strategies):
+        raise ValueError(
+            "a compensated table is valid only inside MIS: combine it with a strategy that covers the whole "
+            "integrand (e.g. estimator 'mis-balance') or build the table with compensate=False"
+        )
+    heuristic = _heuristic_name(heuristic)
+    params = dict(params or {})
+    k = len(strategies)
+    frac = _fractions(fractions, k) if kind != "single" else np.ones(1)
+    counts = sample_counts(spp, frac) if kind == "multi" else None
+    if kind != "single":
+        mis_weights(np.ones((k, 1)), frac, method=heuristic, **params)  # validates params up front
+    primaries = getattr(table, "primaries", "bt709")
+    n = len(frame)
+    rng = np.random.default_rng(seed)
+    dims = 3 if kind == "one-sample" else 2
+    out = np.zeros((n, 3))
+    contrib = np.zeros((n, spp)) if return_samples else None
+    strat = np.zeros((n, spp), dtype=np.int8) if return_samples else None
+    if return_samples and kind == "multi":
+        strat[:] = np.repeat(np.arange(k, dtype=np.int8), counts)[None, :]
+    step = max(1, int(max_chunk_samples) // spp)
+    for lo in range(0, n, step):
+        hi = min(n, lo + step)
+        # Drawn normal-major in one fixed order: the stream does not depend on ``step``.
+        u = rng.random((hi - lo, spp, dims))
+        fr = frame.take(slice(lo, hi))
+        cy = None if contrib is None else contrib[lo:hi]
+        if kind == "single":
+            out[lo:hi] = _single_chunk(strategies[0], factor, table, fr, u, cy, primaries)
+        elif kind == "multi":
+            out[lo:hi] = _multi_chunk(strategies, counts, heuristic, params, factor, table, fr, u, cy, primaries)
+        else:
+            st = None if strat is None else strat[lo:hi]
+            out[lo:hi] = _one_sample_chunk(strategies, frac, heuristic, params, factor, table, fr, u, cy, st, primaries)
+    if not return_samples:
+        return out
+    samples = EstimatorSamples(
+        estimator=name,
+        kind=kind,
+        strategies=tuple(getattr(s, "name", type(s).__name__) for s in strategies),
+        contributions=contrib,
+        strategy=strat,
+        counts=counts,
+        fractions=None if kind == "single" else tuple(float(x) for x in frac),
+        seed=seed,
+        heuristic=None if kind == "single" else heuristic,
+        params=params,
+    )
+    return out, samples
+
+
+def _cosine_factor(d, frame: Frame) -> np.ndarray:
+    return np.maximum(np.sum(d * frame.normals, axis=1), 0.0)
+
+
+_GGX = GGXReflection()
+
+
+def _glossy_factor(d, frame: Frame) -> np.ndarray:
+    return _GGX.eval(d, frame) * _cosine_factor(d, frame)
+
+
+def _heuristic_params(spec: _Spec, beta: float, alpha: float) -> dict:
+    if spec.heuristic == "power":
+        return {"beta": beta}
+    if spec.heuristic == "cutoff":
+        return {"alpha": alpha}
+    return {}
+
+
+def _run(kind, table, frame, factor, estimator, spp, seed, fractions, table_method, beta, alpha,
+         return_samples, max_chunk_samples):
+    _check_table(table)
+    spec = _spec(estimator, kind)
+    strategies = [_strategy_for(r, kind, table, table_method) for r in spec.roles]
+    return estimate(table, frame, factor, strategies, kind=spec.kind, fractions=fractions, spp=spp, seed=seed,
+                    heuristic=spec.heuristic or "balance", params=_heuristic_params(spec, beta, alpha),
+                    name=estimator, return_samples=return_samples, max_chunk_samples=max_chunk_samples)
+
+
+def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: int = 64, seed=0,
+                        fractions=None, table_method: str = "alias", beta: float = 2.0, alpha: float = 0.1,
+                        return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
+    """Monte Carlo irradiance E(n) = integral of L(w) max(0, n.w) dw for each unit normal.
+
+    Parameters
+    ----------
+    table : EnvTable
+        Supplies the radiance (``eval``) and the table strategy (``sample``/``pdf``).
+    normals : array_like (N, 3) or (3,)
+        World-space normals in the table's convention (normalised here).
+    estimator : str
+        One of :func:`estimators` ("irradiance"); default "mis-balance".
+    spp : int
+        Samples per normal.
+    seed : int, SeedSequence or None
+        Seed of ``numpy.random.default_rng``; the same seed gives the same result bit for bit.
+    fractions : float or sequence, optional
+        MIS estimators only: share of table samples (multi-sample) or the table's
+        selection probability (one-sample); default 0.5.  A sequence gives
+        (table, bsdf) shares summing to 1.
+    table_method : {"alias", "inverse"}
+        How the table picks cells.
+    beta, alpha : float
+        Power-heuristic exponent (default 2) and cutoff threshold (default 0.1).
+    return_samples : bool
+        Also return :class:`EstimatorSamples` (per-sample luminance contributions).
+
+    Returns
+    -------
+    float64 (N, 3): irradiance per normal, in map units x sr (an estimate, not a
+    certified lighting calculation); plus the samples if requested.
+    """
+    frame = make_frame(normals)
+    return _run("irradiance", table, frame, _cosine_factor, estimator, spp, seed, fractions, table_method,
+                beta, alpha, return_samples, max_chunk_samples)
+
+
+def estimate_glossy(table, normals, wo, roughness, *, estimator: str = "mis-balance", spp: int = 64, seed=0,
+                    fractions=None, table_method: str = "alias", beta: float = 2.0, alpha: float = 0.1,
+                    return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
+    """Monte Carlo outgoing radiance of a GGX reflector lit by the map, per shading point.
+
+    ``L_o = integral of L(wi) f(wi, wo) max(0, n.wi) dwi`` with the GGX BSDF of
+    :class:`envsample.strategies.GGXReflection` (F = 1, height-correlated G2).
+    ``wo`` (N, 3) or (3,) are unit view directions pointing away from the surface;
+    ``roughness`` is GGX alpha, scalar or (N,).  Other parameters as
+    :func:`estimate_irradiance`; the "bsdf" strategy is GGX visible-normal sampling.
+    Returns float64 (N, 3) in map units (radiance).
+    """
+    frame = make_frame(normals, wo, roughness)
+    return _run("glossy", table, frame, _glossy_factor, estimator, spp, seed, fractions, table_method,
+                beta, alpha, return_samples, max_chunk_samples)
