@@ -165,6 +165,8 @@ def _angle(value, name: str, lo: float, hi: float) -> float:
 def _row_mu(height: int) -> tuple[np.ndarray, np.ndarray]:
     """cos(theta) at the top and bottom edge of every row (top > bottom), float64 (H,)."""
     mu = row_cos_edges(height)
+    # cos(pi/2) evaluates to 6e-17: snap it so the horizon edge of an even height is exact.
+    mu[np.abs(mu) < 1e-12] = 0.0
     return mu[:-1], mu[1:]
 
 
