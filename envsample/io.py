@@ -580,8 +580,10 @@ def _read_ldr(p: Path, fmt: str) -> MapImage:
         channels = channels.get(arr.shape[2])
     if channels is None:
         raise MapReadError(f"{p}: decoded to an array of shape {arr.shape}, not a single image; save one RGB image per file")
-    scale, pixel_type, is_hdr = _ldr_sample_type(p, arr.dtype)
-    values = arr.astype(np.float32) * np.float32(scale) if scale != 1.0 else arr.astype(np.float32)
+    full_scale, pixel_type, is_hdr = _ldr_sample_type(p, arr.dtype)
+    values = arr.astype(np.float32)
+    if full_scale != 1:
+        values /= np.float32(full_scale)  # a division keeps the top code value at exactly 1.0
     if arr.ndim == 2:
         rgb, alpha = np.repeat(values[..., None], 3, axis=-1), None
     elif channels[0] == "Y":
@@ -600,15 +602,16 @@ def _read_ldr(p: Path, fmt: str) -> MapImage:
     )
 
 
-def _ldr_sample_type(p: Path, dtype) -> tuple[float, str, bool]:
+def _ldr_sample_type(p: Path, dtype) -> tuple[int, str, bool]:
+    """(full-scale code value, pixel_type, is_hdr) of a decoded sample type."""
     if dtype == np.uint8:
-        return 1.0 / 255.0, "uint8", False
+        return 255, "uint8", False
     if dtype == np.uint16:
-        return 1.0 / 65535.0, "uint16", False
+        return 65535, "uint16", False
     if dtype == np.float16:
-        return 1.0, "half", True
+        return 1, "half", True
     if dtype in (np.float32, np.float64):
-        return 1.0, "float", True  # a floating-point TIFF holds real HDR values
+        return 1, "float", True  # a floating-point TIFF holds real HDR values
     raise MapReadError(f"{p}: unsupported sample type {dtype}; save it as 8/16-bit integer or float")
 
 
@@ -787,7 +790,8 @@ def _exr_writer(p: Path, arr: np.ndarray, pixel_type: str, compression: str, chr
     exr = _openexr()
     dtype = np.float16 if pixel_type == "half" else np.float32
     # ascontiguousarray: the bindings ignore strides and would write the parent buffer of a view.
-    data = np.ascontiguousarray(arr, dtype=dtype)
+    with np.errstate(over="ignore"):  # overflow to +Inf is detected and reported just below
+        data = np.ascontiguousarray(arr, dtype=dtype)
     if pixel_type == "half":
         overflow = int((np.isfinite(arr) & ~np.isfinite(data)).sum())
         if overflow:
