@@ -100,26 +100,23 @@ def build_row_cdfs(weights, *, row_scale=None, out=None) -> tuple[np.ndarray, np
         out = np.empty((h, n + 1), dtype=np.float32)
     totals = np.empty(h, dtype=np.float64)
     scale = None if row_scale is None else np.asarray(row_scale, dtype=np.float64)
-    step = max(1, _CHUNK_CELLS // n)
-    uniform = None
+    step = max(1, min(h, _CHUNK_CELLS // n))
+    buf = np.empty((step, n), dtype=np.float64)
+    uniform = (np.arange(n + 1) / n).astype(np.float32)
     for r0 in range(0, h, step):
         r1 = min(h, r0 + step)
-        c = np.cumsum(w[r0:r1], axis=1, dtype=np.float64)
-        t = c[:, -1].copy()
-        if scale is not None:
-            t *= scale[r0:r1]
-        totals[r0:r1] = t
-        last = c[:, -1:]
-        bad = ~(last[:, 0] > 0.0)
+        c = buf[: r1 - r0]
+        np.cumsum(w[r0:r1], axis=1, dtype=np.float64, out=c)
+        last = c[:, -1].copy()
+        totals[r0:r1] = last if scale is None else last * scale[r0:r1]
+        bad = ~(last > 0.0)
         if bad.any():
-            last = np.where(bad[:, None], 1.0, last)
-        np.divide(c, last, out=c)
+            last[bad] = 1.0
+        c *= (1.0 / last)[:, None]
         dst = out[r0:r1]
         dst[:, 0] = 0.0
         dst[:, 1:] = c
         if bad.any():
-            if uniform is None:
-                uniform = (np.arange(n + 1) / n).astype(np.float32)
             dst[bad] = uniform
         dst[:, -1] = 1.0
     return out, totals
@@ -254,17 +251,18 @@ def build_alias(weights, *, row_scale=None) -> tuple[np.ndarray, np.ndarray]:
         heavy_p.append(p[k])
     c = np.float64(n / psum)
     heavy = np.concatenate(heavy_idx)
-    hp = np.concatenate(heavy_p) * c
-    excess = np.cumsum(np.maximum(hp - 1.0, 0.0))
-    del heavy_idx, heavy_p, hp
+    del heavy_idx
+    excess = np.concatenate(heavy_p).astype(np.float64)
+    del heavy_p
+    excess *= c
+    excess -= 1.0
+    np.maximum(excess, 0.0, out=excess)
+    np.cumsum(excess, out=excess)
     nh = heavy.size
     if nh == 0:  # cannot happen for a finite positive total, but keep the table valid
         return prob, alias
-    heavy_prob = np.ones(nh, dtype=np.float64)
-    heavy_next = np.empty(nh, dtype=np.int32)
-    heavy_next[:-1] = heavy[1:]
-    heavy_next[-1] = heavy[-1]
-    resolved = np.zeros(nh, dtype=bool)
+    # Heavies start as buckets of their own (prob 1, alias self), which is also the
+    # right ending for any last heavy that rounding leaves unresolved.
 
     # Pass 2: lights (p < 1) in index order with their cumulative deficit D_i.
     d_before = 0.0
@@ -294,16 +292,12 @@ def build_alias(weights, *, row_scale=None) -> tuple[np.ndarray, np.ndarray]:
         cells = k + r0 * ncol
         prob[cells] = pl
         alias[cells] = heavy[served]
-        sel = np.arange(jlo, jhi)
-        heavy_prob[sel] = e - d_end[pos] + 1.0
-        resolved[sel] = True
+        if jhi > jlo:
+            # Heavy j keeps what is left of it and is aliased to the next heavy.
+            hj = heavy[jlo:jhi]
+            prob[hj] = np.clip(e - d_end[pos] + 1.0, 0.0, 1.0)
+            alias[hj] = heavy[jlo + 1 : min(nh, jhi + 1)] if jhi < nh else np.append(heavy[jlo + 1 : nh], heavy[nh - 1])
         d_before = float(d_end[-1])
-    # Rounding can leave the last heavies unresolved: they keep themselves (prob 1).
-    heavy_prob[~resolved] = 1.0
-    heavy_next[~resolved] = heavy[~resolved]
-    np.clip(heavy_prob, 0.0, 1.0, out=heavy_prob)
-    prob[heavy] = heavy_prob
-    alias[heavy] = heavy_next
     return prob, alias
 
 

@@ -377,10 +377,16 @@ def build_table(
     EnvTable
     """
     image, source = _as_image(rgb)
-    if not np.isfinite(image).all():
+    H, W = image.shape[:2]
+    # One float64 pass gives the per-channel integrals and detects NaN/Inf (they
+    # poison their row's sum); float32 data cannot overflow a float64 sum.
+    row_sa_full = row_solid_angles(H, W)
+    row_sums = image.sum(axis=1, dtype=np.float64)
+    if not np.isfinite(row_sums).all():
         raise MapValidationError("map has NaN or Inf pixels; repair them first (read with validate_map(repair=True))")
-    if (image < 0).any():
+    if image.min() < 0:
         raise MapValidationError("map has negative pixels; clamp them first (validate_map does)")
+    rgb_integral = (row_sums * row_sa_full[:, None]).sum(axis=0)
     primaries = canonical_primaries(primaries)
     if mapping not in MAPPINGS:
         raise ValueError(f"unknown mapping {mapping!r}; valid: {', '.join(MAPPINGS)}")
@@ -389,11 +395,6 @@ def build_table(
         raise ValueError(f"uniform_mix must be in [0, 1), got {uniform_mix}")
     size = parse_size(size)
     conv = convention(up, rotate_deg)
-    H, W = image.shape[:2]
-
-    # Per-channel integrals at full resolution (float64 accumulation).
-    row_sa_full = row_solid_angles(H, W)
-    rgb_integral = (image.sum(axis=1, dtype=np.float64) * row_sa_full[:, None]).sum(axis=0)
 
     lum = luminance(image, primaries)
     lum_integral_full = float(np.dot(lum.sum(axis=1, dtype=np.float64), row_sa_full))
