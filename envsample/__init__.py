@@ -27,6 +27,9 @@ _EXPORTS = {
     "MapImage": "io",
     "read_map": "io",
     "write_map": "io",
+    "validate_map": "io",
+    "supported_extensions": "io",
+    "MapWriteError": "errors",
     # sphere
     "uv_to_direction": "sphere",
     "direction_to_uv": "sphere",

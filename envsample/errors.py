@@ -12,6 +12,7 @@ __all__ = [
     "MapReadError",
     "MapValidationError",
     "TableFormatError",
+    "MapWriteError",
     "EnvsampleWarning",
 ]
 
@@ -26,6 +27,10 @@ class MapReadError(EnvsampleError):
 
 class MapValidationError(EnvsampleError):
     """A map was read but its pixels or shape are not acceptable (NaN/Inf, aspect, size, LDR)."""
+
+
+class MapWriteError(EnvsampleError):
+    """A map could not be written (missing folder, library failure, failed rename)."""
 
 
 class TableFormatError(EnvsampleError):

@@ -58,7 +58,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
+from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, MapWriteError
 
 __all__ = [
     "MapImage",
@@ -89,10 +89,6 @@ _EXR_MAGIC = b"\x76\x2f\x31\x01"
 _RADIANCE_MAGIC = b"#?"
 _RADIANCE_HEADER_LIMIT = 1 << 16
 _HASH_CHUNK = 1 << 20
-
-
-class MapWriteError(EnvsampleError):
-    """A map could not be written (missing directory, library failure, failed rename)."""
 
 
 @dataclass(eq=False)
