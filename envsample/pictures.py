@@ -1,0 +1,471 @@
+"""Every picture envsample makes: tone-mapped thumbnails, heat maps, convergence plots, PNG files.
+
+One small module so every report looks alike: a white background, plain
+sans-serif labels, perceptually uniform colour maps, and no decoration beyond
+what a reader needs.  matplotlib (Agg, no display) is imported inside the
+functions that draw, so ``import envsample`` stays cheap.
+
+Public objects
+--------------
+``srgb_encode``             IEC 61966-2-1 transfer function (linear -> encoded), float.
+``log_average_luminance``   Reinhard et al. (2002) eq. 1 over the non-black pixels.
+``tonemap``                 HDR linear RGB -> uint8 sRGB, auto or fixed exposure.
+``thumbnail``               area-averaged downsampling, then :func:`tonemap`.
+``encode_png`` / ``write_png``  PNG bytes / atomic PNG file (temp file + ``os.replace``).
+``heatmap_figure``          side-by-side panels sharing one labelled colour bar.
+``convergence_plot``        log-log error against samples with an N^-1/2 guide.
+``mark_points``             ring markers (e.g. a detected sun) on a uint8 picture.
+``png_data_uri``            ``data:image/png;base64,...`` for self-contained HTML.
+
+Conventions: input images are linear RGB float ``(H, W, 3)`` (any float dtype),
+pictures are uint8 ``(H, W, 3)``; lat-long panels follow :mod:`envsample.sphere`
+(left edge azimuth -180 deg, right edge +180 deg, top row elevation +90 deg).
+
+References
+----------
+- Reinhard, E., Stark, M., Shirley, P. and Ferwerda, J. (2002). Photographic tone
+  reproduction for digital images. ACM Transactions on Graphics 21(3), 267-276
+  (SIGGRAPH 2002).  Eq. 1 (log-average luminance), eq. 2 (key scaling, key 0.18),
+  eq. 3 (the simple global operator L / (1 + L)).
+- IEC 61966-2-1:1999. Multimedia systems and equipment - Colour measurement and
+  management - Part 2-1: Colour management - Default RGB colour space - sRGB.
+- ISO/IEC 15948:2004. Portable Network Graphics (PNG) specification (file signature).
+- Smith, N. and van der Walt, S. (2015). A better default colormap for matplotlib.
+  SciPy 2015 (the perceptually uniform "magma" and "viridis" maps).
+"""
+
+from __future__ import annotations
+
+import base64
+import io
+import math
+import os
+import tempfile
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+
+import numpy as np
+
+from .color import luminance
+
+__all__ = [
+    "DEFAULT_KEY",
+    "TONE_CURVES",
+    "srgb_encode",
+    "log_average_luminance",
+    "tonemap",
+    "thumbnail",
+    "encode_png",
+    "write_png",
+    "heatmap_figure",
+    "convergence_plot",
+    "mark_points",
+    "png_data_uri",
+]
+
+#: Key value of an average scene (Reinhard et al. 2002, section 3.1): 0.18.
+DEFAULT_KEY = 0.18
+
+_PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948, section 5.2
+_DPI = 110
+# Our own series colours and markers for plots (dark enough to read on white).
+_SERIES_COLORS = ("#2b5d9c", "#c8552b", "#3f8f4f", "#7d4ea6", "#a88416", "#b23a62", "#4b8b9b", "#5a5a5a")
+_SERIES_MARKERS = ("o", "s", "^", "D", "v", "P", "X", "h")
+_STYLE = {
+    "font.family": "sans-serif",
+    "font.size": 9.0,
+    "axes.titlesize": 10.0,
+    "axes.labelsize": 9.0,
+    "axes.edgecolor": "#404040",
+    "axes.linewidth": 0.8,
+    "axes.facecolor": "white",
+    "figure.facecolor": "white",
+    "savefig.facecolor": "white",
+    "xtick.color": "#303030",
+    "ytick.color": "#303030",
+    "legend.frameon": True,
+    "legend.edgecolor": "#c0c0c0",
+    "legend.fontsize": 8.0,
+}
+
+
+# ---------------------------------------------------------------------------
+# tone mapping
+# ---------------------------------------------------------------------------
+
+def srgb_encode(linear) -> np.ndarray:
+    """sRGB transfer function of IEC 61966-2-1: linear [0, 1] -> encoded [0, 1], float64.
+
+    ``12.92 * L`` for ``L <= 0.0031308``, else ``1.055 * L**(1/2.4) - 0.055``.
+    Inputs are clipped to [0, 1] first; NaN becomes 0.
+    """
+    x = np.nan_to_num(np.asarray(linear, dtype=np.float64), nan=0.0, posinf=1.0, neginf=0.0)
+    x = np.clip(x, 0.0, 1.0)
+    return np.where(x <= 0.0031308, 12.92 * x, 1.055 * np.power(x, 1.0 / 2.4) - 0.055)
+
+
+def _clean(rgb) -> np.ndarray:
+    arr = np.asarray(rgb)
+    if arr.ndim < 1 or arr.shape[-1] != 3:
+        raise ValueError(f"image must have shape (..., 3) linear RGB, got {arr.shape}")
+    if not np.issubdtype(arr.dtype, np.floating):
+        raise ValueError(f"image must be float linear RGB for tone mapping, got dtype {arr.dtype}")
+    # Pictures must never fail on bad pixels: NaN shows black, +Inf the brightest value.
+    out = np.nan_to_num(arr.astype(np.float32, copy=True), nan=0.0, posinf=np.finfo(np.float32).max, neginf=0.0)
+    np.maximum(out, 0.0, out=out)
+    return out
+
+
+def log_average_luminance(rgb, *, delta: float = 1e-6) -> float:
+    """Reinhard et al. (2002) eq. 1: ``exp(mean(log(delta + Y)))`` of the BT.709 luminance Y.
+
+    Pixels of zero (or non-finite) luminance are left out: a black ground or a
+    masked region would otherwise drive the exposure up without bound (a
+    deviation from the paper, which averages every pixel).  Returns 0.0 when no
+    pixel has positive luminance.
+    """
+    y = luminance(_clean(rgb)).astype(np.float64).ravel()
+    y = y[np.isfinite(y) & (y > 0)]
+    if y.size == 0:
+        return 0.0
+    return float(np.exp(np.mean(np.log(delta + y))))
+
+
+def _curve_clip(scaled: np.ndarray, y: np.ndarray) -> np.ndarray:
+    return scaled
+
+
+def _curve_reinhard(scaled: np.ndarray, y: np.ndarray) -> np.ndarray:
+    # Eq. 3 on luminance, L_d = L / (1 + L), applied as a per-pixel gain so hue is kept.
+    return scaled / (1.0 + y)[..., None]
+
+
+#: Tone curves after exposure: "clip" (none, values above 1 clip) and "reinhard" (eq. 3).
+TONE_CURVES = {"clip": _curve_clip, "reinhard": _curve_reinhard}
+
+
+def tonemap(rgb, *, exposure: float | None = None, key: float = DEFAULT_KEY, curve: str = "reinhard") -> np.ndarray:
+    """Linear HDR RGB ``(..., 3)`` -> uint8 sRGB ``(..., 3)``.
+
+    Parameters
+    ----------
+    exposure : float or None
+        ``None``: scale so the log-average luminance (:func:`log_average_luminance`)
+        maps to ``key`` (Reinhard et al. 2002, eq. 2).  A number: a fixed gain of
+        ``2**exposure`` (stops), independent of the image.
+    key : float
+        Target of the auto exposure (default 0.18, the paper's "normal" key).
+    curve : {"reinhard", "clip"}
+        Compression after exposure (:data:`TONE_CURVES`).
+
+    NaN pixels show black and negative values are clamped to 0; the result is
+    then encoded with the sRGB transfer function (IEC 61966-2-1) and rounded.
+    """
+    fn = TONE_CURVES.get(str(curve).lower())
+    if fn is None:
+        raise ValueError(f"unknown tone curve {curve!r}; valid: {', '.join(TONE_CURVES)}")
+    img = _clean(rgb)
+    if exposure is None:
+        if not (key > 0 and math.isfinite(key)):
+            raise ValueError(f"key must be a positive number, got {key!r}")
+        avg = log_average_luminance(img)
+        gain = key / avg if avg > 0 else 1.0
+    else:
+        gain = 2.0 ** float(exposure)
+        if not math.isfinite(gain):
+            raise ValueError(f"exposure must be a finite number of stops, got {exposure!r}")
+    scaled = img.astype(np.float64) * gain
+    y = luminance(np.minimum(scaled, np.finfo(np.float32).max).astype(np.float32)).astype(np.float64)
+    mapped = fn(scaled, y)
+    return np.rint(srgb_encode(mapped) * 255.0).astype(np.uint8)
+
+
+def thumbnail(rgb, *, width: int = 512, exposure: float | None = None, curve: str = "reinhard") -> np.ndarray:
+    """Downsample a linear map by an integer box filter to about ``width`` columns, then tone-map.
+
+    Averaging happens in linear light before tone mapping, so a small bright sun
+    still shows in the thumbnail.  Returns uint8 ``(h, w, 3)``.
+    """
+    img = _clean(rgb)
+    if img.ndim != 3:
+        raise ValueError(f"image must have shape (H, W, 3), got {img.shape}")
+    if int(width) != width or width < 1:
+        raise ValueError(f"thumbnail width must be a positive integer, got {width!r}")
+    f = max(1, img.shape[1] // int(width))
+    if f > 1:
+        h, w = (img.shape[0] // f) * f, (img.shape[1] // f) * f
+        img = img[:h, :w].reshape(h // f, f, w // f, f, 3).mean(axis=(1, 3), dtype=np.float64).astype(np.float32)
+    return tonemap(img, exposure=exposure, curve=curve)
+
+
+# ---------------------------------------------------------------------------
+# PNG files
+# ---------------------------------------------------------------------------
+
+def _as_picture(image) -> np.ndarray:
+    arr = np.asarray(image)
+    if np.issubdtype(arr.dtype, np.floating):
+        return tonemap(arr)
+    if arr.dtype != np.uint8:
+        raise ValueError(f"picture must be uint8 or float linear RGB, got dtype {arr.dtype}")
+    if arr.ndim not in (2, 3) or (arr.ndim == 3 and arr.shape[2] not in (1, 3, 4)):
+        raise ValueError(f"picture must have shape (H, W), (H, W, 3) or (H, W, 4), got {arr.shape}")
+    return np.ascontiguousarray(arr)
+
+
+def encode_png(image) -> bytes:
+    """PNG bytes of a uint8 picture, or of a float linear RGB image after :func:`tonemap`."""
+    import imageio.v3 as iio
+
+    return iio.imwrite("<bytes>", _as_picture(image), extension=".png")
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _atomic_write(path, data: bytes) -> Path:
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        # mkstemp creates 0600 files; give the picture the permissions of an ordinary new file.
+        os.chmod(tmp, 0o666 & ~_umask())
+        os.replace(tmp, path)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def write_png(path, image) -> Path:
+    """Write a PNG atomically (temporary file in the same folder, then ``os.replace``).
+
+    ``image`` is uint8 ``(H, W)``, ``(H, W, 3)`` or ``(H, W, 4)``, or a float linear
+    RGB image, which is tone-mapped with :func:`tonemap` defaults.  Returns the path.
+    """
+    return _atomic_write(path, encode_png(image))
+
+
+def _save_figure(fig, path) -> Path:
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    FigureCanvasAgg(fig)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=_DPI, facecolor="white")
+    return _atomic_write(path, buf.getvalue())
+
+
+def png_data_uri(path_or_array) -> str:
+    """``data:image/png;base64,...`` of a PNG file, or of an array encoded by :func:`encode_png`."""
+    if isinstance(path_or_array, np.ndarray):
+        data = encode_png(path_or_array)
+    else:
+        p = Path(path_or_array)
+        try:
+            data = p.read_bytes()
+        except OSError as exc:
+            raise ValueError(f"{p}: cannot read the picture ({exc.strerror or exc}); check the path") from None
+        if not data.startswith(_PNG_SIGNATURE):
+            raise ValueError(f"{p}: not a PNG file (bad signature); write it with write_png")
+    return "data:image/png;base64," + base64.b64encode(data).decode("ascii")
+
+
+# ---------------------------------------------------------------------------
+# figures
+# ---------------------------------------------------------------------------
+
+def _norm_limits(arrays: list[np.ndarray], vmin, vmax, log: bool) -> tuple[float, float]:
+    vals = np.concatenate([a[np.isfinite(a)].ravel() for a in arrays])
+    if log:
+        vals = vals[vals > 0]
+    lo = float(vmin) if vmin is not None else (float(vals.min()) if vals.size else (1e-3 if log else 0.0))
+    hi = float(vmax) if vmax is not None else (float(vals.max()) if vals.size else 1.0)
+    if log and lo <= 0:
+        raise ValueError(f"vmin must be > 0 for a log colour scale, got {lo!r}")
+    if not hi > lo:
+        # A constant panel still needs a range for the colour bar.
+        hi = lo * 10.0 if log else lo + max(abs(lo), 1.0) * 1e-3
+    return lo, hi
+
+
+def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = None, vmax: float | None = None,
+                   log: bool = False, cmap: str = "magma", latlong: bool | None = None,
+                   rotate_deg: float = 0.0, title: str | None = None) -> Path:
+    """Panels side by side sharing one labelled colour bar, saved as PNG; returns the path.
+
+    Parameters
+    ----------
+    panels : list of (title, 2D array)
+        Values to show; NaN/Inf pixels are drawn light grey.
+    label : str
+        Colour bar label, with units (e.g. "relative error" or "pdf (1/sr)").
+    vmin, vmax : float, optional
+        Shared colour range; default the finite range over all panels (positive range if ``log``).
+    log : bool
+        Logarithmic colour scale (non-positive values drawn as "bad").
+    cmap : str
+        A perceptually uniform matplotlib colour map ("magma" default, "viridis", ...).
+    latlong : bool or None
+        Label axes in azimuth/elevation degrees; ``None`` decides from a 2:1 shape.
+    rotate_deg : float
+        Azimuth of the image centre, degrees, for the axis labels of lat-long panels.
+    """
+    from matplotlib import colors as mcolors
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+    import matplotlib
+
+    if not panels:
+        raise ValueError("heatmap_figure needs at least one (title, 2D array) panel")
+    items = []
+    for k, panel in enumerate(panels):
+        try:
+            name, data = panel
+        except (TypeError, ValueError):
+            raise ValueError(f"panels[{k}] must be a (title, 2D array) pair") from None
+        arr = np.asarray(data, dtype=np.float64)
+        if arr.ndim != 2 or arr.size == 0:
+            raise ValueError(f"panels[{k}] ({name}) must be a non-empty 2D array, got shape {arr.shape}")
+        items.append((str(name), arr))
+    lo, hi = _norm_limits([a for _, a in items], vmin, vmax, log)
+    norm = mcolors.LogNorm(vmin=lo, vmax=hi) if log else mcolors.Normalize(vmin=lo, vmax=hi)
+    colormap = matplotlib.colormaps[cmap].with_extremes(bad="#d4d4d4")
+
+    n = len(items)
+    aspect = max(a.shape[1] / a.shape[0] for _, a in items)
+    panel_w = 4.2 if aspect >= 1.5 else 3.0
+    panel_h = max(1.6, panel_w / aspect) + 0.7
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(panel_w * n + 1.1, panel_h + (0.3 if title else 0.0)), layout="constrained")
+        axes = fig.subplots(1, n, squeeze=False)[0]
+        image = None
+        for i, (ax, (name, arr)) in enumerate(zip(axes, items)):
+            is_ll = latlong if latlong is not None else arr.shape[1] == 2 * arr.shape[0]
+            shown = np.where(np.isfinite(arr) & ((arr > 0) if log else True), arr, np.nan)
+            if is_ll:
+                extent = (-180.0 + rotate_deg, 180.0 + rotate_deg, -90.0, 90.0)
+                image = ax.imshow(shown, cmap=colormap, norm=norm, extent=extent, origin="upper",
+                                  interpolation="nearest", aspect="equal")
+                ax.set_xticks(np.arange(-180.0, 181.0, 90.0) + rotate_deg)
+                ax.set_yticks(np.arange(-90.0, 91.0, 45.0))
+                ax.set_xlabel("azimuth (deg)")
+                if i == 0:
+                    ax.set_ylabel("elevation (deg)")
+            else:
+                image = ax.imshow(shown, cmap=colormap, norm=norm, interpolation="nearest", aspect="equal")
+                ax.set_xlabel("column")
+                if i == 0:
+                    ax.set_ylabel("row")
+            ax.set_title(name)
+        bar = fig.colorbar(image, ax=list(axes), shrink=0.9, pad=0.02)
+        bar.set_label(label)
+        if title:
+            fig.suptitle(title)
+        return _save_figure(fig, path)
+
+
+def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path, title: str | None = None,
+                     xlabel: str = "samples per pixel", ylabel: str = "relative RMSE",
+                     reference: bool = True) -> Path:
+    """Log-log plot of error against sample count, one marked line per series; returns the path.
+
+    ``series`` maps a name to errors at each of ``spp_values`` (same length);
+    non-positive or non-finite errors are left out of the plot (e.g. an exact
+    zero).  With ``reference`` a dashed ``N^-1/2`` line (the Monte Carlo rate of
+    an unbiased estimator with finite variance, textbook) passes through the
+    first plotted point of the first series.
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    x = np.asarray(spp_values, dtype=np.float64).ravel()
+    if x.size == 0 or not np.all(np.isfinite(x) & (x > 0)):
+        raise ValueError("spp_values must be a non-empty list of positive sample counts")
+    if not series:
+        raise ValueError("convergence_plot needs at least one series")
+    data = {}
+    for name, ys in series.items():
+        y = np.asarray(ys, dtype=np.float64).ravel()
+        if y.shape != x.shape:
+            raise ValueError(f"series {name!r} has {y.size} values for {x.size} spp_values; give one error per count")
+        data[str(name)] = np.where(np.isfinite(y) & (y > 0), y, np.nan)
+
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(5.6, 4.0), layout="constrained")
+        ax = fig.subplots()
+        anchor = None
+        for k, (name, y) in enumerate(data.items()):
+            ok = np.isfinite(y)
+            ax.plot(x[ok], y[ok], marker=_SERIES_MARKERS[k % len(_SERIES_MARKERS)],
+                    color=_SERIES_COLORS[k % len(_SERIES_COLORS)], linewidth=1.4, markersize=5, label=name)
+            if anchor is None and ok.any():
+                i0 = int(np.flatnonzero(ok)[0])
+                anchor = (x[i0], y[i0])
+        if reference and anchor is not None:
+            xs = np.array([x.min(), x.max()])
+            ax.plot(xs, anchor[1] * np.sqrt(anchor[0] / xs), linestyle="--", color="#808080",
+                    linewidth=1.0, label=r"$N^{-1/2}$ reference")
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel(ylabel)
+        ax.grid(True, which="major", color="#e2e2e2", linewidth=0.7)
+        ax.grid(True, which="minor", color="#f0f0f0", linewidth=0.5)
+        ax.legend(loc="best")
+        if title:
+            ax.set_title(title)
+        return _save_figure(fig, path)
+
+
+# ---------------------------------------------------------------------------
+# markers
+# ---------------------------------------------------------------------------
+
+def mark_points(image, uv_points, *, color=(0, 210, 255), radius: float = 6.0, thickness: float = 2.0,
+                outline=(0, 0, 0), wrap: bool = True) -> np.ndarray:
+    """Draw a ring around each ``(u, v)`` point (image coordinates in [0, 1]) on a copy of a uint8 picture.
+
+    ``u`` maps to column ``u * W`` and ``v`` to row ``v * H`` (pixel centres at
+    half-integers, the convention of :mod:`envsample.sphere`).  The ring has
+    radius ``radius`` and width ``thickness`` pixels, with a one-pixel
+    ``outline`` on both sides (``None`` for none) so it shows on bright and dark
+    skies alike.  ``wrap`` lets rings cross the left/right seam of a lat-long picture.
+    """
+    img = np.asarray(image)
+    if img.dtype != np.uint8 or img.ndim != 3 or img.shape[2] != 3:
+        raise ValueError(f"mark_points needs a uint8 (H, W, 3) picture, got {img.dtype} {img.shape}; use tonemap first")
+    pts = np.asarray(uv_points, dtype=np.float64).reshape(-1, 2)
+    if not np.all(np.isfinite(pts)):
+        raise ValueError("uv_points must be finite (u, v) pairs")
+    if not (radius > 0 and thickness > 0):
+        raise ValueError(f"radius and thickness must be positive, got {radius!r}, {thickness!r}")
+    out = img.copy()
+    h, w = img.shape[:2]
+    ring_rgb = np.asarray(color, dtype=np.uint8)
+    line_rgb = None if outline is None else np.asarray(outline, dtype=np.uint8)
+    reach = radius + thickness / 2.0 + 1.5
+    for u, v in pts:
+        cx, cy = u * w, v * h
+        rows = np.arange(max(0, int(cy - reach)), min(h, int(cy + reach) + 2))
+        if wrap:
+            cols = np.arange(int(cx - reach), int(cx + reach) + 2) % w
+            cols = np.unique(cols)
+            dx = (cols + 0.5 - cx + w / 2.0) % w - w / 2.0
+        else:
+            cols = np.arange(max(0, int(cx - reach)), min(w, int(cx + reach) + 2))
+            dx = cols + 0.5 - cx
+        if rows.size == 0 or cols.size == 0:
+            continue
+        dy = rows + 0.5 - cy
+        off = np.abs(np.hypot(dy[:, None], dx[None, :]) - radius)
+        block = out[np.ix_(rows, cols)]
+        if line_rgb is not None:
+            block[(off > thickness / 2.0) & (off <= thickness / 2.0 + 1.0)] = line_rgb
+        block[off <= thickness / 2.0] = ring_rgb
+        out[np.ix_(rows, cols)] = block
+    return out
