@@ -120,7 +120,7 @@ def direction_to_uv(d, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.nd
     """Image coordinates ``(u, v)`` of directions; the inverse of :func:`uv_to_direction`.
 
     ``d`` is array_like of shape ``(..., 3)``; it need not be normalised (zero
-    vectors map to u = 0.5, v = 0.5).  ``u`` is wrapped into [0, 1), ``v`` lies in [0, 1].
+    vectors map to u = 0.5, v = 0, the up axis).  ``u`` is wrapped into [0, 1), ``v`` lies in [0, 1].
     Returns two float64 arrays of shape ``d.shape[:-1]``.
     """
     d = np.asarray(d, dtype=np.float64)
