@@ -1,0 +1,146 @@
+"""Tests of envsample.color and the luminance constants in envsample.constants.
+
+External references used here:
+- colour-science (the ``colour`` package): ``colour.RGB_COLOURSPACES[name].matrix_RGB_to_XYZ``,
+  whose second row is the luminance (Y) row of each RGB space, and ``colour.RGB_to_XYZ``.
+  colour-science derives its matrices from the published primaries: ITU-R BT.709-6,
+  ITU-R BT.2020-2, Academy S-2014-004 (ACEScg / AP1) and SMPTE ST 2065-1 (ACES2065-1 / AP0).
+- SMPTE RP 177-1993: the normalised primary matrix maps the white point to Y = 1, so
+  the luminance weights of every space sum to 1.
+
+Choice documented and tested here: envsample uses the BT.709 Y row *derived* from the
+primaries (0.212639, 0.715169, 0.072192), i.e. colour-science's "ITU-R BT.709" entry,
+not its "sRGB" entry, which carries the four-decimal rounding (0.2126, 0.7152, 0.0722)
+printed in IEC 61966-2-1.  The two differ in the fourth decimal place.
+"""
+
+from __future__ import annotations
+
+import colour
+import numpy as np
+import pytest
+
+from envsample.color import PRIMARY_NAMES, canonical_primaries, luminance
+from envsample.constants import PRIMARIES, luminance_weights
+
+#: envsample primaries name -> colour-science colourspace name.
+COLOUR_SPACES = {
+    "bt709": "ITU-R BT.709",
+    "bt2020": "ITU-R BT.2020",
+    "acescg": "ACEScg",
+    "aces2065-1": "ACES2065-1",
+}
+
+#: colour-science computes the same normalised primary matrix in float64; only rounding differs.
+WEIGHT_RTOL = 1e-9
+#: luminance() works in float32 (images are float32): about 2**-24 relative per operation.
+FLOAT32_RTOL = 2e-6
+
+
+@pytest.mark.parametrize("name, space", sorted(COLOUR_SPACES.items()))
+def test_luminance_weights_match_colour_science(name, space):
+    """Y row of colour-science's RGB-to-XYZ matrix (colour.RGB_COLOURSPACES[space].matrix_RGB_to_XYZ[1])."""
+    expected = colour.RGB_COLOURSPACES[space].matrix_RGB_to_XYZ[1]
+    np.testing.assert_allclose(luminance_weights(name), expected, rtol=WEIGHT_RTOL, atol=1e-12)
+
+
+@pytest.mark.parametrize("name", sorted(COLOUR_SPACES))
+def test_luminance_weights_sum_to_one(name):
+    """SMPTE RP 177-1993: the white point (R = G = B = 1) has Y = 1."""
+    assert luminance_weights(name).sum() == pytest.approx(1.0, abs=1e-12)
+
+
+def test_bt709_uses_derived_row_not_rounded_srgb_row():
+    """We use the derived BT.709 row (colour-science "ITU-R BT.709": 0.212639, 0.715169, 0.072192),
+    not colour-science's rounded "sRGB" row (0.2126, 0.7152, 0.0722).  They agree when rounded to
+    four decimals but differ in the fourth decimal place (largest difference ~4e-5)."""
+    derived = colour.RGB_COLOURSPACES["ITU-R BT.709"].matrix_RGB_to_XYZ[1]
+    rounded = colour.RGB_COLOURSPACES["sRGB"].matrix_RGB_to_XYZ[1]
+    ours = luminance_weights("bt709")
+    np.testing.assert_allclose(ours, [0.212639, 0.715169, 0.072192], atol=5e-7)
+    np.testing.assert_allclose(rounded, [0.2126, 0.7152, 0.0722], atol=1e-12)
+    diff = np.abs(ours - rounded)
+    assert diff.max() < 5e-5  # same to four decimals ...
+    assert diff.max() > 1e-5  # ... but not the same numbers: the difference is in the fourth decimal
+    np.testing.assert_array_equal(np.round(ours, 4), rounded)
+    np.testing.assert_allclose(ours, derived, rtol=WEIGHT_RTOL)
+    # The "srgb" alias shares the BT.709 primaries, so it gets the derived row too.
+    np.testing.assert_array_equal(luminance_weights("srgb"), ours)
+    # The difference is visible in float32 luminance of a pure red pixel.
+    y_red = luminance(np.array([1.0, 0.0, 0.0], dtype=np.float32))
+    assert y_red == pytest.approx(derived[0], rel=FLOAT32_RTOL)
+    assert abs(float(y_red) - 0.2126) > 10 * np.finfo(np.float32).eps
+
+
+@pytest.mark.parametrize("name, space", sorted(COLOUR_SPACES.items()))
+def test_luminance_of_images_matches_colour_rgb_to_xyz(name, space, rng):
+    """luminance() equals the Y channel of colour.RGB_to_XYZ (no chromatic adaptation, the space's own
+    white point) on a random HDR image, clamped at zero."""
+    cs = colour.RGB_COLOURSPACES[space]
+    rgb = (rng.random((12, 24, 3)) ** 3 * 50.0).astype(np.float32)
+    xyz = colour.RGB_to_XYZ(
+        rgb.astype(np.float64), cs, illuminant=cs.whitepoint, chromatic_adaptation_transform=None
+    )
+    expected = np.maximum(xyz[..., 1], 0.0)
+    got = luminance(rgb, name)
+    assert got.dtype == np.float32 and got.shape == (12, 24)
+    np.testing.assert_allclose(got, expected, rtol=FLOAT32_RTOL, atol=1e-6)
+
+
+def test_aces2065_negative_blue_weight_is_clamped_at_zero():
+    """colour-science's ACES2065-1 Y row has a negative blue weight (about -0.0721): saturated blue
+    would give negative luminance; envsample clamps it at zero (color.luminance docstring)."""
+    w = colour.RGB_COLOURSPACES["ACES2065-1"].matrix_RGB_to_XYZ[1]
+    assert w[2] < 0
+    rgb = np.array([[0.0, 0.0, 1.0], [0.1, 0.0, 1.0], [1.0, 1.0, 1.0], [0.0, 0.2, 1.0]], dtype=np.float32)
+    raw = rgb.astype(np.float64) @ w
+    assert raw[0] < 0 and raw[1] < 0 and raw[3] > 0
+    got = luminance(rgb, "aces2065-1")
+    np.testing.assert_array_equal(got[:2], [0.0, 0.0])
+    assert got[2] == pytest.approx(1.0, rel=FLOAT32_RTOL)
+    assert got[3] == pytest.approx(raw[3], rel=FLOAT32_RTOL)
+    assert np.all(got >= 0)
+
+
+def test_max_and_mean_primaries(rng):
+    """'max' and 'mean' weight by the largest channel and the channel mean (common practice)."""
+    rgb = rng.random((5, 7, 3)).astype(np.float32)
+    np.testing.assert_array_equal(luminance(rgb, "max"), rgb.max(axis=-1))
+    np.testing.assert_allclose(luminance(rgb, "mean"), rgb.mean(axis=-1), rtol=FLOAT32_RTOL)
+
+
+def test_shapes_scalar_vector_grid(rng):
+    """(3,) -> (), (N, 3) -> (N,), (H, W, 3) -> (H, W); float32 out for float64 or float32 in."""
+    assert luminance(np.ones(3)).shape == ()
+    assert luminance(rng.random((9, 3))).shape == (9,)
+    out = luminance(rng.random((4, 6, 3)))
+    assert out.shape == (4, 6) and out.dtype == np.float32
+    with pytest.raises(ValueError, match=r"rgb must have shape \(\.\.\., 3\)"):
+        luminance(np.ones((4, 4)))
+
+
+def test_nan_is_not_hidden():
+    """A NaN pixel stays NaN (it is rejected or repaired by map validation, not silently zeroed here)."""
+    assert np.isnan(luminance(np.array([np.nan, 1.0, 1.0], dtype=np.float32)))
+
+
+@pytest.mark.parametrize("alias, canonical", [("sRGB", "bt709"), ("rec709", "bt709"), ("Rec2020", "bt2020"),
+                                              ("AP1", "acescg"), ("ap0", "aces2065-1"), ("BT709", "bt709")])
+def test_aliases(alias, canonical):
+    assert canonical_primaries(alias) == canonical
+    np.testing.assert_array_equal(luminance_weights(alias), luminance_weights(canonical))
+
+
+def test_unknown_primaries_error_lists_valid_names():
+    with pytest.raises(ValueError, match=r"unknown primaries 'p3'; valid names: .*bt709.*aces2065-1.*max.*mean"):
+        luminance(np.ones(3), "p3")
+    with pytest.raises(ValueError, match=r"unknown primaries 'dci'; valid names: .*bt2020.*srgb"):
+        luminance_weights("dci")
+    with pytest.raises(ValueError, match="unknown primaries"):
+        canonical_primaries("")
+
+
+def test_every_listed_name_works():
+    for name in PRIMARY_NAMES:
+        assert luminance(np.full(3, 2.0, dtype=np.float32), name) == pytest.approx(2.0, rel=FLOAT32_RTOL)
+    assert set(PRIMARIES) == set(COLOUR_SPACES)
