@@ -198,6 +198,8 @@ class EnvTable:
         self._cos_edges = row_cos_edges(self.table_height)
         self._rot = math.radians(self.rotate_deg)
         self._frame = _frame(self.up)
+        self._axes = _axis_map(self._frame)
+        self._flat_pdf = self.cell_pdf.reshape(-1)
 
     # ------------------------------------------------------------------ facts
     @property
@@ -252,20 +254,23 @@ class EnvTable:
         np.clip(fu, _EDGE, 1.0 - _EDGE, out=fu)
         fv = np.clip(fv, _EDGE, 1.0 - _EDGE)
         h, w = self.table_height, self.table_width
-        phi = (2.0 * math.pi / w) * (col + fu) - math.pi + self._rot
+        cells = row * w + col
+        phi = col + fu
+        phi *= 2.0 * math.pi / w
+        phi += self._rot - math.pi
+        pdf = self._flat_pdf[cells].astype(np.float64)
         if self.mapping == "equal-area":
             c0 = self._cos_edges[row]
-            c1 = self._cos_edges[row + 1]
-            cos_t = c0 - fv * (c0 - c1)
+            cos_t = self._cos_edges[row + 1] - c0
+            cos_t *= fv
+            cos_t += c0
             sin_t = np.sqrt(np.maximum(0.0, (1.0 - cos_t) * (1.0 + cos_t)))
-            pdf = self.cell_pdf[row, col].astype(np.float64)
         else:
             theta = (math.pi / h) * (row + fv)
             cos_t, sin_t = np.cos(theta), np.sin(theta)
-            p = self.cell_pdf[row, col].astype(np.float64) * self._row_sa[row]
-            pdf = p * (h * w) / (2.0 * math.pi**2 * sin_t)
-        d = _directions(sin_t * np.cos(phi), sin_t * np.sin(phi), cos_t, self._frame)
-        cells = (row * w + col).astype(np.int64)
+            pdf *= self._row_sa[row] * (h * w / (2.0 * math.pi**2))
+            pdf /= sin_t
+        d = _directions(sin_t * np.cos(phi), sin_t * np.sin(phi), cos_t, self._axes)
         return Samples(directions=d, pdf=pdf, cells=cells, _table=self)
 
     def cells_of(self, directions) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -315,11 +320,29 @@ class EnvTable:
         }
 
 
-def _directions(cf, cr, ca, frame) -> np.ndarray:
-    f, r, a = frame
-    out = np.empty(cf.shape + (3,), dtype=np.float64)
+def _axis_map(frame) -> list[tuple[int, float]]:
+    """For each world axis, which of (forward, right, up) lies along it and with which sign.
+
+    The supported frames are axis-aligned, so a direction is assembled by placing
+    its three frame components, not by a 3x3 product.
+    """
+    out = []
     for k in range(3):
-        out[:, k] = cf * f[k] + cr * r[k] + ca * a[k]
+        which = [i for i in range(3) if frame[i][k] != 0.0]
+        if len(which) != 1:
+            raise ValueError("frame is not axis-aligned")
+        out.append((which[0], float(frame[which[0]][k])))
+    return out
+
+
+def _directions(cf, cr, ca, axes) -> np.ndarray:
+    comps = (cf, cr, ca)
+    out = np.empty(cf.shape + (3,), dtype=np.float64)
+    for k, (i, sign) in enumerate(axes):
+        if sign > 0:
+            out[:, k] = comps[i]
+        else:
+            np.negative(comps[i], out=out[:, k])
     return out
 
 
