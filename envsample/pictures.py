@@ -280,17 +280,38 @@ def png_data_uri(path_or_array) -> str:
 # ---------------------------------------------------------------------------
 
 def _norm_limits(arrays: list[np.ndarray], vmin, vmax, log: bool) -> tuple[float, float]:
-    vals = np.concatenate([a[np.isfinite(a)].ravel() for a in arrays])
-    if log:
-        vals = vals[vals > 0]
-    lo = float(vmin) if vmin is not None else (float(vals.min()) if vals.size else (1e-3 if log else 0.0))
-    hi = float(vmax) if vmax is not None else (float(vals.max()) if vals.size else 1.0)
+    lows, highs = [], []
+    for a in arrays:
+        ok = np.isfinite(a) & (a > 0) if log else np.isfinite(a)
+        if ok.any():
+            lows.append(float(np.min(a, where=ok, initial=np.inf)))
+            highs.append(float(np.max(a, where=ok, initial=-np.inf)))
+    lo = float(vmin) if vmin is not None else (min(lows) if lows else (1e-3 if log else 0.0))
+    hi = float(vmax) if vmax is not None else (max(highs) if highs else 1.0)
     if log and lo <= 0:
         raise ValueError(f"vmin must be > 0 for a log colour scale, got {lo!r}")
     if not hi > lo:
         # A constant panel still needs a range for the colour bar.
         hi = lo * 10.0 if log else lo + max(abs(lo), 1.0) * 1e-3
     return lo, hi
+
+
+#: Panels wider than this are block-averaged before drawing (a figure shows ~460 columns per panel).
+_HEATMAP_MAX_COLUMNS = 1024
+
+
+def _reduce_panel(arr: np.ndarray, log: bool) -> np.ndarray:
+    """Block-average a large panel over its finite (and, for log scales, positive) values; empty blocks stay NaN."""
+    f = arr.shape[1] // _HEATMAP_MAX_COLUMNS
+    if f < 2:
+        return arr
+    h, w = (arr.shape[0] // f) * f, (arr.shape[1] // f) * f
+    blocks = arr[:h, :w].reshape(h // f, f, w // f, f)
+    ok = np.isfinite(blocks) & ((blocks > 0) if log else True)
+    count = ok.sum(axis=(1, 3))
+    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(count > 0, total / count, np.nan)
 
 
 def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = None, vmax: float | None = None,
@@ -314,6 +335,10 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
         Label axes in azimuth/elevation degrees; ``None`` decides from a 2:1 shape.
     rotate_deg : float
         Azimuth of the image centre, degrees, for the axis labels of lat-long panels.
+
+    Panels wider than 1024 columns are drawn block-averaged (the figure cannot
+    show more), which keeps a 4096-wide panel fast; the colour range is taken
+    from the full-resolution values.
     """
     from matplotlib import colors as mcolors
     from matplotlib import rc_context
@@ -346,7 +371,8 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
         image = None
         for i, (ax, (name, arr)) in enumerate(zip(axes, items)):
             is_ll = latlong if latlong is not None else arr.shape[1] == 2 * arr.shape[0]
-            shown = np.where(np.isfinite(arr) & ((arr > 0) if log else True), arr, np.nan)
+            small = _reduce_panel(arr, log)
+            shown = np.where(np.isfinite(small) & ((small > 0) if log else True), small, np.nan)
             if is_ll:
                 extent = (-180.0 + rotate_deg, 180.0 + rotate_deg, -90.0, 90.0)
                 image = ax.imshow(shown, cmap=colormap, norm=norm, extent=extent, origin="upper",

@@ -266,3 +266,16 @@ def test_import_is_cheap():
     code = "import sys, envsample.pictures; print('matplotlib' in sys.modules)"
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert res.stdout.strip() == "False"
+
+
+def test_large_heatmap_panels_are_block_averaged_over_valid_values(monkeypatch):
+    """Wide panels are reduced by block means of their finite (log: positive) values before drawing."""
+    monkeypatch.setattr(P, "_HEATMAP_MAX_COLUMNS", 4)
+    a = np.arange(32, dtype=np.float64).reshape(4, 8)
+    a[0, 0] = np.nan
+    a[2:, 6:] = np.nan
+    out = P._reduce_panel(a, log=False)
+    assert out.shape == (2, 4)
+    assert out[0, 0] == np.mean([1.0, 8.0, 9.0])
+    assert np.isnan(out[1, 3])
+    assert P._reduce_panel(a, log=True)[0, 0] == np.mean([1.0, 8.0, 9.0])
