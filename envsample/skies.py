@@ -24,6 +24,9 @@ solid-angle measure is ``d mu d phi``; hence
   disk's ``(mu, phi)`` bounding box only, so the disk is resolved by tens of
   sub-samples across even when it is much smaller than a pixel.
 
+The two demo scenes composite buildings over the pixel-average sky, which is an
+approximation in the few pixels their edges cross; they are pictures, not references.
+
 Radiance units are arbitrary but consistent (relative units; the overcast sky's
 ``zenith_luminance`` is the scale).  A grey colour ``(1, 1, 1)`` has unit luminance
 in every supported RGB space, so grey maps have luminance equal to the radiance.
