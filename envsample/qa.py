@@ -1,0 +1,1355 @@
+"""Quality checks for equirectangular HDR environment maps, with profiles and reports.
+
+Public objects
+--------------
+- :func:`check_map`: run every enabled check on a file or an in-memory map and
+  return a :class:`Report`.
+- :class:`Report`, :class:`CheckResult`, :class:`Source`: the results; ``Report.to_dict()``
+  is the JSON report (schema :data:`REPORT_SCHEMA`), ``Report.exit_code()`` the CLI status.
+- :func:`load_profile`, :class:`Profile`, :class:`ProfileError`: thresholds from TOML.
+  ``envsample/profiles/default.toml`` holds every default, with its provenance.
+- :data:`CHECKS`: the registry, check id -> function of a :class:`CheckContext`.
+- :func:`format_report` (terminal table) and :func:`report_to_json` (many reports).
+
+Adding a check: write ``def _check_name(ctx) -> CheckResult``, add ``"name": _check_name``
+to :data:`CHECKS` and a ``[name]`` section (with ``enabled = true`` and its thresholds)
+to ``profiles/default.toml``.  The profile loader derives the valid keys from that file.
+
+Conventions
+-----------
+The map follows :mod:`envsample.sphere`: row 0 is the zenith, azimuth
+``phi = 2*pi*(u - 0.5)`` (0 at the image centre, positive to the right, +-180 deg at
+the seam), elevation ``90 deg - theta``.  Degrees appear only in messages and
+report values; computations are in radians.  Solid angles are steradians (exact
+per-pixel solid angles), luminance uses the profile's primaries, and integrals are
+float64.  Photometric values (irradiance, lux) are estimates for asset
+preparation, not certified lighting calculations.
+
+Methods and sources
+-------------------
+- Pixel solid angles and the convention: :mod:`envsample.sphere`.
+- Horizontal irradiance ``E = integral of L cos(theta) d omega`` over the upper
+  hemisphere, exact per pixel row (cos-weighted solid angle of a latitude band,
+  ``pi/W (sin^2 theta_1 - sin^2 theta_0)``; textbook calculus).  With luminance in
+  cd/m2 this is illuminance in lux (CIE S 017/E:2020, ILV, terms 17-21-060 and
+  17-21-050, from memory).
+- Half-float limit 65504: IEEE 754-2008 binary16.
+- sRGB decoding of 8/16-bit images: IEC 61966-2-1:1999.
+- Connected components: ``scipy.ndimage.label`` (8-connectivity), joined across the
+  left/right seam and around each pole.
+- Test normals: the spherical Fibonacci lattice, Gonzalez, A. (2010). Measurement
+  of areas on a sphere using Fibonacci and latitude-longitude lattices.
+  Mathematical Geosciences 42(1), 49-64.
+- Estimators and the balance heuristic: Veach, E. (1997). Robust Monte Carlo
+  Methods for Light Transport Simulation. PhD thesis, Stanford University,
+  chapter 9 (via :mod:`envsample.mis`).
+- The sun's mean angular diameter 0.533 deg: :data:`envsample.constants.SUN_ANGULAR_DIAMETER_RAD`
+  (from memory).
+"""
+
+from __future__ import annotations
+
+import copy
+import functools
+import hashlib
+import json
+import math
+import os
+import tomllib
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+
+from .color import canonical_primaries, luminance
+from .constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
+from .errors import EnvsampleError, MapReadError
+from .io import MapImage, read_map
+from .sphere import row_cos_edges, row_solid_angles
+
+__all__ = [
+    "SEVERITIES",
+    "REPORT_SCHEMA",
+    "REPORTS_SCHEMA",
+    "PHOTOMETRY_NOTE",
+    "ProfileError",
+    "Profile",
+    "load_profile",
+    "CheckResult",
+    "Source",
+    "Report",
+    "CheckContext",
+    "CHECKS",
+    "check_map",
+    "format_report",
+    "report_to_json",
+]
+
+#: Severities from best to worst; a report's verdict is the worst of its checks.
+SEVERITIES = ("pass", "warn", "fail")
+_RANK = {s: i for i, s in enumerate(SEVERITIES)}
+
+#: Name and version of the JSON report of one map (``Report.to_dict``).
+REPORT_SCHEMA = {"name": "envsample-qa-report", "version": 1}
+#: Name and version of the JSON document holding many reports (:func:`report_to_json`).
+REPORTS_SCHEMA = {"name": "envsample-qa-reports", "version": 1}
+
+#: Printed next to every photometric value.
+PHOTOMETRY_NOTE = "an estimate for asset preparation, not a certified lighting calculation"
+
+_SUN_DIAMETER_DEG = math.degrees(SUN_ANGULAR_DIAMETER_RAD)
+
+
+# =============================================================================
+# profiles
+# =============================================================================
+
+
+class ProfileError(EnvsampleError, ValueError):
+    """A QA profile is missing, not valid TOML, or has an unknown section/key or a bad value."""
+
+
+def _default_profile_text() -> str:
+    return resources.files("envsample").joinpath("profiles/default.toml").read_text(encoding="utf-8")
+
+
+@functools.lru_cache(maxsize=1)
+def _defaults() -> dict:
+    return tomllib.loads(_default_profile_text())
+
+
+@dataclass(frozen=True)
+class Profile:
+    """Thresholds of every check: ``sections[check_id][key]``, merged over the defaults.
+
+    ``name`` comes from ``[profile] name``; ``path`` is the TOML file (None for the
+    defaults or a mapping).  Use :func:`load_profile` to build one.
+    """
+
+    name: str
+    path: str | None
+    sections: dict
+
+    def section(self, check_id: str) -> dict:
+        """The settings of one check (a copy is not made: do not modify)."""
+        return self.sections[check_id]
+
+    @property
+    def primaries(self) -> str:
+        """Canonical luminance primaries of the maps checked with this profile."""
+        return canonical_primaries(self.sections["profile"]["primaries"])
+
+    def enabled(self, check_id: str) -> bool:
+        return bool(self.sections.get(check_id, {}).get("enabled", True))
+
+    def to_dict(self) -> dict:
+        """JSON-ready name, path and every setting."""
+        return {"name": self.name, "path": self.path, "settings": copy.deepcopy(self.sections)}
+
+
+def _type_name(value) -> str:
+    if isinstance(value, bool):
+        return "true/false"
+    if isinstance(value, int):
+        return "an integer"
+    if isinstance(value, float):
+        return "a number"
+    if isinstance(value, str):
+        return "a string"
+    if isinstance(value, list):
+        return "a list of strings"
+    return type(value).__name__
+
+
+def _coerce(where: str, key: str, value, default):
+    """Check ``value`` against the type of the default; ints are accepted where floats are."""
+    ok = False
+    if isinstance(default, bool):
+        ok = isinstance(value, bool)
+    elif isinstance(default, int):
+        ok = isinstance(value, int) and not isinstance(value, bool)
+    elif isinstance(default, float):
+        ok = isinstance(value, (int, float)) and not isinstance(value, bool)
+        if ok:
+            value = float(value)
+            ok = math.isfinite(value)
+    elif isinstance(default, str):
+        ok = isinstance(value, str)
+    elif isinstance(default, list):
+        ok = isinstance(value, list) and all(isinstance(v, str) for v in value)
+    if not ok:
+        raise ProfileError(f"{where}: {key} must be {_type_name(default)}, got {value!r}")
+    return value
+
+
+def _check_range(where: str, section: str, key: str, value) -> None:
+    """Value checks that the type alone does not give (one-line messages with the remedy)."""
+    full = f"[{section}] {key}"
+    if key == "primaries":
+        try:
+            canonical_primaries(value)
+        except ValueError as e:
+            raise ProfileError(f"{where}: {full}: {e}") from None
+    elif key.endswith("_percentile"):
+        if not 0.0 < value <= 100.0:
+            raise ProfileError(f"{where}: {full} must be in (0, 100], got {value}")
+    elif key.endswith(("_fraction", "_share")) or key == "plateau_relative_tolerance":
+        if not 0.0 <= value <= 1.0:
+            raise ProfileError(f"{where}: {full} must be in [0, 1], got {value}")
+    elif isinstance(value, (int, float)) and not isinstance(value, bool) and key != "seed":
+        if value < 0:
+            raise ProfileError(f"{where}: {full} must be >= 0, got {value}")
+    if key in ("spp", "repeats", "normals", "table_width", "table_height", "rows", "max_listed") and value < 1:
+        raise ProfileError(f"{where}: {full} must be >= 1, got {value}")
+
+
+def _merge(where: str, user: Mapping) -> dict:
+    defaults = _defaults()
+    merged = copy.deepcopy(defaults)
+    for section, values in user.items():
+        if section not in defaults:
+            valid = ", ".join(sorted(defaults))
+            raise ProfileError(f"{where}: unknown section [{section}]; valid sections: {valid}")
+        if not isinstance(values, Mapping):
+            raise ProfileError(f"{where}: [{section}] must be a table of settings, got {values!r}")
+        for key, value in values.items():
+            if key not in defaults[section]:
+                valid = ", ".join(sorted(defaults[section]))
+                raise ProfileError(f"{where}: unknown key {section}.{key}; valid keys in [{section}]: {valid}")
+            value = _coerce(where, f"[{section}] {key}", value, defaults[section][key])
+            _check_range(where, section, key, value)
+            merged[section][key] = value
+    dr = merged["dynamic-range"]
+    if dr["low_percentile"] >= dr["high_percentile"]:
+        raise ProfileError(f"{where}: [dynamic-range] low_percentile must be below high_percentile")
+    for section, lo, hi in (("negative", "warn_above_fraction", "fail_above_fraction"),
+                            ("seam", "warn_share", "fail_share"), ("poles", "warn_cv", "fail_cv"),
+                            ("sampling", "warn_rmse", "fail_rmse"),
+                            ("resolution", "fail_below_width", "warn_below_width")):
+        if merged[section][lo] > merged[section][hi]:
+            raise ProfileError(f"{where}: [{section}] {lo} must not exceed {hi}")
+    return merged
+
+
+def load_profile(path_or_none=None) -> Profile:
+    """Read a QA profile (TOML) and merge it over the defaults.
+
+    Parameters
+    ----------
+    path_or_none : str, PathLike, Mapping or None
+        ``None`` (or ``"default"``) gives the defaults of ``profiles/default.toml``;
+        a path reads that TOML file; a mapping ``{section: {key: value}}`` is
+        validated like a file.  A profile lists only what it changes.
+
+    Raises
+    ------
+    ProfileError
+        Missing or unreadable file, invalid TOML, unknown section or key (the
+        message names it and lists the valid ones), or a value of the wrong type
+        or out of range.
+    """
+    if isinstance(path_or_none, Profile):
+        return path_or_none
+    if path_or_none is None or (isinstance(path_or_none, str) and path_or_none == "default"):
+        sections = _merge("default profile", {})
+        return Profile(name=sections["profile"]["name"], path=None, sections=sections)
+    if isinstance(path_or_none, Mapping):
+        sections = _merge("profile", path_or_none)
+        return Profile(name=sections["profile"]["name"], path=None, sections=sections)
+    if not isinstance(path_or_none, (str, os.PathLike)):
+        raise TypeError(f"profile must be a path, a mapping, a Profile or None, got {type(path_or_none).__name__}")
+    p = Path(path_or_none)
+    where = f"profile {p}"
+    try:
+        text = p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ProfileError(f"{where}: file not found; pass an existing TOML file or omit it for the defaults") from None
+    except (OSError, UnicodeDecodeError) as e:
+        raise ProfileError(f"{where}: cannot be read ({e.__class__.__name__}: {e}); check the file") from None
+    try:
+        user = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as e:
+        raise ProfileError(f"{where}: not valid TOML ({e}); fix the syntax") from None
+    sections = _merge(where, user)
+    return Profile(name=sections["profile"]["name"], path=str(p), sections=sections)
+
+
+# =============================================================================
+# results
+# =============================================================================
+
+
+def _jsonable(x):
+    """Plain JSON values: numpy scalars to Python, non-finite floats to None, tuples to lists."""
+    if isinstance(x, dict):
+        return {str(k): _jsonable(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_jsonable(v) for v in x]
+    if isinstance(x, np.ndarray):
+        return [_jsonable(v) for v in x.tolist()]
+    if isinstance(x, (bool, np.bool_)):
+        return bool(x)
+    if isinstance(x, (int, np.integer)):
+        return int(x)
+    if isinstance(x, (float, np.floating)):
+        x = float(x)
+        return x if math.isfinite(x) else None
+    if x is None or isinstance(x, str):
+        return x
+    return str(x)
+
+
+@dataclass
+class CheckResult:
+    """The outcome of one check.
+
+    ``id`` is the stable check name; ``severity`` one of :data:`SEVERITIES`;
+    ``value`` the measured quantity and ``threshold`` the limit it was compared with
+    (numbers, strings or None; units in the message); ``message`` one line;
+    ``remedy`` one line ("" when nothing is to be done); ``details`` JSON-ready extras.
+    """
+
+    id: str
+    severity: str
+    value: object = None
+    threshold: object = None
+    message: str = ""
+    remedy: str = ""
+    details: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        if self.severity not in _RANK:
+            raise ValueError(f"severity must be one of {', '.join(SEVERITIES)}, got {self.severity!r}")
+
+    def to_dict(self) -> dict:
+        return {
+            "id": self.id,
+            "severity": self.severity,
+            "value": _jsonable(self.value),
+            "threshold": _jsonable(self.threshold),
+            "message": self.message,
+            "remedy": self.remedy,
+            "details": _jsonable(self.details),
+        }
+
+
+@dataclass(frozen=True)
+class Source:
+    """Where a map came from: ``path`` (str or None), ``sha256`` of the file bytes, ``size`` in bytes."""
+
+    path: str | None = None
+    sha256: str | None = None
+    size: int | None = None
+
+    def to_dict(self) -> dict:
+        return {"path": self.path, "sha256": self.sha256, "size": self.size}
+
+
+@dataclass
+class Report:
+    """All check results for one map.
+
+    Attributes
+    ----------
+    source : Source
+    checks : list of CheckResult, in registry order
+    skipped : list of {"id", "reason"} for checks that were disabled or could not run
+    profile : str, the profile's name; profile_path : str or None
+    image : dict or None, the map's metadata (``MapImage.describe()``), None if unreadable
+    readable : bool, False when the file could not be read (then only ``read`` is present)
+    """
+
+    source: Source
+    checks: list
+    skipped: list = field(default_factory=list)
+    profile: str = "default"
+    profile_path: str | None = None
+    image: dict | None = None
+    readable: bool = True
+
+    @property
+    def verdict(self) -> str:
+        """The worst severity of the checks ("pass" when there are none)."""
+        worst = max((_RANK[c.severity] for c in self.checks), default=0)
+        return SEVERITIES[worst]
+
+    def counts(self) -> dict:
+        """Number of checks per severity."""
+        out = {s: 0 for s in SEVERITIES}
+        for c in self.checks:
+            out[c.severity] += 1
+        return out
+
+    def get(self, check_id: str) -> CheckResult | None:
+        """The result of one check, or None if it did not run."""
+        for c in self.checks:
+            if c.id == check_id:
+                return c
+        return None
+
+    def __getitem__(self, check_id: str) -> CheckResult:
+        found = self.get(check_id)
+        if found is None:
+            raise KeyError(check_id)
+        return found
+
+    def ids(self, severity: str) -> list[str]:
+        """Ids of the checks with the given severity."""
+        return [c.id for c in self.checks if c.severity == severity]
+
+    def exit_code(self, strict: bool = False) -> int:
+        """CLI status: 2 unreadable input, 1 any failure (or any warning when ``strict``), else 0."""
+        if not self.readable:
+            return 2
+        v = self.verdict
+        if v == "fail" or (strict and v == "warn"):
+            return 1
+        return 0
+
+    def to_dict(self) -> dict:
+        """The JSON report (schema :data:`REPORT_SCHEMA`); keys are stable within a schema version."""
+        return {
+            "schema": dict(REPORT_SCHEMA),
+            "source": self.source.to_dict(),
+            "readable": self.readable,
+            "verdict": self.verdict,
+            "counts": self.counts(),
+            "profile": {"name": self.profile, "path": self.profile_path},
+            "image": _jsonable(self.image),
+            "checks": [c.to_dict() for c in self.checks],
+            "skipped": _jsonable(self.skipped),
+            "note": f"photometric values are {PHOTOMETRY_NOTE}",
+        }
+
+
+# =============================================================================
+# context shared by the checks
+# =============================================================================
+
+
+def _srgb_decode(v: np.ndarray) -> np.ndarray:
+    """sRGB code values in [0, 1] to linear (IEC 61966-2-1:1999, the piecewise EOTF)."""
+    v = np.clip(v, 0.0, 1.0)
+    return np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4).astype(np.float32)
+
+
+def _weighted_quantile(values: np.ndarray, weights: np.ndarray, q: float) -> float:
+    """Quantile ``q`` in [0, 1] of ``values`` with ``weights`` (solid angles): inverse of the weighted CDF."""
+    v = np.asarray(values, dtype=np.float64).ravel()
+    w = np.asarray(weights, dtype=np.float64).ravel()
+    order = np.argsort(v, kind="stable")
+    cw = np.cumsum(w[order])
+    if cw[-1] <= 0:
+        return 0.0
+    k = int(np.searchsorted(cw, q * cw[-1], side="left"))
+    return float(v[order[min(k, v.size - 1)]])
+
+
+@dataclass
+class Emitter:
+    """A connected bright region: power share, solid angle (sr), direction and size."""
+
+    label: int
+    pixels: int
+    solid_angle_sr: float
+    share: float
+    azimuth_deg: float
+    elevation_deg: float
+    diameter_deg: float
+    pixel_diameter_deg: float
+    peak: float
+
+    @property
+    def resolved(self) -> bool:
+        """Wider than two pixels: its measured size says something about the source."""
+        return self.diameter_deg > 2.0 * self.pixel_diameter_deg
+
+    def to_dict(self) -> dict:
+        return {
+            "azimuth_deg": round(self.azimuth_deg, 3),
+            "elevation_deg": round(self.elevation_deg, 3),
+            "solid_angle_sr": self.solid_angle_sr,
+            "share": self.share,
+            "pixels": self.pixels,
+            "diameter_deg": round(self.diameter_deg, 4),
+            "sun_diameter_ratio": self.diameter_deg / _SUN_DIAMETER_DEG,
+            "resolved": self.resolved,
+            "peak_luminance": self.peak,
+        }
+
+
+def _cap_diameter(omega) -> np.ndarray:
+    """Angular diameter (radians) of the spherical cap of solid angle ``omega`` (sr): 2 acos(1 - omega / 2 pi)."""
+    return 2.0 * np.arccos(np.clip(1.0 - np.asarray(omega, dtype=np.float64) / (2.0 * math.pi), -1.0, 1.0))
+
+
+def label_wrapped(mask: np.ndarray) -> tuple[np.ndarray, int]:
+    """Connected components of a lat-long mask (8-connectivity) that wrap at the seam and the poles.
+
+    Pixels in column 0 touch those in column W-1 (rows i-1..i+1), and all pixels of
+    the first row (and of the last) meet at the pole.  Returns ``(labels, count)``
+    like :func:`scipy.ndimage.label`: int32 labels 1..count, 0 for background.
+    """
+    from scipy import ndimage, sparse
+    from scipy.sparse.csgraph import connected_components
+
+    labels, n = ndimage.label(mask, structure=np.ones((3, 3), dtype=bool))
+    if n <= 1:
+        return labels.astype(np.int32), int(n)
+    H, W = mask.shape
+    a_parts, b_parts = [], []
+    left, right = labels[:, 0], labels[:, W - 1]
+    for shift in (-1, 0, 1):
+        lo, hi = max(0, -shift), H - max(0, shift)
+        a_parts.append(left[lo:hi])
+        b_parts.append(right[lo + shift:hi + shift])
+    for row in (labels[0], labels[H - 1]):
+        present = np.unique(row[row > 0])
+        if present.size > 1:
+            a_parts.append(present[:-1])
+            b_parts.append(present[1:])
+    a = np.concatenate(a_parts)
+    b = np.concatenate(b_parts)
+    keep = (a > 0) & (b > 0) & (a != b)
+    if not keep.any():
+        return labels.astype(np.int32), int(n)
+    graph = sparse.coo_matrix((np.ones(int(keep.sum())), (a[keep], b[keep])), shape=(n + 1, n + 1))
+    count, comp = connected_components(graph, directed=False)
+    # Renumber so that background stays 0 and components are 1..m in order of first label.
+    _, first = np.unique(comp[1:], return_index=True)
+    order = np.argsort(first)
+    remap = np.zeros(count, dtype=np.int64)
+    remap[np.unique(comp[1:])[order]] = np.arange(1, order.size + 1)
+    table = np.concatenate([[0], remap[comp[1:]]]).astype(np.int32)
+    return table[labels], int(order.size)
+
+
+class CheckContext:
+    """What every check may use; expensive quantities are computed once, on first use.
+
+    Attributes
+    ----------
+    image : MapImage (as read; ``image.rgb`` may hold NaN, Inf, negatives)
+    raw : float32 (H, W, 3) ``image.rgb``
+    rgb : float32 (H, W, 3) linear radiance with non-finite values set to 0 and
+        negatives clamped to 0 (8/16-bit images are sRGB-decoded first), so that a
+        defect reported by one check does not break the others
+    luminance : float32 (H, W) of ``rgb`` with the profile's primaries
+    row_solid_angles : float64 (H,) steradians of one pixel in each row
+    solid_angles : float64 (H, W) read-only broadcast of it
+    profile : Profile
+    """
+
+    def __init__(self, image: MapImage, profile: Profile):
+        self.image = image
+        self.profile = profile
+        self.raw = image.rgb
+        self.height, self.width = int(self.raw.shape[0]), int(self.raw.shape[1])
+        self.row_solid_angles = row_solid_angles(self.height, self.width)
+        self.solid_angles = np.broadcast_to(self.row_solid_angles[:, None], (self.height, self.width))
+
+    def settings(self, check_id: str) -> dict:
+        return self.profile.section(check_id)
+
+    @functools.cached_property
+    def finite(self) -> np.ndarray:
+        """bool (H, W, 3): finite channels."""
+        return np.isfinite(self.raw)
+
+    @functools.cached_property
+    def rgb(self) -> np.ndarray:
+        rgb = self.raw
+        if not self.image.is_hdr:
+            rgb = _srgb_decode(rgb)
+        bad = ~self.finite
+        if bad.any() or (rgb < 0).any():
+            rgb = np.where(bad | (rgb < 0), np.float32(0.0), rgb).astype(np.float32)
+        return rgb
+
+    @functools.cached_property
+    def luminance(self) -> np.ndarray:
+        return luminance(self.rgb, self.profile.primaries)
+
+    @functools.cached_property
+    def row_power(self) -> np.ndarray:
+        """float64 (H,): integral of luminance over each row, map units x sr."""
+        return self.luminance.sum(axis=1, dtype=np.float64) * self.row_solid_angles
+
+    @functools.cached_property
+    def total_power(self) -> float:
+        """Integral of luminance over the sphere, map units x sr."""
+        return float(self.row_power.sum())
+
+    @functools.cached_property
+    def median_luminance(self) -> float:
+        """Solid-angle-weighted median luminance."""
+        return _weighted_quantile(self.luminance, self.solid_angles, 0.5)
+
+    def quantile(self, q: float) -> float:
+        """Solid-angle-weighted quantile of luminance, ``q`` in [0, 1]."""
+        return _weighted_quantile(self.luminance, self.solid_angles, q)
+
+    @functools.cached_property
+    def pixel_directions(self) -> tuple[np.ndarray, np.ndarray]:
+        """(theta (H,), phi (W,)) of pixel centres, radians."""
+        theta = (np.arange(self.height) + 0.5) * (math.pi / self.height)
+        phi = (np.arange(self.width) + 0.5) * (2.0 * math.pi / self.width) - math.pi
+        return theta, phi
+
+    @functools.cached_property
+    def emitters(self) -> list[Emitter]:
+        """Bright connected regions, by decreasing power (see the ``[sun]`` profile section)."""
+        return _find_emitters(self)
+
+
+def _find_emitters(ctx: CheckContext) -> list[Emitter]:
+    from scipy import ndimage
+
+    s = ctx.settings("sun")
+    lum = ctx.luminance
+    peak = float(lum.max()) if lum.size else 0.0
+    total = ctx.total_power
+    if not peak > 0.0 or not total > 0.0:
+        return []
+    level = max(s["threshold_median_multiple"] * ctx.median_luminance, s["threshold_max_fraction"] * peak)
+    mask = lum > level
+    if not mask.any():
+        return []
+    labels, n = label_wrapped(mask)
+    index = np.arange(1, n + 1)
+    power_px = lum.astype(np.float64) * ctx.solid_angles
+    power = ndimage.sum_labels(power_px, labels, index)
+    omega = ndimage.sum_labels(ctx.solid_angles, labels, index)
+    count = ndimage.sum_labels(np.ones_like(lum, dtype=np.float64), labels, index)
+    peaks = ndimage.maximum(lum, labels, index)
+    theta, phi = ctx.pixel_directions
+    st = np.sin(theta)[:, None]
+    # Power-weighted mean direction; a component around a pole or across the seam averages correctly.
+    dx = ndimage.sum_labels(power_px * st * np.cos(phi)[None, :], labels, index)
+    dy = ndimage.sum_labels(power_px * st * np.sin(phi)[None, :], labels, index)
+    dz = ndimage.sum_labels(power_px * np.cos(theta)[:, None], labels, index)
+    rows = ndimage.sum_labels(np.broadcast_to(np.arange(ctx.height, dtype=np.float64)[:, None], lum.shape) * power_px,
+                              labels, index) / np.maximum(power, 1e-300)
+    out = []
+    for k in np.argsort(-power):
+        norm = math.sqrt(dx[k] ** 2 + dy[k] ** 2 + dz[k] ** 2)
+        if norm > 0:
+            elev = math.degrees(math.asin(max(-1.0, min(1.0, dz[k] / norm))))
+            az = math.degrees(math.atan2(dy[k], dx[k]))
+        else:
+            elev, az = 0.0, 0.0
+        row = int(min(ctx.height - 1, max(0, round(rows[k]))))
+        out.append(Emitter(
+            label=int(k + 1),
+            pixels=int(count[k]),
+            solid_angle_sr=float(omega[k]),
+            share=float(power[k] / total),
+            azimuth_deg=az,
+            elevation_deg=elev,
+            diameter_deg=math.degrees(float(_cap_diameter(omega[k]))),
+            pixel_diameter_deg=math.degrees(float(_cap_diameter(ctx.row_solid_angles[row]))),
+            peak=float(peaks[k]),
+        ))
+    return out
+
+
+# =============================================================================
+# checks
+# =============================================================================
+
+
+def _fmt(x, digits: int = 3) -> str:
+    """A number for a message: ``digits`` significant digits, no exponent for ordinary sizes."""
+    if x is None:
+        return "-"
+    if isinstance(x, (int, np.integer)) and not isinstance(x, bool):
+        return str(int(x))
+    x = float(x)
+    if not math.isfinite(x):
+        return str(x)
+    if x != 0 and (abs(x) >= 1e6 or abs(x) < 1e-3):
+        return f"{x:.{digits - 1}e}"
+    return f"{x:.{digits}g}"
+
+
+def _pct(fraction: float) -> str:
+    p = 100.0 * fraction
+    return f"{p:.2g}%" if p < 1 else f"{p:.3g}%"
+
+
+def _check_read(ctx: CheckContext) -> CheckResult:
+    im = ctx.image
+    fmt = im.format
+    extra = ", ".join(x for x in (im.pixel_type, im.compression) if x)
+    return CheckResult("read", "pass", value=fmt, threshold=None,
+                       message=f"read {ctx.width}x{ctx.height} {fmt}" + (f" ({extra})" if extra else ""))
+
+
+def _check_hdr(ctx: CheckContext) -> CheckResult:
+    im = ctx.image
+    finite = ctx.raw[ctx.finite]
+    peak = float(finite.max()) if finite.size else None
+    if im.is_hdr:
+        return CheckResult("hdr", "pass", value=True, threshold=True,
+                           message=f"high dynamic range data ({im.pixel_type}), brightest value {_fmt(peak)}")
+    return CheckResult(
+        "hdr", "fail", value=False, threshold=True,
+        message=f"{im.pixel_type} {im.format} holds display-referred values that stop at 1.0: light sources are clipped",
+        remedy="supply a linear HDR capture (.exr or .hdr); an LDR image cannot light a scene correctly",
+        details={"max_code_value": peak},
+    )
+
+
+def _check_pixel_type(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("pixel-type")
+    t = ctx.image.pixel_type
+    if t in s["accept"]:
+        return CheckResult("pixel-type", "pass", value=t, threshold=list(s["accept"]), message=f"{t} samples")
+    if t in s["warn"]:
+        levels = {"uint8": 256, "uint16": 65536}.get(t)
+        what = f"{levels} levels per channel: gradients band" if levels else "quantised samples"
+        return CheckResult("pixel-type", "warn", value=t, threshold=list(s["accept"]),
+                           message=f"{t} integer samples, {what}",
+                           remedy="store radiance as half or float (OpenEXR) or rgbe (.hdr)")
+    return CheckResult("pixel-type", "fail", value=t, threshold=list(s["accept"]),
+                       message=f"{t} samples do not hold radiance (accepted: {', '.join(s['accept'])})",
+                       remedy="write the colour channels as half or float")
+
+
+def _base_channel(name: str) -> str:
+    return name.rsplit(".", 1)[-1].upper()
+
+
+def _check_channels(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("channels")
+    names = list(ctx.image.channels or [])
+    bases = [_base_channel(n) for n in names]
+    details = {"channels": names}
+    if {"R", "G", "B"} <= set(bases):
+        colour = "RGB"
+    elif "Y" in bases:
+        return CheckResult("channels", "warn", value=",".join(names), threshold="R,G,B",
+                           message="greyscale (Y only): the light has no colour",
+                           remedy="export the R, G and B channels", details=details)
+    else:
+        return CheckResult("channels", "fail", value=",".join(names), threshold="R,G,B",
+                           message=f"no R, G, B or Y channels among {', '.join(names) or 'none'}",
+                           remedy="export the colour channels as R, G, B", details=details)
+    alpha = ctx.image.alpha
+    if alpha is not None and s["warn_on_alpha"]:
+        a = alpha[np.isfinite(alpha)]
+        transparent = float(np.mean(a < 1.0)) if a.size else 0.0
+        details["alpha_below_one_fraction"] = transparent
+        if transparent > 0:
+            return CheckResult("channels", "warn", value=",".join(names), threshold="R,G,B",
+                               message=f"{colour} with alpha below 1 in {_pct(transparent)} of pixels; alpha is ignored",
+                               remedy="remove alpha, or un-premultiply the colour if it was premultiplied",
+                               details=details)
+    return CheckResult("channels", "pass", value=",".join(names), threshold="R,G,B",
+                       message=f"{colour}" + (" + alpha" if alpha is not None else ""), details=details)
+
+
+def _check_aspect(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("aspect")
+    ratio = ctx.width / ctx.height
+    ok = abs(ratio / s["ratio"] - 1.0) <= s["tolerance"] + 1e-12
+    msg = f"{ctx.width}x{ctx.height} is {_fmt(ratio, 4)}:1"
+    if ok:
+        return CheckResult("aspect", "pass", value=ratio, threshold=s["ratio"], message=msg)
+    return CheckResult("aspect", "fail", value=ratio, threshold=s["ratio"],
+                       message=f"{msg}, not the {_fmt(s['ratio'])}:1 of an equirectangular map",
+                       remedy="re-project to equirectangular (2:1); convert cube maps or mirror balls first")
+
+
+def _check_resolution(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("resolution")
+    w = ctx.width
+    step = 360.0 / w
+    msg = f"{w}x{ctx.height}: one pixel spans {_fmt(step)} deg (the sun {_SUN_DIAMETER_DEG:.3f} deg)"
+    if w < s["fail_below_width"]:
+        return CheckResult("resolution", "fail", value=w, threshold=s["fail_below_width"],
+                           message=f"{msg}; below {s['fail_below_width']} px wide",
+                           remedy="supply a larger map")
+    if w < s["warn_below_width"]:
+        return CheckResult("resolution", "warn", value=w, threshold=s["warn_below_width"],
+                           message=f"{msg}; below {s['warn_below_width']} px wide, reflections will be blurry",
+                           remedy="use this map for diffuse lighting only, or supply a larger one")
+    return CheckResult("resolution", "pass", value=w, threshold=s["warn_below_width"], message=msg)
+
+
+def _count_check(ctx: CheckContext, check_id: str, bad: np.ndarray, what: str) -> CheckResult:
+    s = ctx.settings(check_id)
+    count = int(bad.sum())
+    if count <= s["max_pixels"]:
+        return CheckResult(check_id, "pass", value=count, threshold=s["max_pixels"],
+                           message=f"no {what} pixels" if count == 0 else f"{count} {what} pixels (allowed)")
+    r, c = np.argwhere(bad)[0]
+    frac = count / bad.size
+    return CheckResult(
+        check_id, "fail", value=count, threshold=s["max_pixels"],
+        message=f"{count} pixels ({_pct(frac)}) have a {what} channel, first at row {r}, column {c}",
+        remedy="fix them at the source, or read with validate_map(repair=True), which sets them to 0",
+        details={"first_row": int(r), "first_column": int(c), "fraction": frac},
+    )
+
+
+def _check_nan(ctx: CheckContext) -> CheckResult:
+    return _count_check(ctx, "nan", np.isnan(ctx.raw).any(axis=2), "NaN")
+
+
+def _check_inf(ctx: CheckContext) -> CheckResult:
+    return _count_check(ctx, "inf", np.isinf(ctx.raw).any(axis=2), "infinite")
+
+
+def _check_negative(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("negative")
+    with np.errstate(invalid="ignore"):
+        neg = (ctx.raw < 0).any(axis=2)
+    frac = float((neg * ctx.solid_angles).sum() / (4.0 * math.pi))
+    if not neg.any():
+        return CheckResult("negative", "pass", value=0.0, threshold=s["warn_above_fraction"],
+                           message="no negative values")
+    low = float(np.min(np.where(ctx.finite, ctx.raw, 0.0)))
+    details = {"pixels": int(neg.sum()), "most_negative": low}
+    msg = f"negative values over {_pct(frac)} of the sphere ({int(neg.sum())} pixels, down to {_fmt(low)})"
+    if frac > s["fail_above_fraction"]:
+        return CheckResult("negative", "fail", value=frac, threshold=s["fail_above_fraction"], message=msg,
+                           remedy="redo the colour conversion (negatives are out-of-gamut colours); clamp only a few",
+                           details=details)
+    if frac > s["warn_above_fraction"]:
+        return CheckResult("negative", "warn", value=frac, threshold=s["warn_above_fraction"], message=msg,
+                           remedy="clamp them to 0 (validate_map does) or convert to a wider gamut",
+                           details=details)
+    return CheckResult("negative", "pass", value=frac, threshold=s["warn_above_fraction"], message=msg,
+                       details=details)
+
+
+def _check_dynamic_range(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("dynamic-range")
+    hi = ctx.quantile(s["high_percentile"] / 100.0)
+    lo = ctx.quantile(s["low_percentile"] / 100.0)
+    peak = float(ctx.luminance.max())
+    details = {"high": hi, "low": lo, "max": peak,
+               "high_percentile": s["high_percentile"], "low_percentile": s["low_percentile"]}
+    names = f"p{_fmt(s['high_percentile'], 4)}/p{_fmt(s['low_percentile'], 4)}"
+    if not hi > 0.0:
+        return CheckResult("dynamic-range", "warn", value=None, threshold=s["warn_below_stops"],
+                           message=f"luminance is zero up to the {names.split('/')[0]}: the map is (nearly) black",
+                           remedy="check the exposure of the export", details=details)
+    if not lo > 0.0:
+        return CheckResult("dynamic-range", "pass", value=None, threshold=s["warn_below_stops"],
+                           message=f"{_fmt(s['low_percentile'])}% of the sphere or more is black; {names} undefined",
+                           details=details)
+    stops = math.log2(hi / lo)
+    details["max_stops"] = math.log2(peak / lo)
+    msg = f"{_fmt(stops)} stops between {names} of luminance ({_fmt(details['max_stops'])} to the maximum)"
+    if stops < s["warn_below_stops"]:
+        return CheckResult("dynamic-range", "warn", value=stops, threshold=s["warn_below_stops"],
+                           message=msg + ": a flat map, its light has no direction",
+                           remedy="check that this is the HDR capture and not a flat placeholder", details=details)
+    return CheckResult("dynamic-range", "pass", value=stops, threshold=s["warn_below_stops"], message=msg,
+                       details=details)
+
+
+def _ring(mask: np.ndarray) -> np.ndarray:
+    """Pixels 8-adjacent to ``mask`` (wrapping at the seam), not in it."""
+    padded = np.concatenate([mask[:, -1:], mask, mask[:, :1]], axis=1)
+    grown = padded.copy()
+    grown[1:] |= padded[:-1]
+    grown[:-1] |= padded[1:]
+    g2 = grown.copy()
+    g2[:, 1:] |= grown[:, :-1]
+    g2[:, :-1] |= grown[:, 1:]
+    return g2[:, 1:-1] & ~mask
+
+
+def _plateau(ctx: CheckContext, region: np.ndarray | None, s: dict) -> dict | None:
+    """The largest plateau at the maximum of ``region`` (whole map if None); its size, contrast and shoulder."""
+    m = ctx.rgb.max(axis=2)
+    values = m if region is None else np.where(region, m, -np.inf)
+    level = float(values.max())
+    if not level > 0.0:
+        return None
+    mask = values >= level * (1.0 - s["plateau_relative_tolerance"])
+    # Rows of identical pixels are an azimuth-independent sky (and pole rows image one
+    # direction): equal values there are not clipping.
+    constant_rows = m.max(axis=1) == m.min(axis=1)
+    mask &= ~constant_rows[:, None]
+    if not mask.any():
+        return None
+    labels, n = label_wrapped(mask)
+    from scipy import ndimage
+
+    omega = ndimage.sum_labels(ctx.solid_angles, labels, np.arange(1, n + 1))
+    k = int(np.argmax(omega)) + 1
+    comp = labels == k
+    # The shoulder: pixels two steps out from the plateau.  A clipped smooth source
+    # (sun with glare, a blown-out sky) still rises towards the plateau there; a
+    # sharp-edged uniform emitter (a synthetic area light) is back to its background.
+    inner = comp | _ring(comp)
+    ring2 = _ring(inner)
+    bg = _weighted_quantile(m, ctx.solid_angles, 0.5)
+    if ring2.any() and level > bg:
+        shoulder = float(np.median(np.clip((m[ring2] - bg) / (level - bg), 0.0, 1.0)))
+    else:
+        shoulder = 0.0
+    row_idx = np.nonzero(comp.any(axis=1))[0]
+    lum = ctx.luminance
+    return {
+        "level": level,
+        "pixels": int(comp.sum()),
+        "solid_angle_sr": float(omega[k - 1]),
+        "sun_multiple": float(omega[k - 1] / SUN_SOLID_ANGLE_SR),
+        "contrast": float(lum[comp].mean() / ctx.median_luminance) if ctx.median_luminance > 0 else math.inf,
+        "shoulder": shoulder,
+        "rows": [int(row_idx.min()), int(row_idx.max())],
+    }
+
+
+def _plateau_is_clipped(p: dict, s: dict) -> bool:
+    return (p["pixels"] >= s["plateau_min_pixels"] and p["sun_multiple"] >= s["plateau_min_sun_multiple"]
+            and p["contrast"] >= s["plateau_min_contrast"] and p["shoulder"] > 0.0)
+
+
+def _check_clipping(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("clipping")
+    with np.errstate(invalid="ignore"):
+        at_half = (ctx.raw == np.float32(HALF_FLOAT_MAX)).any(axis=2)
+    n_half = int(at_half.sum())
+    if n_half >= s["half_max_pixels"] and n_half > 0:
+        return CheckResult(
+            "clipping", "fail", value=n_half, threshold=s["half_max_pixels"],
+            message=f"{n_half} pixels hold {HALF_FLOAT_MAX:g}, the largest half float: values were clamped when written",
+            remedy="write float32, or scale the map down before writing half (and record the scale)",
+            details={"half_max_pixels": n_half},
+        )
+    candidates = []
+    whole = _plateau(ctx, None, s)
+    if whole is not None:
+        candidates.append(("maximum", whole))
+    if ctx.emitters:
+        region = _emitter_mask(ctx, ctx.emitters[0])
+        if region is not None:
+            flat = _plateau(ctx, region, s)
+            if flat is not None and (whole is None or flat["level"] != whole["level"]):
+                candidates.append(("brightest emitter", flat))
+    for where, p in candidates:
+        if _plateau_is_clipped(p, s):
+            shape = "flat-topped sun" if where == "brightest emitter" else "plateau at the maximum"
+            return CheckResult(
+                "clipping", "fail", value=p["pixels"], threshold=s["plateau_min_pixels"],
+                message=(f"{shape}: {p['pixels']} pixels ({_fmt(p['sun_multiple'])}x the sun's solid angle) "
+                         f"equal {_fmt(p['level'])}, {_fmt(p['contrast'])}x the median"),
+                remedy="recapture or re-merge the brightest source with shorter exposures; or replace it by an analytic light",
+                details={"plateau": p, "where": where},
+            )
+    note = "no plateau at the maximum"
+    details = {}
+    for where, p in candidates:
+        details["plateau"] = p
+        if (p["pixels"] >= s["plateau_min_pixels"] and p["sun_multiple"] >= s["plateau_min_sun_multiple"]
+                and p["contrast"] >= s["plateau_min_contrast"]):
+            note = (f"{p['pixels']} pixels share the maximum inside a sharp-edged emitter "
+                    "(a uniform area light; a capture would show noise)")
+        break
+    value = details.get("plateau", {}).get("pixels", 0)
+    return CheckResult("clipping", "pass", value=value, threshold=s["plateau_min_pixels"], message=note,
+                       details=details)
+
+
+def _emitter_mask(ctx: CheckContext, e: Emitter) -> np.ndarray | None:
+    s = ctx.settings("sun")
+    lum = ctx.luminance
+    level = max(s["threshold_median_multiple"] * ctx.median_luminance, s["threshold_max_fraction"] * float(lum.max()))
+    labels, _ = label_wrapped(lum > level)
+    region = labels == e.label
+    return region if region.any() else None
+
+
+def _check_seam(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("seam")
+    cap = ctx.quantile(s["clamp_percentile"] / 100.0)
+    lc = np.minimum(ctx.luminance, np.float32(cap)).astype(np.float64)
+    edge = np.abs(lc[:, 0] - lc[:, -1])
+    typical = np.median(np.abs(np.diff(lc, axis=1)), axis=1) if ctx.width > 1 else np.zeros(ctx.height)
+    row_mean = lc.mean(axis=1)
+    scale = np.maximum(typical, s["relative_floor"] * row_mean)
+    steps = edge > s["step_ratio"] * scale
+    power = row_mean * ctx.row_solid_angles
+    total = float(power.sum())
+    share = float(power[steps].sum() / total) if total > 0 else 0.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratios = np.where(scale > 0, edge / scale, 0.0)
+    details = {"stepping_rows": int(steps.sum()), "max_row_ratio": float(ratios.max()) if ratios.size else 0.0,
+               "step_ratio": s["step_ratio"]}
+    msg = (f"the left and right edges step apart in rows holding {_pct(share)} of the light "
+           f"({int(steps.sum())} of {ctx.height} rows)")
+    if share >= s["fail_share"]:
+        sev = "fail"
+    elif share >= s["warn_share"]:
+        sev = "warn"
+    else:
+        return CheckResult("seam", "pass", value=share, threshold=s["warn_share"], message=msg, details=details)
+    details["worst_row"] = int(np.argmax(np.where(steps, ratios * power, 0.0)))
+    return CheckResult("seam", sev, value=share, threshold=s[f"{sev}_share"],
+                       message=msg + ": a visible seam",
+                       remedy="re-stitch or blend the wrap-around (the left edge must continue the right edge)",
+                       details=details)
+
+
+def _check_poles(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("poles")
+    lum = ctx.luminance.astype(np.float64)
+    k = min(s["rows"], max(1, ctx.height // 2))
+    tiny = 1e-9 * max(float(lum.mean()), 1e-30)
+
+    def cv(rows: np.ndarray) -> float:
+        m = rows.mean(axis=1)
+        sd = rows.std(axis=1)
+        return float(np.max(np.where(m > tiny, sd / np.maximum(m, tiny), 0.0)))
+
+    top, bottom = cv(lum[:k]), cv(lum[-k:])
+    worst = max(top, bottom)
+    which = "top (zenith)" if top >= bottom else "bottom (nadir)"
+    details = {"top_cv": top, "bottom_cv": bottom, "rows": k}
+    msg = f"pole rows vary by {_fmt(top)} (top) and {_fmt(bottom)} (bottom), std/mean of luminance"
+    if worst >= s["fail_cv"]:
+        sev = "fail"
+    elif worst >= s["warn_cv"]:
+        sev = "warn"
+    else:
+        return CheckResult("poles", "pass", value=worst, threshold=s["warn_cv"], message=msg, details=details)
+    return CheckResult("poles", sev, value=worst, threshold=s[f"{sev}_cv"],
+                       message=msg + f": the {which} row images one direction but is not constant",
+                       remedy="patch the pole (fill the first/last rows with their mean) or check the projection",
+                       details=details)
+
+
+def _upper_fraction_rows(height: int) -> np.ndarray:
+    """Fraction of each row's solid angle above the horizon (exact in cos theta)."""
+    c = row_cos_edges(height)
+    hi, lo = c[:-1], c[1:]
+    return (np.clip(hi, 0.0, None) - np.clip(lo, 0.0, None)) / (hi - lo)
+
+
+def _check_orientation(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("orientation")
+    total = ctx.total_power
+    if not total > 0.0:
+        return CheckResult("orientation", "pass", value=None, threshold=s["warn_below_upper_share"],
+                           message="the map is black: no orientation to check")
+    upper = float(ctx.row_power @ _upper_fraction_rows(ctx.height))
+    share = upper / total
+    brightest_row = int(np.unravel_index(np.argmax(ctx.luminance), ctx.luminance.shape)[0])
+    el = 90.0 - (brightest_row + 0.5) * 180.0 / ctx.height
+    details = {"upper_share": share, "brightest_elevation_deg": el}
+    msg = f"upper hemisphere holds {_pct(share)} of the light (brightest pixel at elevation {_fmt(el)} deg)"
+    if share < s["warn_below_upper_share"]:
+        return CheckResult("orientation", "warn", value=share, threshold=s["warn_below_upper_share"],
+                           message=msg + ": the map looks upside down",
+                           remedy="flip it vertically (row 0 must be the zenith) or check the up axis of the export",
+                           details=details)
+    return CheckResult("orientation", "pass", value=share, threshold=s["warn_below_upper_share"], message=msg,
+                       details=details)
+
+
+def _check_sun(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("sun")
+    listed = [e for e in ctx.emitters if e.share >= s["min_share"]][: s["max_listed"]]
+    sunlike = [e for e in listed if e.diameter_deg <= s["compact_max_deg"]]
+    details = {"emitters": [e.to_dict() | {"sun_like": e.diameter_deg <= s["compact_max_deg"]} for e in listed],
+               "sun_diameter_deg": _SUN_DIAMETER_DEG}
+    if not sunlike:
+        if listed:
+            e = listed[0]
+            msg = (f"no sun-like emitter; brightest region at azimuth {_fmt(e.azimuth_deg)} deg, elevation "
+                   f"{_fmt(e.elevation_deg)} deg is {_fmt(e.diameter_deg)} deg across with {_pct(e.share)} of the light")
+        else:
+            msg = "no compact emitter stands out (diffuse light)"
+        return CheckResult("sun", "pass", value=None, threshold=s["warn_diameter_deg"], message=msg, details=details)
+    e = sunlike[0]
+    if e.resolved:
+        size = (f"{_fmt(e.diameter_deg)} deg across, {_fmt(e.diameter_deg / _SUN_DIAMETER_DEG)}x the sun's "
+                f"{_SUN_DIAMETER_DEG:.3f} deg")
+    else:
+        size = (f"unresolved in {e.pixels} px (one pixel is {_fmt(e.pixel_diameter_deg)} deg, "
+                f"the sun {_SUN_DIAMETER_DEG:.3f} deg)")
+    msg = (f"sun-like emitter at azimuth {_fmt(e.azimuth_deg)} deg, elevation {_fmt(e.elevation_deg)} deg: "
+           f"{_pct(e.share)} of the light, {_fmt(e.solid_angle_sr)} sr, {size}")
+    if e.resolved and e.diameter_deg > s["warn_diameter_deg"]:
+        return CheckResult("sun", "warn", value=e.diameter_deg, threshold=s["warn_diameter_deg"],
+                           message=msg + ": glare, bloom or blur spread it",
+                           remedy="expect soft shadows; separate the sun into an analytic light of 0.533 deg for sharp ones",
+                           details=details)
+    return CheckResult("sun", "pass", value=e.diameter_deg, threshold=s["warn_diameter_deg"], message=msg,
+                       details=details)
+
+
+def _fibonacci_normals(n: int) -> np.ndarray:
+    """``n`` unit vectors on the spherical Fibonacci lattice (Gonzalez 2010), float64 (n, 3), y up."""
+    i = np.arange(n) + 0.5
+    y = 1.0 - 2.0 * i / n
+    r = np.sqrt(np.maximum(0.0, 1.0 - y * y))
+    golden = math.pi * (3.0 - math.sqrt(5.0))
+    phi = golden * i
+    return np.column_stack([r * np.cos(phi), y, r * np.sin(phi)])
+
+
+def _cos_weights(height: int, width: int) -> np.ndarray:
+    """Integral of cos(theta) over one pixel of each row above the horizon, sr (H,): pi/W (sin^2 b - sin^2 a)."""
+    edges = np.minimum(np.pi * np.arange(height + 1) / height, math.pi / 2.0)
+    s2 = np.sin(edges) ** 2
+    return (math.pi / width) * np.diff(s2)
+
+
+def _check_light_level(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("light-level")
+    cw = _cos_weights(ctx.height, ctx.width)
+    e = float(ctx.luminance.sum(axis=1, dtype=np.float64) @ cw) * s["scale"]
+    e_rgb = (ctx.rgb.sum(axis=1, dtype=np.float64) * cw[:, None]).sum(axis=0) * s["scale"]
+    details = {"irradiance_up": e, "irradiance_up_rgb": e_rgb.tolist(), "calibrated": s["calibrated"],
+               "note": PHOTOMETRY_NOTE}
+    if not e > 0.0:
+        return CheckResult("light-level", "warn", value=e, threshold=None,
+                           message="no light reaches an up-facing surface: the upper hemisphere is black",
+                           remedy="check the exposure and the orientation of the map", details=details)
+    if not s["calibrated"]:
+        return CheckResult("light-level", "pass", value=e, threshold=None,
+                           message=(f"irradiance on an up-facing surface {_fmt(e)} (map units x sr; "
+                                    f"{PHOTOMETRY_NOTE})"),
+                           details=details)
+    details["unit"] = "lx"
+    msg = f"about {_fmt(e)} lux on an up-facing surface ({PHOTOMETRY_NOTE})"
+    lo, hi = s["warn_below_lux"], s["warn_above_lux"]
+    if e < lo or e > hi:
+        return CheckResult("light-level", "warn", value=e, threshold=lo if e < lo else hi,
+                           message=msg + f": outside {_fmt(lo)}..{_fmt(hi)} lux",
+                           remedy="check the calibration scale (cd/m2 per map unit) in the profile",
+                           details=details)
+    return CheckResult("light-level", "pass", value=e, threshold=[lo, hi], message=msg, details=details)
+
+
+_CHROMA_KEYS = (("red", "r"), ("green", "g"), ("blue", "b"), ("white", "w"))
+
+
+def _chroma_distance(file_chroma: dict, name: str) -> float:
+    p = PRIMARIES[name]
+    return max(math.dist(tuple(file_chroma[a]), p[b]) for a, b in _CHROMA_KEYS)
+
+
+def _check_chromaticities(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("chromaticities")
+    assumed = ctx.profile.primaries
+    chroma = ctx.image.chromaticities
+    if chroma is None:
+        basis = "OpenEXR's default" if ctx.image.format == "exr" else "no primaries in the file"
+        return CheckResult("chromaticities", "pass", value=None, threshold=s["tolerance"],
+                           message=f"no chromaticities stored ({basis}); assuming {assumed}")
+    named = {n: _chroma_distance(chroma, n) for n in PRIMARIES}
+    best = min(named, key=named.get)
+    match = best if named[best] <= s["tolerance"] else None
+    details = {"file": {k: list(v) for k, v in chroma.items()}, "matches": match, "assumed": assumed}
+    if assumed not in PRIMARIES:
+        return CheckResult("chromaticities", "pass", value=match, threshold=s["tolerance"],
+                           message=f"file primaries {match or 'unnamed'}; luminance uses the channel {assumed}",
+                           details=details)
+    d = named[assumed]
+    if d <= s["tolerance"]:
+        return CheckResult("chromaticities", "pass", value=d, threshold=s["tolerance"],
+                           message=f"file primaries match the assumed {assumed}", details=details)
+    said = match or "unnamed primaries"
+    return CheckResult("chromaticities", "warn", value=d, threshold=s["tolerance"],
+                       message=f"file says {said} but luminance assumes {assumed} (xy off by {_fmt(d)})",
+                       remedy=(f"set [profile] primaries = \"{match}\"" if match else
+                               "convert the map to a known RGB space, or set [profile] primaries"),
+                       details=details)
+
+
+#: The checks, by id, in the order they run and are reported.  Each takes a
+#: :class:`CheckContext` and returns a :class:`CheckResult`; each id has a profile section.
+CHECKS: dict[str, Callable[[CheckContext], CheckResult]] = {
+    "read": _check_read,
+    "hdr": _check_hdr,
+    "pixel-type": _check_pixel_type,
+    "channels": _check_channels,
+    "aspect": _check_aspect,
+    "resolution": _check_resolution,
+    "nan": _check_nan,
+    "inf": _check_inf,
+    "negative": _check_negative,
+    "dynamic-range": _check_dynamic_range,
+    "clipping": _check_clipping,
+    "seam": _check_seam,
+    "poles": _check_poles,
+    "orientation": _check_orientation,
+    "sun": _check_sun,
+    "light-level": _check_light_level,
+    "chromaticities": _check_chromaticities,
+}
+
+
+# =============================================================================
+# the entry point
+# =============================================================================
+
+
+def _file_sha256(p: Path) -> str | None:
+    try:
+        h = hashlib.sha256()
+        with open(p, "rb") as f:
+            for block in iter(lambda: f.read(1 << 20), b""):
+                h.update(block)
+        return h.hexdigest()
+    except OSError:
+        return None
+
+
+def _file_size(p: Path) -> int | None:
+    try:
+        return int(p.stat().st_size) if p.is_file() else None
+    except OSError:
+        return None
+
+
+def check_map(path_or_image, *, profile=None, checks: Iterable[str] | None = None) -> Report:
+    """Run the QA checks on one map.
+
+    Parameters
+    ----------
+    path_or_image : str, PathLike, MapImage or array_like (H, W, 3)
+        A file (read with :func:`envsample.io.read_map`), a map already read, or
+        linear RGB radiance in memory (row 0 at the zenith).
+    profile : Profile, str, PathLike, Mapping or None
+        Thresholds (see :func:`load_profile`); None uses the defaults.
+    checks : iterable of str, optional
+        Only these check ids (``read`` always runs); default all enabled ones.
+
+    Returns
+    -------
+    Report
+        An unreadable file gives a report with a failing ``read`` check and
+        ``readable=False`` (exit code 2); nothing is raised for it.
+
+    Raises
+    ------
+    TypeError
+        ``path_or_image`` is of an unsupported type.
+    ProfileError
+        The profile is invalid.  ValueError: an unknown id in ``checks``.
+    """
+    prof = load_profile(profile)
+    wanted = None
+    if checks is not None:
+        wanted = set(checks)
+        unknown = sorted(wanted - set(CHECKS))
+        if unknown:
+            raise ValueError(f"unknown check id(s) {', '.join(unknown)}; valid ids: {', '.join(CHECKS)}")
+    base = {"profile": prof.name, "profile_path": prof.path}
+    if isinstance(path_or_image, (str, os.PathLike)):
+        p = Path(path_or_image)
+        try:
+            image = read_map(p)
+        except MapReadError as e:
+            result = CheckResult("read", "fail", value=None, threshold=None, message=str(e),
+                                 remedy="check the path, or re-export the file (EXR, HDR)")
+            skipped = [{"id": cid, "reason": "the file could not be read"} for cid in CHECKS if cid != "read"]
+            return Report(source=Source(str(p), _file_sha256(p) if p.is_file() else None, _file_size(p)),
+                          checks=[result], skipped=skipped, readable=False, **base)
+        source = Source(str(p), image.sha256 or _file_sha256(p), _file_size(p))
+    elif isinstance(path_or_image, MapImage):
+        image = path_or_image
+        path = None if image.path is None else str(image.path)
+        source = Source(path, image.sha256, None if image.path is None else _file_size(Path(image.path)))
+    elif isinstance(path_or_image, np.ndarray) or isinstance(path_or_image, (list, tuple)):
+        image = MapImage.from_array(path_or_image)
+        source = Source(None, None, None)
+    else:
+        raise TypeError(
+            f"path_or_image must be a path, a MapImage or an (H, W, 3) array, got {type(path_or_image).__name__}"
+        )
+    ctx = CheckContext(image, prof)
+    results, skipped = [], []
+    for cid, fn in CHECKS.items():
+        if cid != "read" and wanted is not None and cid not in wanted:
+            skipped.append({"id": cid, "reason": "not requested"})
+            continue
+        if cid != "read" and not prof.enabled(cid):
+            skipped.append({"id": cid, "reason": "disabled in the profile"})
+            continue
+        results.append(fn(ctx))
+    return Report(source=source, checks=results, skipped=skipped, image=image.describe(), **base)
+
+
+# =============================================================================
+# formatting
+# =============================================================================
+
+_COLOURS = {"pass": "32", "warn": "33", "fail": "1;31"}
+
+
+def _paint(text: str, severity: str, color: bool) -> str:
+    return f"\x1b[{_COLOURS[severity]}m{text}\x1b[0m" if color else text
+
+
+def _cell(x, width: int) -> str:
+    if isinstance(x, list):
+        text = ",".join(_fmt(v) if not isinstance(v, str) else v for v in x)
+    elif isinstance(x, bool):
+        text = "yes" if x else "no"
+    elif isinstance(x, str):
+        text = x
+    else:
+        text = _fmt(x)
+    return text if len(text) <= width else text[: width - 1] + "~"
+
+
+def format_report(report, *, color: bool = False) -> str:
+    """A compact plain-text table of one report (or several, one block each).
+
+    One header line per file (verdict, counts, size, the start of the SHA-256),
+    then one line per check: severity, id, value, limit and message; warnings and
+    failures get a second line with the remedy.  ANSI colour only when ``color``.
+    """
+    if isinstance(report, Report):
+        reports = [report]
+    else:
+        reports = list(report)
+    blocks = []
+    for r in reports:
+        c = r.counts()
+        name = r.source.path or "<in memory>"
+        head = [name, _paint(r.verdict.upper(), r.verdict, color),
+                f"{c['fail']} fail, {c['warn']} warn, {c['pass']} pass"]
+        if r.image:
+            head.append(f"{r.image['width']}x{r.image['height']} {r.image['format']}")
+        if r.source.size is not None:
+            head.append(f"{r.source.size} bytes")
+        if r.source.sha256:
+            head.append(f"sha256 {r.source.sha256[:12]}")
+        lines = ["  ".join(head)]
+        idw = max([len(x.id) for x in r.checks] + [5])
+        lines.append(f"  {'':4}  {'check':<{idw}}  {'value':>10}  {'limit':>10}  message")
+        for x in r.checks:
+            sev = _paint(f"{x.severity:<4}", x.severity, color)
+            lines.append(f"  {sev}  {x.id:<{idw}}  {_cell(x.value, 10):>10}  {_cell(x.threshold, 10):>10}  {x.message}")
+            if x.severity != "pass" and x.remedy:
+                lines.append(f"  {'':4}  {'':<{idw}}  {'':>10}  {'':>10}  -> {x.remedy}")
+        if r.skipped:
+            ids = ", ".join(s["id"] for s in r.skipped)
+            lines.append(f"  skipped: {ids}")
+        blocks.append("\n".join(lines))
+    return "\n\n".join(blocks)
+
+
+def report_to_json(reports, *, indent: int | None = 2) -> str:
+    """JSON text of one or many reports (schema :data:`REPORTS_SCHEMA`), with a summary."""
+    if isinstance(reports, Report):
+        reports = [reports]
+    reports = list(reports)
+    summary = {"files": len(reports), "unreadable": sum(not r.readable for r in reports)}
+    for sev in SEVERITIES:
+        summary[sev] = sum(r.verdict == sev and r.readable for r in reports)
+    doc = {"schema": dict(REPORTS_SCHEMA), "summary": summary, "reports": [r.to_dict() for r in reports]}
+    return json.dumps(doc, indent=indent, allow_nan=False)
