@@ -1,0 +1,662 @@
+"""The ``envsample`` command line: a thin layer over the library.
+
+Every command calls one library function and formats its result:
+
+=========  =====================================================
+build      :func:`envsample.demo.build_from_file`
+inspect    :func:`envsample.demo.map_facts` / :func:`envsample.demo.table_facts`
+vectors    :func:`envsample.demo.golden_vectors` + :func:`envsample.demo.write_vectors`
+sky        :func:`envsample.skies.make_sky` + :func:`envsample.io.write_map`
+demo       :func:`envsample.demo.run_demo`
+=========  =====================================================
+
+Angles are degrees on the command line and radians inside the library.
+Errors a user can fix (:class:`envsample.errors.EnvsampleError`, click usage
+errors, ``OSError`` on files, ``ValueError`` from option checks) print one line
+``error: ...`` on stderr and exit with status 2; ``--debug`` adds the traceback.
+Anything else is a bug: one line, status 3, and the traceback with ``--debug``.
+Progress bars (tqdm) go to stderr and only appear on a terminal.
+Every input is checked before anything is written.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import inspect
+import json
+import math
+import sys
+import traceback
+import warnings
+from pathlib import Path
+
+import click
+
+from . import __version__
+from .errors import EnvsampleError, EnvsampleWarning
+
+__all__ = ["main", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR"]
+
+#: Exit status for input, usage and file errors.
+EXIT_USER_ERROR = 2
+#: Exit status for unexpected failures (bugs).
+EXIT_INTERNAL_ERROR = 3
+
+# Library messages name Python keyword arguments; on the command line the remedy is a flag.
+_FLAG_WORDS = (
+    ("pass repair=True", "pass --repair"),
+    ("(repair=True)", "(--repair)"),
+    ("validate_map(repair=True)", "--repair"),
+    ("pass allow_aspect=True", "pass --allow-aspect"),
+    ("because allow_aspect=True", "because of --allow-aspect"),
+    ("choose one with layer=NAME", "choose one with --layer NAME"),
+    ("pass one of them as layer=", "pass one of them with --layer"),
+    ("pixel_type='float'", "--pixel-type float"),
+)
+
+
+def _flags(message: str) -> str:
+    for lib, flag in _FLAG_WORDS:
+        message = message.replace(lib, flag)
+    return message
+
+
+def _one_line(message: str) -> str:
+    return " ".join(str(message).split())
+
+
+# --------------------------------------------------------------------------- errors
+
+
+def _describe_os_error(e: OSError) -> str:
+    if e.filename and e.strerror:
+        return f"{e.filename}: {e.strerror.lower()}; check the path and its permissions"
+    return str(e)
+
+
+# click >= 8.2 raises this for a bare 'envsample'; showing the help is the friendly answer.
+_NO_ARGS = getattr(click.exceptions, "NoArgsIsHelpError", ())
+
+
+class _Main(click.Group):
+    """The command group; turns errors into one line and an exit status."""
+
+    def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True, **extra):
+        argv = list(sys.argv[1:] if args is None else args)
+        options = argv[: argv.index("--")] if "--" in argv else argv
+        debug = "--debug" in options
+        try:
+            rv = super().main(argv, prog_name or "envsample", complete_var, standalone_mode=False, **extra)
+            code = rv if isinstance(rv, int) else 0
+        except _NO_ARGS as e:
+            e.show()
+            code = EXIT_USER_ERROR
+        except click.exceptions.Abort:
+            click.echo("error: interrupted; nothing partial was left behind (writes are atomic)", err=True)
+            code = 130
+        except click.ClickException as e:
+            if debug:
+                traceback.print_exc()
+            hint = ""
+            ctx = getattr(e, "ctx", None)
+            if isinstance(e, click.UsageError) and ctx is not None:
+                hint = f"; see '{ctx.command_path} --help'"
+            click.echo(f"error: {_one_line(e.format_message()).rstrip('.')}{hint}", err=True)
+            code = EXIT_USER_ERROR
+        except (EnvsampleError, ValueError, OSError) as e:
+            if debug:
+                traceback.print_exc()
+            text = _describe_os_error(e) if isinstance(e, OSError) and not isinstance(e, EnvsampleError) else str(e)
+            click.echo(f"error: {_one_line(_flags(text))}", err=True)
+            code = EXIT_USER_ERROR
+        except Exception as e:  # noqa: BLE001 - the last resort of a command-line tool
+            if debug:
+                traceback.print_exc()
+                hint = "please report the traceback above"
+            else:
+                hint = "this is a bug; rerun with --debug and report the traceback"
+            click.echo(f"error: internal error ({type(e).__name__}: {_one_line(e)}); {hint}", err=True)
+            code = EXIT_INTERNAL_ERROR
+        if standalone_mode:
+            sys.exit(code)
+        return code
+
+
+@contextlib.contextmanager
+def _warnings_as_lines(notes_seen: list[str]):
+    """Collect envsample warnings and print each once as ``warning: ...``, unless a printed note says it."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", EnvsampleWarning)
+        try:
+            yield
+        finally:
+            for w in caught:
+                text = _one_line(str(w.message))
+                if issubclass(w.category, EnvsampleWarning):
+                    if not any(n and n in text for n in notes_seen):
+                        click.echo(f"warning: {_flags(text)}", err=True)
+                else:
+                    warnings.showwarning(w.message, w.category, w.filename, w.lineno)
+
+
+def _progress_bar(total: int, desc: str):
+    """A tqdm bar on stderr, shown only when stderr is a terminal."""
+    from tqdm import tqdm
+
+    return tqdm(total=total, desc=desc, file=sys.stderr, leave=False, disable=not sys.stderr.isatty(),
+                bar_format="{desc} {bar} {n_fmt}/{total_fmt} [{elapsed}]")
+
+
+# --------------------------------------------------------------------------- formatting
+
+
+def _rows(pairs, *, out=None) -> None:
+    """Print ``key  value`` lines with the values aligned; a key of "" continues the previous key."""
+    pairs = [(k, v) for k, v in pairs if v is not None]
+    width = max((len(k) for k, _ in pairs), default=0)
+    for key, value in pairs:
+        click.echo(f"{key:<{width}}  {value}", file=out)
+
+
+def _num(x: float) -> str:
+    """A compact number: 4 significant digits, scientific only when needed."""
+    x = float(x)
+    if x == 0.0 or not math.isfinite(x):
+        return f"{x:g}"
+    if 1e-3 <= abs(x) < 1e6:
+        return f"{x:.4g}"
+    return f"{x:.3e}"
+
+
+def _bytes(n: int) -> str:
+    for unit, scale in (("GB", 1 << 30), ("MB", 1 << 20), ("kB", 1 << 10)):
+        if n >= scale:
+            return f"{n / scale:.1f} {unit}"
+    return f"{n} B"
+
+
+def _rgb_line(rgb, y=None, primaries=None) -> str:
+    text = "  ".join(f"{c} {_num(v)}" for c, v in zip("RGB", rgb))
+    if y is not None:
+        text += f"  Y {_num(y)}" + (f" ({primaries})" if primaries else "")
+    return text
+
+
+def _direction_text(d: dict) -> str:
+    return f"azimuth {d['azimuth_deg']:.1f} deg, elevation {d['elevation_deg']:.1f} deg"
+
+
+def _echo_json(doc) -> None:
+    click.echo(json.dumps(doc, indent=2))
+
+
+# --------------------------------------------------------------------------- parameter types
+
+
+class _SizeType(click.ParamType):
+    """``WIDTHxHEIGHT`` -> (width, height)."""
+
+    name = "WxH"
+
+    def convert(self, value, param, ctx):
+        if isinstance(value, tuple):
+            return value
+        from .table import parse_size
+
+        try:
+            return parse_size(value)
+        except ValueError as e:
+            self.fail(str(e), param, ctx)
+
+
+class _FiniteFloat(click.ParamType):
+    """A finite float, optionally within [lo, hi]."""
+
+    name = "DEG"
+
+    def __init__(self, lo=-math.inf, hi=math.inf, name="NUMBER"):
+        self.lo, self.hi, self.name = lo, hi, name
+
+    def convert(self, value, param, ctx):
+        try:
+            x = float(value)
+        except (TypeError, ValueError):
+            self.fail(f"{value!r} is not a number", param, ctx)
+        if not math.isfinite(x) or not self.lo <= x <= self.hi:
+            self.fail(f"{value} is outside [{self.lo:g}, {self.hi:g}]", param, ctx)
+        return x
+
+
+SIZE = _SizeType()
+DEGREES = _FiniteFloat(-360.0, 360.0, "DEG")
+
+PRIMARY_CHOICES = ("bt709", "srgb", "bt2020", "acescg", "aces2065-1", "max", "mean")
+
+
+# --------------------------------------------------------------------------- the group
+
+
+@click.group(cls=_Main, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+@click.version_option(__version__, "--version", prog_name="envsample", message="%(prog)s %(version)s")
+@click.option("--debug", is_flag=True, help="Show the traceback of an error (give it before the command).")
+def main(debug):
+    """Check equirectangular HDR environment maps, build their importance-sampling
+    tables, and write golden vectors for checking a renderer's loader.
+
+    Angles are given in degrees. Errors print one line and exit with status 2.
+    Start with 'envsample demo' to see the whole flow on invented maps.
+    """
+
+
+# --------------------------------------------------------------------------- build
+
+
+@main.command()
+@click.argument("map_path", metavar="MAP", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("-o", "--output", "prefix", required=True, metavar="PREFIX",
+              help="Table prefix: writes PREFIX.npz and PREFIX.json (and PREFIX.bin with --raw). "
+                   "An existing folder (or a path ending in '/') gets the map's name. "
+                   "Missing folders are created, but only once the map has passed every check.")
+@click.option("--size", type=SIZE, default=None, help="Table grid WIDTHxHEIGHT (area-weighted, power-preserving "
+              "reduction); default: the map's own size.")
+@click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
+              show_default=True, help="Luminance weights the table follows.")
+@click.option("--mapping", type=click.Choice(["equal-area", "uv-linear"]), default="equal-area", show_default=True,
+              help="Placement within a cell: equal-area (pdf constant per cell) or uv-linear.")
+@click.option("--uniform-mix", type=click.FloatRange(0.0, 1.0, max_open=True), default=0.0, show_default=True,
+              metavar="F", help="Weight of uniform sphere sampling mixed in, so the pdf is never zero.")
+@click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True, help="World up axis.")
+@click.option("--rotate", "rotate_deg", type=DEGREES, default=0.0, show_default=True,
+              help="Rotation of the map about the up axis, degrees.")
+@click.option("--compensate", is_flag=True, help="MIS-compensated table (sphere-mean luminance subtracted); "
+              "valid only inside an MIS combination.")
+@click.option("--raw", is_flag=True, help="Also write PREFIX.bin: little-endian arrays at offsets listed in the JSON.")
+@click.option("--repair", is_flag=True, help="Replace NaN/Inf pixels with 0 (and say how many) instead of refusing.")
+@click.option("--allow-aspect", is_flag=True, help="Accept a map that is not 2:1.")
+@click.option("--layer", default=None, metavar="NAME", help="EXR layer to read when the file has several.")
+def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_deg, compensate, raw, repair,
+          allow_aspect, layer):
+    """Build the sampling table of MAP (.exr or .hdr).
+
+    The map is read and checked (HDR, finite, 2:1, at least 8x4; negative
+    values are clamped and counted) before anything is written. Existing
+    table files with the same prefix are replaced atomically.
+    """
+    from .demo import ESTIMATE_CAVEAT, build_from_file
+
+    printed: list[str] = []
+    with _warnings_as_lines(printed), _progress_bar(4, "build") as bar:
+        def progress(label):
+            bar.set_description(label)
+            bar.update(1)
+
+        result = build_from_file(
+            map_path, prefix, raw=raw, repair=repair, allow_aspect=allow_aspect, layer=layer, progress=progress,
+            size=size, primaries=primaries.lower(), mapping=mapping, uniform_mix=uniform_mix, up=up,
+            rotate_deg=rotate_deg, compensate=compensate,
+        )
+        printed.extend(result.notes)
+    t, img = result.table, result.image
+    opts = [t.mapping, f"primaries {t.primaries}", f"up {t.up}", f"rotation {t.rotate_deg:g} deg"]
+    if t.uniform_mix:
+        opts.append(f"uniform mix {t.uniform_mix:g}")
+    if t.compensated:
+        opts.append("compensated (valid only inside MIS)")
+    rows = [
+        ("map", f"{img.path}  {img.width}x{img.height} {img.format} {img.pixel_type}, sha256 {img.sha256[:12]}"),
+        ("table", f"{t.table_width}x{t.table_height} cells, " + ", ".join(opts)),
+        ("integral", _rgb_line(t.integrals["rgb"], t.integrals["luminance"]) + "  (map units x sr)"),
+        ("time", f"{result.seconds:.2f} s to build"),
+    ]
+    for k, note in enumerate(result.notes):
+        rows.append(("note" if k == 0 else "", _flags(note)))
+    for k, p in enumerate(result.paths):
+        rows.append(("wrote" if k == 0 else "", f"{p}  ({_bytes(p.stat().st_size)})"))
+    _rows(rows)
+    click.echo(f"({ESTIMATE_CAVEAT})")
+
+
+# --------------------------------------------------------------------------- inspect
+
+
+def _is_table(path: Path) -> bool:
+    if path.suffix.lower() in (".json", ".npz", ".bin"):
+        return True
+    return not path.suffix and path.with_name(path.name + ".json").exists()
+
+
+def _print_map_facts(f: dict) -> None:
+    rng = f["range"]
+    integ = f["integrals"]
+    b = f["brightest"]
+    size = f"{f['width']}x{f['height']}" + ("" if f["width"] == 2 * f["height"] else "  (not 2:1)")
+    kind = f"{f['format']}, {f['pixel_type']}, channels {' '.join(f['channels'] or [])}"
+    if f.get("compression"):
+        kind += f", {f['compression']} compression"
+    if f.get("file_bytes") is not None:
+        kind += f", {_bytes(f['file_bytes'])}"
+    if not f["is_hdr"]:
+        kind += "  (LDR)"
+    bad = []
+    if f["non_finite_values"]:
+        bad.append(f"{f['non_finite_values']} NaN/Inf values (counted as 0 below)")
+    if f["negative_values"]:
+        bad.append(f"{f['negative_values']} negative values")
+    verdict = "ok" if f["build"]["ok"] else "refused: " + _flags(f["build"]["problem"])
+    if f["build"]["ok"] and f["build"]["notes"]:
+        verdict += " (" + "; ".join(_flags(n) for n in f["build"]["notes"]) + ")"
+    chroma = f.get("chromaticities")
+    _rows([
+        ("map", f["path"]),
+        ("file", kind),
+        ("sha256", f["sha256"]),
+        ("size", size),
+        ("range", "  ".join(f"{c} {_num(lo)}..{_num(hi)}" for c, lo, hi in zip("RGB", rng["min"], rng["max"]))),
+        ("pixels", "; ".join(bad) if bad else None),
+        ("primaries", None if chroma is None else "file says " + ", ".join(
+            f"{k} ({v[0]:.4f}, {v[1]:.4f})" for k, v in chroma.items())),
+        ("integral", _rgb_line(integ["rgb"], integ["luminance"], integ["primaries"]) + "  (map units x sr)"),
+        ("brightest", f"{_direction_text(b)}  (pixel row {b['row']}, col {b['col']}; Y {_num(b['luminance'])})"),
+        ("build", verdict),
+    ])
+    click.echo(f"({f['caveat']})")
+
+
+def _print_table_facts(f: dict) -> None:
+    o, integ, big = f["options"], f["integrals"], f["largest_cell"]
+    conv = f["convention"]
+    opts = [f["mapping"], f"primaries {f['primaries']}", f"up {conv['up_axis']}",
+            f"rotation {float(conv['rotation_deg']):g} deg"]
+    if o.get("uniform_mix"):
+        opts.append(f"uniform mix {o['uniform_mix']:g}")
+    if f["valid_only_inside_mis"]:
+        opts.append("compensated: valid only inside MIS")
+    src = f.get("source") or {}
+    source = None
+    if src:
+        source = f"{Path(src['path']).name if src.get('path') else '(in memory)'}"
+        if src.get("sha256"):
+            source += f"  sha256 {src['sha256'][:12]}"
+    rows = [
+        ("table", f["path"]),
+        ("schema", f"{f['schema']}, written by envsample {f['tool_version']}"),
+        ("source", source),
+        ("size", f"image {f['image']['width']}x{f['image']['height']}, "
+                 f"table {f['table']['width']}x{f['table']['height']} cells"),
+        ("options", ", ".join(opts)),
+        ("integral", _rgb_line(integ["rgb"], integ["luminance"], f["primaries"]) + "  (map units x sr)"),
+        ("cells", f"{f['nonzero_cells']} of {f['cells']} have nonzero probability "
+                  f"({100.0 * f['nonzero_cells'] / f['cells']:.1f}%)"),
+        ("largest", f"p {_num(big['probability'])} ({_num(big['pdf_per_sr'])} /sr) at {_direction_text(big)}"),
+    ]
+    if f.get("recommendation"):
+        rows.append(("advice", json.dumps(f["recommendation"])))
+    for k, note in enumerate(f["notes"]):
+        rows.append(("note" if k == 0 else "", note))
+    for k, item in enumerate(f["files"]):
+        rows.append(("files" if k == 0 else "", f"{item['path']}  ({_bytes(item['bytes'])})"))
+    _rows(rows)
+    click.echo(f"({f['caveat']})")
+
+
+@main.command("inspect")
+@click.argument("target", metavar="MAP_OR_TABLE", type=click.Path(path_type=Path))
+@click.option("--json", "as_json", is_flag=True, help="Print the facts as JSON.")
+@click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
+              show_default=True, help="Luminance weights for a map's Y integral and brightest pixel.")
+@click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True,
+              help="Up axis for a map's direction vectors (azimuth and elevation do not depend on it).")
+@click.option("--layer", default=None, metavar="NAME", help="EXR layer to read when the file has several.")
+def inspect_command(target, as_json, primaries, up, layer):
+    """Show the facts of a map or of a saved table.
+
+    MAP_OR_TABLE is a map (.exr, .hdr, or an LDR image, which build refuses),
+    or a table given by its prefix or its .json/.npz/.bin file. A table is
+    loaded and verified (checksums, shapes, CDFs) on the way.
+    """
+    from .demo import map_facts, table_facts
+
+    if _is_table(target):
+        facts = table_facts(target)
+        show = _print_table_facts
+    else:
+        from .io import read_map
+
+        facts = map_facts(read_map(target, layer=layer), primaries=primaries.lower(), up=up)
+        show = _print_map_facts
+    if as_json:
+        _echo_json(facts)
+    else:
+        show(facts)
+
+
+# --------------------------------------------------------------------------- vectors
+
+
+@main.command()
+@click.argument("table_path", metavar="TABLE", type=click.Path(path_type=Path))
+@click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False, path_type=Path),
+              metavar="FILE", help="JSON file to write (atomically; missing folders are created).")
+@click.option("--count", "-n", type=click.IntRange(1, 100_000), default=256, show_default=True,
+              help="Number of vectors.")
+@click.option("--seed", "-s", type=click.IntRange(0, None), default=0, show_default=True,
+              help="Seed of numpy.random.default_rng that draws the uniforms.")
+@click.option("--method", type=click.Choice(["inverse", "alias", "both"]), default="both", show_default=True,
+              help="Cell choice to record.")
+def vectors(table_path, output, count, seed, method):
+    """Write golden test vectors of a saved TABLE (prefix or its .json).
+
+    Each vector holds the two uniforms u that went in and, per method, the
+    direction, pdf (per steradian), cell index and radiance that came out. A
+    loader in another language reads the same table, feeds it the same u and
+    must give the same results. The same seed always writes the same file.
+    """
+    from .demo import check_output_folder, golden_vectors, write_vectors
+    from .tableio import load_table, table_paths
+
+    check_output_folder(output)
+    table = load_table(table_path)
+    doc = golden_vectors(table, count=count, seed=seed, method=method, table_json=table_paths(table_path)["json"])
+    path = write_vectors(output, doc)
+    _rows([
+        ("table", f"{table_paths(table_path)['json']}  ({table.table_width}x{table.table_height} cells, "
+                  f"{table.mapping})"),
+        ("vectors", f"{count} x {', '.join(doc['methods'])}, seed {seed}"),
+        ("wrote", f"{path}  ({_bytes(path.stat().st_size)})"),
+    ])
+
+
+# --------------------------------------------------------------------------- sky
+
+
+#: CLI option -> (make_sky keyword, the kinds that take it).
+SKY_OPTIONS = {
+    "elevation": ("elevation_deg", ("sun",)),
+    "azimuth": ("azimuth_deg", ("sun",)),
+    "sun_illuminance": ("sun_illuminance", ("sun",)),
+    "sky_model": ("sky", ("sun",)),
+    "zenith": ("zenith_luminance", ("overcast", "sun")),
+    "ground_albedo": ("ground_albedo", ("overcast", "sun")),
+    "radiance": ("radiance", ("uniform",)),
+    "background": ("background", ("studio",)),
+    "lights": ("lights", ("studio",)),
+}
+
+
+def _flag_name(option: str) -> str:
+    return "--light" if option == "lights" else "--" + option.replace("_", "-")
+
+
+def _parse_light(text: str):
+    parts = text.split(",")
+    try:
+        values = [float(p) for p in parts]
+    except ValueError:
+        values = []
+    if len(values) != 5 or not all(math.isfinite(v) for v in values):
+        raise click.BadParameter(
+            f"{text!r} is not AZ0,AZ1,EL0,EL1,RADIANCE (degrees and a radiance, e.g. -50,-20,20,50,5)",
+            param_hint="'--light'",
+        )
+    a0, a1, e0, e1, radiance = values
+    return ((a0, a1), (e0, e1), radiance)
+
+
+def _sky_kinds():
+    from .skies import sky_kinds
+
+    return sky_kinds()
+
+
+def _sky_help() -> str:
+    from .skies import SKY_DESCRIPTIONS
+
+    return "\n".join(f"{k:<16}{v}" for k, v in SKY_DESCRIPTIONS.items())
+
+
+@main.command()
+@click.argument("kind", metavar="KIND", type=click.Choice(_sky_kinds()))
+@click.option("-o", "--output", "output", required=True, type=click.Path(dir_okay=False, path_type=Path),
+              metavar="MAP", help="Map to write: .exr or .hdr (atomically; missing folders are created).")
+@click.option("--size", type=SIZE, default="1024x512", show_default=True, help="Map size WIDTHxHEIGHT.")
+@click.option("--pixel-type", type=click.Choice(["half", "float"]), default="half", show_default=True,
+              help="EXR pixel type (.hdr is always RGBE).")
+@click.option("--elevation", type=_FiniteFloat(-90.0, 90.0, "DEG"), default=None, help="sun: elevation, degrees.")
+@click.option("--azimuth", type=DEGREES, default=None, help="sun: azimuth, degrees (0 = image centre, + to the right).")
+@click.option("--sun-illuminance", type=_FiniteFloat(0.0, math.inf, "E"), default=None,
+              help="sun: illuminance on a surface facing the sun (map units x sr).")
+@click.option("--sky-model", type=click.Choice(["clear", "overcast", "none"]), default=None,
+              help="sun: the sky behind the sun.")
+@click.option("--zenith", type=_FiniteFloat(0.0, math.inf, "L"), default=None,
+              help="overcast, sun: zenith radiance of the sky.")
+@click.option("--ground-albedo", type=_FiniteFloat(0.0, 1.0, "A"), default=None,
+              help="overcast, sun: albedo of a Lambertian ground lit by the sky (default: black ground).")
+@click.option("--radiance", type=_FiniteFloat(0.0, math.inf, "L"), default=None, help="uniform: the radiance.")
+@click.option("--background", type=_FiniteFloat(0.0, math.inf, "L"), default=None,
+              help="studio: background radiance.")
+@click.option("--light", "lights", multiple=True, metavar="AZ0,AZ1,EL0,EL1,L",
+              help="studio: a rectangular light from azimuth AZ0 to AZ1 and elevation EL0 to EL1 (degrees) "
+                   "with radiance L; repeat for more lights.")
+def sky(kind, output, size, pixel_type, **given):
+    """Write an analytic map of the given KIND.
+
+    \b
+    KIND is one of:
+    {kinds}
+
+    Options apply to the kinds named in their help; others are refused.
+    """
+    from .constants import HALF_FLOAT_MAX
+    from .demo import check_output_folder
+    from .io import supported_extensions, write_map
+    from .skies import make_sky, sun_position
+
+    if output.suffix.lower() not in supported_extensions(write=True):
+        raise click.BadParameter(f"{output}: write .exr or .hdr", param_hint="'-o' / '--output'")
+    check_output_folder(output)
+    options = {}
+    for name, value in given.items():
+        if value is None or value == ():
+            continue
+        keyword, kinds = SKY_OPTIONS[name]
+        if kind not in kinds:
+            valid = [_flag_name(n) for n, (_, ks) in SKY_OPTIONS.items() if kind in ks]
+            raise click.UsageError(
+                f"{_flag_name(name)} does not apply to sky '{kind}'; options for it: {', '.join(valid) or 'none'}"
+            )
+        options[keyword] = [_parse_light(v) for v in value] if name == "lights" else value
+    width, height = size
+    rgb = make_sky(kind, width=width, height=height, **options)
+    peak = float(rgb.max())
+    if output.suffix.lower() == ".exr" and pixel_type == "half" and peak > HALF_FLOAT_MAX:
+        raise click.UsageError(
+            f"{output}: the map peaks at {peak:.4g}, above the half-float maximum 65504; use --pixel-type float"
+        )
+    output.parent.mkdir(parents=True, exist_ok=True)
+    path = write_map(output, rgb, pixel_type=pixel_type)
+    from .demo import ESTIMATE_CAVEAT, map_integrals
+
+    per_rgb, y, _ = map_integrals(rgb, "bt709")
+    sun = sun_position(kind, **options)
+    what = f"{width}x{height} {kind}" + ("" if path.suffix.lower() == ".hdr" else f", {pixel_type} EXR")
+    _rows([
+        ("map", what),
+        ("sun", None if sun is None else f"elevation {sun[0]:g} deg, azimuth {sun[1]:g} deg"),
+        ("peak", _num(peak)),
+        ("integral", _rgb_line(per_rgb, y, "bt709") + "  (map units x sr)"),
+        ("wrote", f"{path}  ({_bytes(path.stat().st_size)})"),
+    ])
+    click.echo(f"({ESTIMATE_CAVEAT})")
+
+
+sky.help = inspect.cleandoc(sky.help).replace("{kinds}", _sky_help())
+
+
+# --------------------------------------------------------------------------- demo
+
+
+@main.command()
+@click.argument("outdir", required=False, default="envsample-demo", type=click.Path(file_okay=False, path_type=Path))
+@click.option("--width", type=click.IntRange(16, 8192), default=1024, show_default=True,
+              help="Width of the generated maps (height is half of it); must be even.")
+@click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
+def demo(outdir, width, as_json):
+    """Run the whole flow on invented maps.
+
+    Writes into OUTDIR (default envsample-demo, created if missing). Generates a late-afternoon rooftop, a product studio and an overcast sky
+    as .exr maps, builds their tables (the rooftop's also as raw .bin), writes
+    golden vectors for the rooftop and prints a summary. Nothing is downloaded.
+    """
+    from .demo import demo_steps, run_demo
+
+    if width % 2:
+        raise click.BadParameter(f"{width} is odd; the maps are 2:1, give an even width", param_hint="'--width'")
+    steps = demo_steps()
+    with _progress_bar(len(steps), "demo") as bar:
+        def progress(label, done, total):
+            bar.set_description(label)
+            bar.n = done
+            bar.refresh()
+
+        summary = run_demo(outdir, width=width, steps=steps, progress=progress)
+    if as_json:
+        _echo_json(summary)
+        return
+    _print_demo(summary)
+
+
+def _print_demo(s: dict) -> None:
+    header = ("map", "size", "integral Y", "brightest (az, el)", "table", "build")
+    lines = []
+    for m in s["maps"]:
+        if "size" not in m:
+            continue
+        b = m["brightest"]
+        lines.append((
+            m["name"],
+            f"{m['size'][0]}x{m['size'][1]}",
+            _num(m["integrals"]["luminance"]),
+            f"{b['azimuth_deg']:.1f}, {b['elevation_deg']:.1f} deg",
+            f"{m['table_size'][0]}x{m['table_size'][1]}",
+            f"{m['build_seconds']:.2f} s",
+        ))
+    widths = [max(len(r[i]) for r in [header] + lines) for i in range(len(header))]
+    click.echo(f"demo in {s['outdir']}: invented scenes, generated here ({len(s['files'])} files, "
+               f"{s['seconds']:.1f} s)")
+    click.echo("")
+    for r in [header] + lines:
+        click.echo("  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip())
+    click.echo("")
+    for m in s["maps"]:
+        click.echo(f"{m['name']:<{widths[0]}}  {m['description']}")
+    for v in s["vectors"]:
+        click.echo(f"golden vectors: {v['path']} ({v['count']}, seed {v['seed']})")
+    first = next((m for m in s["maps"] if "table_files" in m), None)
+    if first is not None:
+        json_file = next(p for p in first["table_files"] if p.endswith(".json"))
+        click.echo(f"next: envsample inspect {json_file}")
+    click.echo(f"({s['caveat']})")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()
