@@ -56,7 +56,7 @@ def overcast_map(zenith=1.0, h=32, w=64):
     Each upper-hemisphere row holds the cosine-weighted mean of L over the row, so the
     horizontal irradiance of the *pixel* map is exactly the continuous one, 7 pi / 9 Lz.
     """
-    def moments(c0, c1):  # integral over the row band of L cos dmu / (2 pi / W) factor cancels
+    def moments(c0, c1):  # integral of L(mu) mu dmu over the row band (the azimuth factor cancels)
         return zenith / 3.0 * ((c0**2 - c1**2) / 2.0 + 2.0 * (c0**3 - c1**3) / 3.0)
 
     rows = _cos_weighted_row_means(h, moments)
