@@ -36,6 +36,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._accel import kernels
+
 __all__ = [
     "build_cdf",
     "build_row_cdfs",
@@ -82,7 +84,7 @@ def build_cdf(weights) -> tuple[np.ndarray, float]:
     return out, total
 
 
-def build_row_cdfs(weights, *, row_scale=None, out=None) -> tuple[np.ndarray, np.ndarray]:
+def build_row_cdfs(weights, *, row_scale=None, out=None, backend: str = "auto") -> tuple[np.ndarray, np.ndarray]:
     """Conditional CDFs of every row of a 2D table, and the row totals.
 
     ``weights`` (h, w) may be float32; each row's running sum is accumulated in
@@ -100,6 +102,11 @@ def build_row_cdfs(weights, *, row_scale=None, out=None) -> tuple[np.ndarray, np
         out = np.empty((h, n + 1), dtype=np.float32)
     totals = np.empty(h, dtype=np.float64)
     scale = None if row_scale is None else np.asarray(row_scale, dtype=np.float64)
+    k_mod = kernels(backend)
+    if k_mod is not None and w.dtype == np.float32 and w.flags.c_contiguous and out.flags.c_contiguous:
+        s = np.ones(h) if scale is None else np.ascontiguousarray(scale, dtype=np.float64)
+        k_mod.row_cdfs(w, s, out, totals, h, n)
+        return out, totals
     step = max(1, min(h, _CHUNK_CELLS // n))
     buf = np.empty((step, n), dtype=np.float64)
     uniform = (np.arange(n + 1) / n).astype(np.float32)
@@ -193,7 +200,7 @@ def sample_row_cdfs(cdf2d, rows, u) -> tuple[np.ndarray, np.ndarray]:
     return lo, np.clip(frac, 0.0, 1.0)
 
 
-def build_alias(weights, *, row_scale=None) -> tuple[np.ndarray, np.ndarray]:
+def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.ndarray, np.ndarray]:
     """Alias table over the flattened cells of ``weights`` (vectorised sweeping construction).
 
     Parameters
@@ -214,7 +221,9 @@ def build_alias(weights, *, row_scale=None) -> tuple[np.ndarray, np.ndarray]:
     A draw picks bucket ``k = floor(u * n)`` uniformly and keeps ``k`` with
     probability ``prob[k]``, else returns ``alias[k]``.  An all-zero input gives the
     uniform table.  See the module docstring for the construction (Vose 1991;
-    Hübschle-Schneider & Sanders 2022).
+    Hübschle-Schneider & Sanders 2022).  ``backend`` chooses the compiled sweep
+    (in place, O(n), no extra memory) or the vectorised numpy version
+    (see :mod:`envsample._accel`); both encode the same probabilities to float32 rounding.
     """
     w = np.asarray(weights)
     if w.ndim not in (1, 2) or w.size == 0:
@@ -233,6 +242,19 @@ def build_alias(weights, *, row_scale=None) -> tuple[np.ndarray, np.ndarray]:
 
     step = max(1, _CHUNK_CELLS // ncol)
     chunks = [(r0, min(h, r0 + step)) for r0 in range(0, h, step)]
+
+    k_mod = kernels(backend)
+    if k_mod is not None:
+        # p = n * w / total in float32 straight into ``prob``; the sweep corrects its
+        # rounding drift with the float64 factor n / sum(p).
+        prob2 = prob.reshape(h, ncol)
+        psum = 0.0
+        for r0, r1 in chunks:
+            f = (scale[r0:r1] * (n / total)).astype(np.float32)
+            np.multiply(w2[r0:r1], f[:, None], out=prob2[r0:r1], casting="unsafe")
+            psum += float(prob2[r0:r1].sum(dtype=np.float64))
+        k_mod.alias_sweep(prob, alias, n / psum)
+        return prob, alias
 
     def scaled(r0, r1):
         # p ~ n * weight / total (mean 1), in float32 for speed; the exact float64

@@ -49,6 +49,7 @@ from pathlib import Path
 import numpy as np
 
 from . import distribution as dist
+from ._accel import kernels
 from .color import canonical_primaries, luminance
 from .errors import EnvsampleWarning, MapValidationError
 from .sphere import convention, direction_to_uv, row_cos_edges, row_solid_angles, _frame
@@ -223,7 +224,7 @@ class EnvTable:
         )
 
     # --------------------------------------------------------------- sampling
-    def sample(self, u, *, method: str = "inverse") -> Samples:
+    def sample(self, u, *, method: str = "inverse", backend: str = "auto") -> Samples:
         """Draw directions from the table.
 
         Parameters
@@ -237,11 +238,18 @@ class EnvTable:
         Returns
         -------
         Samples with float64 directions (N, 3) and pdf per steradian (N,).
-        The same ``u`` always gives bit-identical output.
+        The same ``u`` always gives bit-identical output on one installation;
+        ``backend`` picks the compiled kernel or the numpy code (:mod:`envsample._accel`),
+        which agree to the last bits of the trigonometric functions.
         """
         u = np.asarray(u, dtype=np.float64)
         if u.ndim != 2 or u.shape[1] != 2:
             raise ValueError(f"u must have shape (N, 2), got {u.shape}")
+        if method not in SAMPLE_METHODS:
+            raise ValueError(f"unknown sampling method {method!r}; valid: {', '.join(SAMPLE_METHODS)}")
+        k_mod = kernels(backend)
+        if k_mod is not None:
+            return self._sample_compiled(k_mod, u, method)
         if method == "inverse":
             row, fv = dist.sample_cdf(self.marginal_cdf, u[:, 0])
             col, fu = dist.sample_row_cdfs(self.conditional_cdf, row, u[:, 1])
@@ -272,6 +280,32 @@ class EnvTable:
             pdf /= sin_t
         d = _directions(sin_t * np.cos(phi), sin_t * np.sin(phi), cos_t, self._axes)
         return Samples(directions=d, pdf=pdf, cells=cells, _table=self)
+
+    def _sample_compiled(self, k_mod, u, method) -> Samples:
+        n = u.shape[0]
+        u = np.ascontiguousarray(u)
+        d = np.empty((n, 3), dtype=np.float64)
+        pdf = np.empty(n, dtype=np.float64)
+        cells = np.empty(n, dtype=np.int64)
+        axes = tuple(v for i, sign in self._axes for v in (i, int(sign)))
+        k_mod.sample_table(
+            u, 0 if method == "inverse" else 1,
+            self._c["marginal"], self._c["conditional"], self._c["prob"], self._c["alias"], self._c["pdf"],
+            self._cos_edges, self._row_sa, self.table_height, self.table_width, self._rot,
+            0 if self.mapping == "equal-area" else 1, axes, d, pdf, cells, _EDGE,
+        )
+        return Samples(directions=d, pdf=pdf, cells=cells, _table=self)
+
+    @functools.cached_property
+    def _c(self) -> dict:
+        """C-contiguous, native-dtype views of the arrays the compiled sampler reads."""
+        return {
+            "marginal": np.ascontiguousarray(self.marginal_cdf, dtype=np.float32),
+            "conditional": np.ascontiguousarray(self.conditional_cdf, dtype=np.float32),
+            "prob": np.ascontiguousarray(self.alias_probability, dtype=np.float32),
+            "alias": np.ascontiguousarray(self.alias_index, dtype=np.int32),
+            "pdf": np.ascontiguousarray(self.cell_pdf, dtype=np.float32).reshape(-1),
+        }
 
     def cells_of(self, directions) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Row, column (int64) of the table cell containing each direction, and sin(theta)."""

@@ -1,0 +1,18 @@
+"""Build the optional compiled kernels; everything else is in pyproject.toml.
+
+``optional=True``: where no C compiler is available the install still succeeds and
+envsample uses its numpy code paths (see envsample/_accel.py).
+"""
+
+from setuptools import Extension, setup
+
+setup(
+    ext_modules=[
+        Extension(
+            "envsample._kernels",
+            ["envsample/_kernels.c"],
+            optional=True,
+            extra_compile_args=["-O2", "-fno-fast-math"],
+        )
+    ]
+)
