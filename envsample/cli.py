@@ -236,7 +236,7 @@ PRIMARY_CHOICES = ("bt709", "srgb", "bt2020", "acescg", "aces2065-1", "max", "me
 # --------------------------------------------------------------------------- the group
 
 
-@click.group(cls=_Main, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+@click.group("envsample", cls=_Main, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
 @click.version_option(__version__, "--version", prog_name="envsample", message="%(prog)s %(version)s")
 @click.option("--debug", is_flag=True, help="Show the traceback of an error (give it before the command).")
 def main(debug):
