@@ -1,0 +1,151 @@
+"""End-to-end tests of the demo (envsample.demo.run_demo and ``envsample demo``) at 64x32.
+
+External references used below:
+- Traditional overcast sky L = Lz (1 + 2 cos theta) / 3 (Moon & Spencer 1942;
+  CIE S 003/E:1996): integral over the upper hemisphere 4*pi/3 * Lz, horizontal
+  illuminance 7*pi/9 * Lz (closed forms).  A Lambertian ground of albedo rho lit
+  by it has radiance rho * E / pi (textbook), over 2*pi sr.
+- IEEE 754-2008 binary16: relative rounding error at most 2**-11, which bounds
+  the error of integrals of maps stored as half floats.
+- numpy.random.default_rng (PCG64) as the reference generator of the golden vectors' u.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+
+from envsample.cli import main
+from envsample.demo import DEMO_SCENES, DEMO_VECTOR_SEED, DemoStep, demo_steps, run_demo
+from envsample.errors import EnvsampleError
+from envsample.io import read_map
+from envsample.skies import ROOFTOP_SUN
+from envsample.tableio import load_table
+
+WIDTH = 64
+HALF_REL_ERROR = 2.0**-11
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo") / "envsample-demo"
+    return run_demo(out, width=WIDTH)
+
+
+def _scene(summary, name):
+    return next(m for m in summary["maps"] if m["name"] == name)
+
+
+def test_demo_writes_maps_tables_and_vectors(demo):
+    from pathlib import Path
+
+    assert [m["name"] for m in demo["maps"]] == [s.name for s in DEMO_SCENES]
+    for path in demo["files"]:
+        assert Path(path).is_file(), path
+    for scene in DEMO_SCENES:
+        m = _scene(demo, scene.name)
+        img = read_map(m["map"])
+        assert (img.width, img.height, img.format, img.pixel_type) == (WIDTH, WIDTH // 2, "exr", "half")
+        prefix = Path(next(p for p in m["table_files"] if p.endswith(".json"))).with_suffix("")
+        table = load_table(prefix)
+        w = WIDTH // scene.table_divisor
+        assert (table.table_width, table.table_height) == (w, w // 2) == tuple(m["table_size"])
+        assert any(p.endswith(".bin") for p in m["table_files"]) == scene.raw
+        assert np.array_equal(table.image, img.rgb)  # the table samples the file as written
+        assert m["build_seconds"] >= 0.0
+    assert demo["steps"] == [s.label for s in demo_steps()]
+    assert "not certified" in demo["caveat"]
+
+
+def test_demo_overcast_integral_matches_the_closed_form(demo):
+    """Sky 4*pi/3 * Lz plus ground 2*pi * rho * 7/9 * Lz (Lz = 1, rho = 0.2), within half-float rounding."""
+    options = next(s for s in DEMO_SCENES if s.name == "overcast").options
+    rho = options["ground_albedo"]
+    expected = 4.0 * math.pi / 3.0 + 2.0 * math.pi * rho * 7.0 / 9.0
+    got = _scene(demo, "overcast")["integrals"]["luminance"]
+    assert got == pytest.approx(expected, rel=2 * HALF_REL_ERROR)
+
+
+def test_demo_rooftop_brightest_pixel_is_the_sun(demo):
+    """The brightest pixel lies within half a pixel plus the sun's radius (0.2665 deg) of the scene's sun."""
+    b = _scene(demo, "rooftop")["brightest"]
+    el, az = ROOFTOP_SUN
+    tol = 0.5 * 360.0 / WIDTH + 0.2665
+    assert abs(b["azimuth_deg"] - az) <= tol
+    assert abs(b["elevation_deg"] - el) <= tol
+
+
+def test_demo_vectors_reproduce_the_saved_table(demo):
+    (entry,) = demo["vectors"]
+    doc = json.loads(open(entry["path"], encoding="utf-8").read())
+    u = np.array([r["u"] for r in doc["vectors"]])
+    assert np.array_equal(u, np.random.default_rng(DEMO_VECTOR_SEED).random((entry["count"], 2)))
+    m = _scene(demo, entry["scene"])
+    table = load_table(next(p for p in m["table_files"] if p.endswith(".json")))
+    for method in ("inverse", "alias"):
+        s = table.sample(u, method=method)
+        assert np.array_equal(np.array([r[method]["direction"] for r in doc["vectors"]]), s.directions)
+        assert np.array_equal(np.array([r[method]["pdf"] for r in doc["vectors"]]), s.pdf)
+        assert np.array_equal(np.array([r[method]["cell"] for r in doc["vectors"]]), s.cells)
+
+
+def test_demo_is_reproducible(demo, tmp_path):
+    """Same scenes, same tables: the stored arrays' sha256 and the golden vectors agree between runs."""
+    again = run_demo(tmp_path / "again", width=WIDTH)
+    for a, b in zip(demo["maps"], again["maps"]):
+        ja = json.loads(open(next(p for p in a["table_files"] if p.endswith(".json"))).read())
+        jb = json.loads(open(next(p for p in b["table_files"] if p.endswith(".json"))).read())
+        assert {k: v["sha256"] for k, v in ja["arrays"].items()} == {k: v["sha256"] for k, v in jb["arrays"].items()}
+    va = json.loads(open(demo["vectors"][0]["path"]).read())
+    vb = json.loads(open(again["vectors"][0]["path"]).read())
+    assert va["vectors"] == vb["vectors"]
+
+
+def test_demo_steps_can_be_extended_and_report_progress(tmp_path):
+    seen = {}
+
+    def extra(ctx):
+        seen["tables"] = sorted(ctx.tables)
+        ctx.extra["checked"] = len(ctx.tables)
+
+    calls = []
+    steps = demo_steps() + [DemoStep("count tables", extra)]
+    summary = run_demo(tmp_path / "d", width=32, steps=steps, progress=lambda *a: calls.append(a))
+    assert seen["tables"] == sorted(s.name for s in DEMO_SCENES)
+    assert summary["extra"] == {"checked": len(DEMO_SCENES)}
+    n = len(steps)
+    assert calls == [(s.label, k, n) for k, s in enumerate(steps)] + [("done", n, n)]
+
+
+def test_demo_refuses_bad_arguments(tmp_path):
+    with pytest.raises(ValueError, match="even number of pixels >= 16"):
+        run_demo(tmp_path / "d", width=33)
+    blocker = tmp_path / "file"
+    blocker.write_text("x")
+    with pytest.raises(EnvsampleError, match="exists and is not a folder"):
+        run_demo(blocker, width=32)
+
+
+def test_demo_command(tmp_path):
+    runner = CliRunner()
+    out = tmp_path / "demo-out"
+    result = runner.invoke(main, ["demo", str(out), "--width", str(WIDTH)], catch_exceptions=False)
+    assert result.exit_code == 0, result.output
+    lines = result.stdout.splitlines()
+    assert lines[0].startswith(f"demo in {out}: invented scenes")
+    header = next(k for k, line in enumerate(lines) if line.startswith("map "))
+    assert lines[header].split() == ["map", "size", "integral", "Y", "brightest", "(az,", "el)", "table", "build"]
+    rows = [line.split()[0] for line in lines[header + 1 : header + 1 + len(DEMO_SCENES)]]
+    assert rows == [s.name for s in DEMO_SCENES]
+    assert f"next: envsample inspect {out}/tables/rooftop.json" in result.stdout
+    # A second run updates the same folder; --json prints the summary.
+    again = runner.invoke(main, ["demo", str(out), "--width", str(WIDTH), "--json"], catch_exceptions=False)
+    assert again.exit_code == 0
+    assert json.loads(again.stdout)["width"] == WIDTH
+    odd = runner.invoke(main, ["demo", str(tmp_path / "odd"), "--width", "63"])
+    assert odd.exit_code == 2 and odd.stderr.startswith("error: Invalid value for '--width': 63 is odd")
+    assert not (tmp_path / "odd").exists()
