@@ -83,8 +83,11 @@ class _Main(click.Group):
 
     def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True, **extra):
         argv = list(sys.argv[1:] if args is None else args)
-        options = argv[: argv.index("--")] if "--" in argv else argv
-        debug = "--debug" in options
+        end = argv.index("--") if "--" in argv else len(argv)
+        debug = "--debug" in argv[:end]
+        if debug:
+            # Accept --debug anywhere before '--': move it in front of the command, where click expects it.
+            argv = ["--debug"] + [a for a in argv[:end] if a != "--debug"] + argv[end:]
         try:
             rv = super().main(argv, prog_name or "envsample", complete_var, standalone_mode=False, **extra)
             code = rv if isinstance(rv, int) else 0
@@ -238,7 +241,7 @@ PRIMARY_CHOICES = ("bt709", "srgb", "bt2020", "acescg", "aces2065-1", "max", "me
 
 @click.group("envsample", cls=_Main, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
 @click.version_option(__version__, "--version", prog_name="envsample", message="%(prog)s %(version)s")
-@click.option("--debug", is_flag=True, help="Show the traceback of an error (give it before the command).")
+@click.option("--debug", is_flag=True, help="Show the traceback of an error (may also follow the command).")
 def main(debug):
     """Check equirectangular HDR environment maps, build their importance-sampling
     tables, and write golden vectors for checking a renderer's loader.
@@ -285,10 +288,11 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
     from .demo import ESTIMATE_CAVEAT, build_from_file
 
     printed: list[str] = []
-    with _warnings_as_lines(printed), _progress_bar(4, "build") as bar:
+    stages = ("read", "check", "build", "save")
+    with _warnings_as_lines(printed), _progress_bar(len(stages), "build") as bar:
         def progress(label):
+            bar.n = stages.index(label) if label in stages else bar.n
             bar.set_description(label)
-            bar.update(1)
 
         result = build_from_file(
             map_path, prefix, raw=raw, repair=repair, allow_aspect=allow_aspect, layer=layer, progress=progress,
@@ -612,7 +616,7 @@ def demo(outdir, width, as_json):
     if width % 2:
         raise click.BadParameter(f"{width} is odd; the maps are 2:1, give an even width", param_hint="'--width'")
     steps = demo_steps()
-    with _progress_bar(len(steps), "demo") as bar:
+    with _warnings_as_lines([]), _progress_bar(len(steps), "demo") as bar:
         def progress(label, done, total):
             bar.set_description(label)
             bar.n = done

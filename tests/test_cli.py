@@ -94,8 +94,10 @@ def test_usage_error_is_one_line_with_a_pointer_to_help(run, tmp_path):
     assert "see 'envsample build --help'" in result.stderr
 
 
-def test_debug_shows_the_traceback(run, tmp_path):
-    result = run("--debug", "build", tmp_path / "missing.exr", "-o", tmp_path / "t")
+@pytest.mark.parametrize("where", ["before", "after"])
+def test_debug_shows_the_traceback(run, tmp_path, where):
+    args = ["build", tmp_path / "missing.exr", "-o", tmp_path / "t"]
+    result = run(*(["--debug"] + args if where == "before" else args + ["--debug"]))
     assert result.exit_code == EXIT_USER_ERROR
     assert "Traceback" in result.stderr
     assert result.stderr.strip().splitlines()[-1].startswith("error: ")
