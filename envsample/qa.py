@@ -1187,7 +1187,8 @@ def _check_sampling(ctx: CheckContext) -> CheckResult:
             advice.append(f"separate the sun ({_pct(e.share)} of the light) into an analytic light "
                           f"of {_SUN_DIAMETER_DEG:.3f} deg and remove it from the map")
     details = {"spp": s["spp"], "repeats": s["repeats"], "normals": s["normals"], "seed": s["seed"],
-               "table_size": list(size), "estimator": graded, "estimators": errors, "advice": advice}
+               "table_size": list(size), "estimator": graded,
+               "mean_reference": float(ref.mean()), "estimators": errors, "advice": advice}
     summary = ", ".join(f"{k} {_fmt(v['relative_rmse'])}" for k, v in errors.items())
     ff = ", ".join(f"{k} {_fmt(v['firefly_index'])}" for k, v in errors.items())
     msg = f"{s['spp']} spp on the map reduced to {size[0]}x{size[1]}: relative RMSE {summary}; firefly index {ff}"
