@@ -16,63 +16,135 @@
 #include <math.h>
 #include <stdint.h>
 
-/* alias_sweep(prob: float32[n] (in: p = n*w/total, out: keep probability),
- *             alias: int32[n] (out), c: float64 normalisation of p)            */
-static PyObject *alias_sweep(PyObject *self, PyObject *args) {
-    Py_buffer pb, ab;
+/* alias_sweep(weights: float32 or float64 [h*ncol], is_double, row_scale: float64[h], ncol,
+ *             prob: float32[n] (out), alias: int32[n] (out))
+ * Cell weight = weights[k] * row_scale[k / ncol]; p = n * weight / sum(weight) in double. */
+typedef struct {
+    const void *w;
+    int dbl;
+    const double *scale;
+    Py_ssize_t ncol, n;
     double c;
-    if (!PyArg_ParseTuple(args, "w*w*d", &pb, &ab, &c)) return NULL;
+    const int32_t *alias;
+} sweep_ctx;
+
+typedef struct {
+    Py_ssize_t k, row, col;
+} cursor;
+
+static inline double weight_at(const sweep_ctx *x, Py_ssize_t k, Py_ssize_t row) {
+    double v = x->dbl ? ((const double *)x->w)[k] : (double)((const float *)x->w)[k];
+    return v * x->scale[row];
+}
+
+static inline void cursor_step(const sweep_ctx *x, cursor *q) {
+    q->k++;
+    if (++q->col == x->ncol) { q->col = 0; q->row++; }
+}
+
+/* advance q (inclusive) to the next cell that is not final and is light (want_light) or heavy */
+static inline void cursor_seek(const sweep_ctx *x, cursor *q, int want_light) {
+    while (q->k < x->n) {
+        if (x->alias[q->k] == -1) {
+            int light = weight_at(x, q->k, q->row) * x->c < 1.0;
+            if (light == want_light) return;
+        }
+        cursor_step(x, q);
+    }
+}
+
+/* float32 neighbour of p (p in [0, 1]) that moves a running error err = sum(s - p)
+   toward zero: round down when err > 0, up when err < 0, nearest when err == 0. */
+static inline float round_toward(double p, double err) {
+    float s = (float)p;
+    if (err > 0.0 && (double)s > p) s = nextafterf(s, 0.0f);
+    else if (err < 0.0 && (double)s < p) s = nextafterf(s, 2.0f);
+    return s;
+}
+
+static PyObject *alias_sweep(PyObject *self, PyObject *args) {
+    Py_buffer wb, sb, pb, ab;
+    int dbl;
+    Py_ssize_t ncol;
+    if (!PyArg_ParseTuple(args, "y*iy*nw*w*", &wb, &dbl, &sb, &ncol, &pb, &ab)) return NULL;
     Py_ssize_t n = pb.len / (Py_ssize_t)sizeof(float);
-    if (ab.len / (Py_ssize_t)sizeof(int32_t) != n || n <= 0) {
-        PyBuffer_Release(&pb);
-        PyBuffer_Release(&ab);
-        PyErr_SetString(PyExc_ValueError, "alias_sweep: prob and alias must have the same positive length");
+    Py_ssize_t esize = dbl ? (Py_ssize_t)sizeof(double) : (Py_ssize_t)sizeof(float);
+    if (n <= 0 || ncol <= 0 || n % ncol != 0 || ab.len != n * (Py_ssize_t)sizeof(int32_t) || wb.len != n * esize ||
+        sb.len != (n / ncol) * (Py_ssize_t)sizeof(double)) {
+        PyBuffer_Release(&wb); PyBuffer_Release(&sb); PyBuffer_Release(&pb); PyBuffer_Release(&ab);
+        PyErr_SetString(PyExc_ValueError, "alias_sweep: buffer sizes do not match");
         return NULL;
     }
     float *prob = (float *)pb.buf;
     int32_t *alias = (int32_t *)ab.buf;
+    sweep_ctx x = {wb.buf, dbl, (const double *)sb.buf, ncol, n, 1.0, alias};
+    int all_zero = 0;
     Py_BEGIN_ALLOW_THREADS
+    /* Kahan-Neumaier sum: a naive sum of 33 M cells drifts by ~1e-12 relative, which
+       the sweep would hand, times n, to the last heavy cell. */
+    double total = 0.0, comp = 0.0;
+    {
+        cursor q = {0, 0, 0};
+        for (; q.k < n; cursor_step(&x, &q)) {
+            double v = weight_at(&x, q.k, q.row), t = total + v;
+            comp += fabs(total) >= fabs(v) ? (total - t) + v : (v - t) + total;
+            total = t;
+        }
+        total += comp;
+    }
     for (Py_ssize_t k = 0; k < n; k++) alias[k] = -1; /* -1: not yet final */
-    Py_ssize_t i = 0, j = 0;
-    /* next light: p*c < 1 and not final; next heavy: p*c >= 1 and not final */
-#define NEXT_LIGHT(x) while ((x) < n && (alias[x] != -1 || (double)prob[x] * c >= 1.0)) (x)++
-#define NEXT_HEAVY(x) while ((x) < n && (alias[x] != -1 || (double)prob[x] * c < 1.0)) (x)++
-    NEXT_LIGHT(i);
-    NEXT_HEAVY(j);
-    if (j < n) {
-        double w = (double)prob[j] * c;
-        for (;;) {
-            if (w >= 1.0) {
-                if (i >= n) break; /* no light left: the current heavy keeps the rest */
-                double p = (double)prob[i] * c;
-                prob[i] = (float)p;
-                alias[i] = (int32_t)j;
-                w -= 1.0 - p;
-                i++;
-                NEXT_LIGHT(i);
-            } else {
-                Py_ssize_t jn = j + 1;
-                NEXT_HEAVY(jn);
-                if (jn >= n) break; /* rounding: no heavy left */
-                prob[j] = (float)(w < 0.0 ? 0.0 : w);
-                alias[j] = (int32_t)jn;
-                w = (double)prob[jn] * c - (1.0 - w);
-                j = jn;
+    if (!(total > 0.0) || !isfinite(total)) {
+        all_zero = 1;
+    } else {
+        x.c = (double)n / total;
+        cursor li = {0, 0, 0}, hj = {0, 0, 0};
+        cursor_seek(&x, &li, 1);
+        cursor_seek(&x, &hj, 0);
+        if (hj.k < n) {
+            /* w: exact residual of the current heavy.  err: mass the current heavy has
+               gained from float32 rounding of the probabilities stored so far in its run.
+               Each stored value is the float32 neighbour that keeps |err| smallest, so a
+               heavy serving many lights stays exact to about one float32 ulp. */
+            double w = weight_at(&x, hj.k, hj.row) * x.c, err = 0.0;
+            for (;;) {
+                if (w >= 1.0) {
+                    if (li.k >= n) break; /* no light left: the current heavy keeps the rest */
+                    double p = weight_at(&x, li.k, li.row) * x.c;
+                    float s = round_toward(p, err);
+                    err += (double)s - p; /* the heavy receives 1 - s instead of 1 - p */
+                    prob[li.k] = s;
+                    alias[li.k] = (int32_t)hj.k;
+                    w -= 1.0 - p;
+                    cursor_step(&x, &li);
+                    cursor_seek(&x, &li, 1);
+                } else {
+                    cursor nx = hj;
+                    cursor_step(&x, &nx);
+                    cursor_seek(&x, &nx, 0);
+                    if (nx.k >= n) break; /* rounding: no heavy left */
+                    double keep = w < 0.0 ? 0.0 : w;
+                    /* the heavy's own bucket: keep + err would make its mass exact */
+                    float s = round_toward(keep, -err);
+                    prob[hj.k] = s < 0.0f ? 0.0f : s;
+                    alias[hj.k] = (int32_t)nx.k;
+                    w = weight_at(&x, nx.k, nx.row) * x.c - (1.0 - keep);
+                    /* the next heavy receives 1 - s instead of 1 - keep */
+                    err = (double)s - keep;
+                    hj = nx;
+                }
             }
         }
     }
-    /* whatever is not final keeps itself */
+    /* whatever is not final keeps itself (all cells when the weights are all zero) */
     for (Py_ssize_t k = 0; k < n; k++) {
         if (alias[k] == -1) {
             prob[k] = 1.0f;
             alias[k] = (int32_t)k;
         }
     }
-#undef NEXT_LIGHT
-#undef NEXT_HEAVY
     Py_END_ALLOW_THREADS
-    PyBuffer_Release(&pb);
-    PyBuffer_Release(&ab);
+    (void)all_zero;
+    PyBuffer_Release(&wb); PyBuffer_Release(&sb); PyBuffer_Release(&pb); PyBuffer_Release(&ab);
     Py_RETURN_NONE;
 }
 

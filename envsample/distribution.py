@@ -235,6 +235,14 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
     scale = np.ones(h) if row_scale is None else np.asarray(row_scale, dtype=np.float64)
     n = w.size
     total = float(np.dot(w2.sum(axis=1, dtype=np.float64), scale))
+    k_mod = kernels(backend)
+    if k_mod is not None:
+        wc = w2 if w2.dtype in (np.float32, np.float64) else w2.astype(np.float64)
+        wc = np.ascontiguousarray(wc)
+        prob = np.empty(n, dtype=np.float32)
+        alias = np.empty(n, dtype=np.int32)
+        k_mod.alias_sweep(wc, int(wc.dtype == np.float64), np.ascontiguousarray(scale), ncol, prob, alias)
+        return prob, alias
     prob = np.ones(n, dtype=np.float32)
     alias = np.arange(n, dtype=np.int32)
     if not (total > 0.0 and np.isfinite(total)):
@@ -243,24 +251,10 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
     step = max(1, _CHUNK_CELLS // ncol)
     chunks = [(r0, min(h, r0 + step)) for r0 in range(0, h, step)]
 
-    k_mod = kernels(backend)
-    if k_mod is not None:
-        # p = n * w / total in float32 straight into ``prob``; the sweep corrects its
-        # rounding drift with the float64 factor n / sum(p).
-        prob2 = prob.reshape(h, ncol)
-        psum = 0.0
-        for r0, r1 in chunks:
-            f = (scale[r0:r1] * (n / total)).astype(np.float32)
-            np.multiply(w2[r0:r1], f[:, None], out=prob2[r0:r1], casting="unsafe")
-            psum += float(prob2[r0:r1].sum(dtype=np.float64))
-        k_mod.alias_sweep(prob, alias, n / psum)
-        return prob, alias
-
     def scaled(r0, r1):
-        # p ~ n * weight / total (mean 1), in float32 for speed; the exact float64
-        # normalisation ``c`` below removes its rounding drift from the prefix sums.
-        f = (scale[r0:r1] * (n / total)).astype(np.float32)
-        return (w2[r0:r1] * f[:, None]).reshape(-1)
+        # p = n * weight / total (mean 1), in float64: float32 rounding of p would
+        # pile up on the last cells of the sweep.
+        return (w2[r0:r1] * (scale[r0:r1, None] * (n / total))).reshape(-1)
 
     # Pass 1: heavy cells (p >= 1) in index order and their excess; the float64 sum of p.
     heavy_idx, heavy_p = [], []
@@ -271,10 +265,10 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
         k = np.flatnonzero(p >= 1.0)
         heavy_idx.append((k + r0 * ncol).astype(np.int32))
         heavy_p.append(p[k])
-    c = np.float64(n / psum)
+    c = n / psum
     heavy = np.concatenate(heavy_idx)
     del heavy_idx
-    excess = np.concatenate(heavy_p).astype(np.float64)
+    excess = np.concatenate(heavy_p)
     del heavy_p
     excess *= c
     excess -= 1.0
@@ -293,7 +287,9 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
         k = np.flatnonzero(p < 1.0)
         if k.size == 0:
             continue
-        pl = p[k] * c
+        # Book the deficit of the float32 probability actually stored, so a heavy
+        # that serves many lights does not gather their rounding errors.
+        pl = (p[k] * c).astype(np.float32).astype(np.float64)
         d_end = np.cumsum(np.maximum(1.0 - pl, 0.0))
         d_end += d_before
         # Heavies j < jlo have E_j < D before this chunk; j >= jhi are not reached in it.
