@@ -3,9 +3,9 @@
 Every command calls one library function and formats its result:
 
 =========  =====================================================
-build      :func:`envsample.demo.build_from_file`
-inspect    :func:`envsample.demo.map_facts` / :func:`envsample.demo.table_facts`
-vectors    :func:`envsample.demo.golden_vectors` + :func:`envsample.demo.write_vectors`
+build      :func:`envsample.workflow.build_from_file`
+inspect    :func:`envsample.workflow.map_facts` / :func:`envsample.workflow.table_facts`
+vectors    :func:`envsample.workflow.golden_vectors` + :func:`envsample.workflow.write_vectors`
 sky        :func:`envsample.skies.make_sky` + :func:`envsample.io.write_map`
 demo       :func:`envsample.demo.run_demo`
 =========  =====================================================
@@ -285,7 +285,7 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
     values are clamped and counted) before anything is written. Existing
     table files with the same prefix are replaced atomically.
     """
-    from .demo import ESTIMATE_CAVEAT, build_from_file
+    from .workflow import ESTIMATE_CAVEAT, build_from_file
 
     printed: list[str] = []
     stages = ("read", "check", "build", "save")
@@ -418,7 +418,7 @@ def inspect_command(target, as_json, primaries, up, layer):
     or a table given by its prefix or its .json/.npz/.bin file. A table is
     loaded and verified (checksums, shapes, CDFs) on the way.
     """
-    from .demo import map_facts, table_facts
+    from .workflow import map_facts, table_facts
 
     if _is_table(target):
         facts = table_facts(target)
@@ -455,7 +455,7 @@ def vectors(table_path, output, count, seed, method):
     loader in another language reads the same table, feeds it the same u and
     must give the same results. The same seed always writes the same file.
     """
-    from .demo import check_output_folder, golden_vectors, write_vectors
+    from .workflow import check_output_folder, golden_vectors, write_vectors
     from .tableio import load_table, table_paths
 
     check_output_folder(output)
@@ -551,7 +551,7 @@ def sky(kind, output, size, pixel_type, **given):
     Options apply to the kinds named in their help; others are refused.
     """
     from .constants import HALF_FLOAT_MAX
-    from .demo import check_output_folder
+    from .workflow import check_output_folder
     from .io import supported_extensions, write_map
     from .skies import make_sky, sun_position
 
@@ -578,7 +578,7 @@ def sky(kind, output, size, pixel_type, **given):
         )
     output.parent.mkdir(parents=True, exist_ok=True)
     path = write_map(output, rgb, pixel_type=pixel_type)
-    from .demo import ESTIMATE_CAVEAT, map_integrals
+    from .workflow import ESTIMATE_CAVEAT, map_integrals
 
     per_rgb, y, _ = map_integrals(rgb, "bt709")
     sun = sun_position(kind, **options)

@@ -1,27 +1,13 @@
-"""The demo, and the file-level steps it shares with the command line.
+"""The demo: an invented scenario run end to end (``envsample demo``).
 
-Public objects
---------------
-- :func:`build_from_file`: read a map file, validate it, build its table and
-  save it (``envsample build``).  Returns a :class:`BuildResult`.
-- :func:`golden_vectors` / :func:`write_vectors`: reproducible sample records
-  (uniforms in; direction, pdf, cell, radiance out) for checking another
-  loader against this one (``envsample vectors``).
-- :func:`map_facts` / :func:`table_facts`: JSON-ready facts about a map or a
-  table (``envsample inspect``).
-- :func:`direction_angles`: azimuth and elevation, degrees, of directions.
-- :func:`run_demo`: the invented demo scenario (``envsample demo``), run as a
-  list of :class:`DemoStep` so later features can append their own steps.
-
-Conventions: directions follow :mod:`envsample.sphere` (radians inside; the
-azimuth and elevation returned here are degrees because they are meant for
-people).  Integrals are of radiance over the sphere, in the map's units times
-steradians.  They are estimates for asset preparation, not certified lighting
-calculations.
+:func:`run_demo` runs a list of :class:`DemoStep` so later features can append
+their own steps.  The file-level steps it uses (build, vectors, facts) live in
+:mod:`envsample.workflow`, shared with the command line.
 
 The demo scenes are invented (see :mod:`envsample.skies`): a late-afternoon
 rooftop in a fictional city, a small made-up product studio and a traditional
-overcast sky (Moon & Spencer 1942; CIE S 003/E:1996).
+overcast sky (Moon & Spencer 1942; CIE S 003/E:1996).  Integrals it prints are
+estimates for asset preparation, not certified lighting calculations.
 
 References
 ----------
@@ -29,8 +15,6 @@ References
   Illuminating Engineering 37(10), 707-726 (from memory).
 - CIE S 003/E:1996. Spatial distribution of daylight - CIE standard overcast
   sky and clear sky (from memory).
-- NumPy ``Generator`` / PCG64 (O'Neill 2014), the stream behind the uniforms of
-  :func:`golden_vectors`: ``numpy.random.default_rng(seed).random((n, 2))``.
 """
 
 from __future__ import annotations
@@ -49,407 +33,29 @@ from .color import canonical_primaries, luminance
 from .errors import EnvsampleError, MapValidationError
 from .sphere import direction_to_uv, row_solid_angles, uv_to_direction
 
-__all__ = [
-    "BuildResult",
-    "DemoStep",
-    "DemoContext",
-    "DEMO_SCENES",
-    "VECTORS_SCHEMA",
-    "build_from_file",
-    "check_output_folder",
-    "golden_vectors",
-    "write_vectors",
-    "map_facts",
-    "table_facts",
-    "direction_angles",
-    "map_integrals",
-    "output_prefix",
-    "demo_steps",
-    "run_demo",
-]
+from .workflow import (
+)
+    BuildResult,
+    ESTIMATE_CAVEAT,
+    VECTORS_SCHEMA,
+    VECTORS_SCHEMA_VERSION,
+    MAX_VECTORS,
+    build_from_file,
+    check_output_folder,
+    golden_vectors,
+    write_vectors,
+    vectors_text,
+    map_facts,
+    table_facts,
+    direction_angles,
+    map_integrals,
+    output_prefix,
+    _tick,
+    _pixel_direction,
+    Progress,
+)
 
-#: Schema name of the golden-vector files.
-VECTORS_SCHEMA = "envsample.golden-vectors"
-VECTORS_SCHEMA_VERSION = 1
-
-#: Largest number of golden vectors per file: they check exactness, not statistics.
-MAX_VECTORS = 100_000
-
-#: Said wherever integrals are shown.
-ESTIMATE_CAVEAT = "integrals are estimates for asset preparation, not certified lighting calculations"
-
-Progress = Callable[[str], None]
-
-
-# --------------------------------------------------------------------------- angles
-
-
-def direction_angles(directions, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
-    """Azimuth and elevation in **degrees** of directions ``(..., 3)`` (float64 arrays).
-
-    Azimuth is the convention's phi (0 = image centre, positive to the right,
-    in (-180, 180]); elevation is 90 deg minus the polar angle from the up axis.
-    Computed through :func:`envsample.sphere.direction_to_uv`.
-    """
-    u, v = direction_to_uv(directions, up=up, rotate_deg=rotate_deg)
-    az = 360.0 * (u - 0.5) + float(rotate_deg)
-    az = (az + 180.0) % 360.0 - 180.0
-    az = np.where(az == -180.0, 180.0, az)
-    return az, 90.0 - 180.0 * v
-
-
-def _pixel_direction(row: int, col: int, height: int, width: int, *, up: str, rotate_deg: float) -> dict:
-    d = uv_to_direction((col + 0.5) / width, (row + 0.5) / height, up=up, rotate_deg=rotate_deg)
-    az, el = direction_angles(d, up=up, rotate_deg=rotate_deg)
-    return {
-        "azimuth_deg": round(float(az), 4),
-        "elevation_deg": round(float(el), 4),
-        "direction": [float(x) for x in d],
-        "row": int(row),
-        "col": int(col),
-    }
-
-
-# --------------------------------------------------------------------------- build
-
-
-@dataclass
-class BuildResult:
-    """What :func:`build_from_file` did.
-
-    ``image`` is the validated map, ``table`` the built table, ``notes`` the
-    validation and build notes (repairs, clamped negatives...), ``paths`` the
-    files written (JSON last) and ``seconds`` the time of ``build_table`` alone.
-    """
-
-    image: object
-    table: object
-    notes: list[str]
-    paths: list[Path]
-    seconds: float
-    prefix: Path
-
-
-def _tick(progress: Progress | None, label: str) -> None:
-    if progress is not None:
-        progress(label)
-
-
-def output_prefix(prefix, map_path) -> Path:
-    """The table prefix for ``-o PREFIX``: an existing folder (or a path ending in '/') gets the map's stem."""
-    text = str(prefix)
-    p = Path(prefix)
-    if p.is_dir() or text.endswith(("/", "\\")):
-        return p / Path(map_path).stem
-    if p.suffix.lower() in (".json", ".npz", ".bin"):
-        return p.with_suffix("")
-    return p
-
-
-def check_output_folder(path) -> None:
-    """Refuse an output path whose folder (or a parent of it) exists but is not a folder, before any work is done."""
-    p = Path(path).absolute()
-    for parent in p.parents:
-        if parent.exists():
-            if not parent.is_dir():
-                raise EnvsampleError(f"{path}: {parent} is a file, not a folder; choose another output path")
-            return
-
-
-def build_from_file(
-    map_path,
-    prefix,
-    *,
-    raw: bool = False,
-    repair: bool = False,
-    allow_aspect: bool = False,
-    layer: str | None = None,
-    make_dirs: bool = True,
-    progress: Progress | None = None,
-    **build_options,
-) -> BuildResult:
-    """Read, validate, build and save: the whole of ``envsample build``.
-
-    Parameters
-    ----------
-    map_path : path of an ``.exr`` / ``.hdr`` map (see :func:`envsample.io.read_map`).
-    prefix : table prefix (see :func:`output_prefix`); ``PREFIX.npz`` and
-        ``PREFIX.json`` (and ``PREFIX.bin`` with ``raw``) are written.
-    repair, allow_aspect : passed to :func:`envsample.io.validate_map`.
-    layer : EXR layer, passed to :func:`envsample.io.read_map`.
-    make_dirs : create the prefix's folder if it is missing.  It is created only
-        after the map was read, validated and its table built, so bad input
-        writes nothing at all.
-    progress : called with a short label before each stage.
-    build_options : passed to :func:`envsample.table.build_table` (size,
-        primaries, mapping, uniform_mix, up, rotate_deg, compensate).
-    """
-    from .io import read_map, validate_map
-    from .table import build_table
-
-    out = output_prefix(prefix, map_path)
-    check_output_folder(out)
-    _tick(progress, "read")
-    image = read_map(map_path, layer=layer)
-    _tick(progress, "check")
-    image, notes = validate_map(image, repair=repair, allow_aspect=allow_aspect)
-    _tick(progress, "build")
-    start = time.perf_counter()
-    table = build_table(image, **build_options)
-    seconds = time.perf_counter() - start
-    notes = list(notes) + [n for n in table.metadata.get("notes", []) if n not in notes]
-    _tick(progress, "save")
-    if make_dirs and not out.parent.exists():
-        out.parent.mkdir(parents=True)
-    paths = table.save(out, raw=raw)
-    return BuildResult(image=image, table=table, notes=notes, paths=paths, seconds=seconds, prefix=out)
-
-
-# --------------------------------------------------------------------------- golden vectors
-
-_METHODS = ("inverse", "alias")
-
-_VECTOR_FIELDS = {
-    "u": "input: two uniforms in [0, 1), float64; row k of numpy.random.default_rng(seed).random((count, 2))",
-    "direction": "output: unit vector (x, y, z), float64, in the table's direction convention",
-    "pdf": "output: solid-angle density of the direction, per steradian, float64",
-    "cell": "output: flat index of the chosen table cell, row * table_width + col",
-    "radiance": "output: RGB radiance of the full-resolution map in that direction (float32 values)",
-    "methods": "inverse = marginal/conditional CDF inversion, alias = alias-table cell choice; "
-    "the table JSON's 'usage' spells out both",
-    "comparing": "a float32 loader should give the same cells except where u lies within rounding of a "
-    "CDF step, directions to about 1e-6 and pdfs to about 1e-5 relative (common practice, not a standard)",
-}
-
-
-def _array_sha256(table) -> dict[str, str]:
-    from .tableio import ARRAY_DTYPES
-
-    out = {}
-    for name, a in table.arrays().items():
-        data = np.ascontiguousarray(a, dtype=np.dtype(ARRAY_DTYPES[name]))
-        out[name] = hashlib.sha256(memoryview(data).cast("B")).hexdigest()
-    return out
-
-
-def _methods(method) -> tuple[str, ...]:
-    if isinstance(method, str):
-        if method == "both":
-            return _METHODS
-        method = (method,)
-    method = tuple(method)
-    bad = [m for m in method if m not in _METHODS]
-    if bad or not method:
-        raise ValueError(f"unknown sampling method {bad[0] if bad else method!r}; valid: inverse, alias, both")
-    return method
-
-
-def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", table_json=None) -> dict:
-    """Reproducible sample records of a table, as a JSON-ready dict.
-
-    ``u = numpy.random.default_rng(seed).random((count, 2))``, then
-    ``table.sample(u, method=m)`` for each method (``"inverse"``, ``"alias"``
-    or ``"both"``).  Floats are Python floats, whose JSON text round-trips
-    exactly, so a loaded file reproduces ``table.sample`` bit for bit.
-    ``table_json`` (the table's JSON path) adds its name and sha256.
-    """
-    count = int(count)
-    if not 1 <= count <= MAX_VECTORS:
-        raise ValueError(f"count must be between 1 and {MAX_VECTORS}, got {count}")
-    seed = int(seed)
-    if seed < 0:
-        raise ValueError(f"seed must be a non-negative integer, got {seed}")
-    methods = _methods(method)
-    u = np.random.default_rng(seed).random((count, 2))
-    outputs = {}
-    for m in methods:
-        s = table.sample(u, method=m)
-        outputs[m] = (s.directions.tolist(), s.pdf.tolist(), s.cells.tolist(), s.radiance.tolist())
-    records = []
-    for k, uk in enumerate(u.tolist()):
-        rec = {"u": uk}
-        for m, (d, p, c, r) in outputs.items():
-            rec[m] = {"direction": d[k], "pdf": p[k], "cell": c[k], "radiance": r[k]}
-        records.append(rec)
-    from . import __version__
-
-    info = {
-        "image": {"width": table.width, "height": table.height},
-        "table": {"width": table.table_width, "height": table.table_height},
-        "mapping": table.mapping,
-        "primaries": table.primaries,
-        "up_axis": table.up,
-        "rotation_deg": table.rotate_deg,
-        "uniform_mix": table.uniform_mix,
-        "array_sha256": _array_sha256(table),
-    }
-    if table_json is not None:
-        path = Path(table_json)
-        info = {"json": path.name, "json_sha256": hashlib.sha256(path.read_bytes()).hexdigest(), **info}
-    return {
-        "schema": VECTORS_SCHEMA,
-        "schema_version": VECTORS_SCHEMA_VERSION,
-        "tool": {"name": "envsample", "version": __version__},
-        "fields": dict(_VECTOR_FIELDS),
-        "seed": seed,
-        "count": count,
-        "generator": "numpy.random.default_rng(seed).random((count, 2)), float64",
-        "methods": list(methods),
-        "table": info,
-        "vectors": records,
-    }
-
-
-def vectors_text(doc: dict) -> str:
-    """The JSON text of a golden-vector document: the header indented, one vector per line."""
-    head = {k: v for k, v in doc.items() if k != "vectors"}
-    text = json.dumps(head, indent=2)
-    lines = [text[:-2] + ',\n  "vectors": [']
-    body = ",\n".join("    " + json.dumps(r, separators=(", ", ": ")) for r in doc["vectors"])
-    return lines[0] + "\n" + body + "\n  ]\n}\n"
-
-
-def write_vectors(path, doc: dict, *, make_dirs: bool = True) -> Path:
-    """Write a golden-vector document atomically (temporary file, then rename); return the path."""
-    from .tableio import atomic_write
-
-    p = Path(path)
-    check_output_folder(p)
-    data = vectors_text(doc).encode("utf-8")
-    if make_dirs and not p.parent.exists():
-        p.parent.mkdir(parents=True)
-    atomic_write(p, lambda f: f.write(data))
-    return p
-
-
-# --------------------------------------------------------------------------- facts
-
-
-def map_integrals(rgb: np.ndarray, primaries: str = "bt709") -> tuple[list[float], float, np.ndarray]:
-    """Per-channel and luminance integrals of L over the sphere (map units x sr, float64 sums), and the luminance.
-
-    Each pixel weighs its exact solid angle (:func:`envsample.sphere.row_solid_angles`).
-    Returns ``([R, G, B], Y, luminance float32 (H, W))``.
-    """
-    h, w = rgb.shape[:2]
-    sa = row_solid_angles(h, w)
-    per_rgb = (rgb.sum(axis=1, dtype=np.float64) * sa[:, None]).sum(axis=0)
-    lum = luminance(rgb, primaries)
-    return [float(x) for x in per_rgb], float(np.dot(lum.sum(axis=1, dtype=np.float64), sa)), lum
-
-
-def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotate_deg: float = 0.0) -> dict:
-    """JSON-ready facts about a map as read (a :class:`envsample.io.MapImage`).
-
-    Size, format, pixel type, channels, compression, chromaticities, sha256;
-    per-channel value range over the finite pixels; counts of NaN/Inf and
-    negative values; per-channel and luminance integrals of L over the sphere
-    (map units times steradians, non-finite values counted as 0, negatives as
-    they are); the brightest pixel by luminance and its direction (azimuth,
-    elevation in degrees, unit vector for ``up``); and whether ``envsample
-    build`` would accept the map as it is (``validate_map``).
-    """
-    from .io import validate_map
-
-    primaries = canonical_primaries(primaries)
-    rgb = np.asarray(image.rgb, dtype=np.float32)
-    h, w = rgb.shape[:2]
-    finite = np.isfinite(rgb)
-    n_bad = int(rgb.size - np.count_nonzero(finite))
-    clean = rgb if n_bad == 0 else np.where(finite, rgb, np.float32(0.0))
-    per_rgb, lum_int, lum = map_integrals(clean, primaries)
-    row, col = divmod(int(np.argmax(lum)), w)
-    brightest = _pixel_direction(row, col, h, w, up=up, rotate_deg=rotate_deg)
-    brightest["luminance"] = float(lum[row, col])
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            _, notes = validate_map(image)
-        usable = {"ok": True, "notes": notes}
-    except MapValidationError as e:
-        usable = {"ok": False, "problem": str(e)}
-    desc = image.describe() if hasattr(image, "describe") else {}
-    path = getattr(image, "path", None)
-    return {
-        "kind": "map",
-        "path": None if path is None else str(path),
-        "file_bytes": Path(path).stat().st_size if path is not None and Path(path).exists() else None,
-        "format": desc.get("format"),
-        "width": w,
-        "height": h,
-        "pixel_type": desc.get("pixel_type"),
-        "channels": desc.get("channels"),
-        "compression": desc.get("compression"),
-        "chromaticities": desc.get("chromaticities"),
-        "is_hdr": desc.get("is_hdr", True),
-        "has_alpha": desc.get("has_alpha", False),
-        "sha256": desc.get("sha256"),
-        "range": {
-            "min": [float(x) for x in clean.min(axis=(0, 1))],
-            "max": [float(x) for x in clean.max(axis=(0, 1))],
-        },
-        "non_finite_values": n_bad,
-        "negative_values": int(np.count_nonzero(clean < 0)),
-        "integrals": {
-            "rgb": per_rgb,
-            "luminance": lum_int,
-            "primaries": primaries,
-            "units": "map radiance units times steradians",
-        },
-        "brightest": brightest,
-        "convention": {"up_axis": up, "rotation_deg": float(rotate_deg)},
-        "build": usable,
-        "caveat": ESTIMATE_CAVEAT,
-    }
-
-
-def table_facts(prefix_or_path) -> dict:
-    """JSON-ready facts about a saved table, which is loaded and verified (checksums, shapes, CDFs).
-
-    Image and table sizes, mapping, primaries, convention, options, integrals,
-    the number of cells with nonzero probability, the largest cell probability
-    and the direction of that cell's centre, notes, and the files with their sizes.
-    """
-    from .tableio import load_table, read_table_json, table_paths
-
-    paths = table_paths(prefix_or_path)
-    doc = read_table_json(prefix_or_path)
-    table = load_table(prefix_or_path)
-    prob = table.cell_probability
-    h, w = prob.shape
-    row, col = divmod(int(np.argmax(prob)), w)
-    largest = _pixel_direction(row, col, h, w, up=table.up, rotate_deg=table.rotate_deg)
-    largest["probability"] = float(prob[row, col])
-    largest["pdf_per_sr"] = float(table.cell_pdf[row, col])
-    files = []
-    for key in ("json", "npz", "bin"):
-        p = paths[key]
-        if p.exists():
-            files.append({"path": str(p), "bytes": p.stat().st_size})
-    conv = doc["convention"]
-    return {
-        "kind": "table",
-        "path": str(paths["json"]),
-        "schema": f"{doc['schema']} v{doc['schema_version']}",
-        "tool_version": doc.get("tool", {}).get("version"),
-        "source": doc.get("source"),
-        "image": {"width": table.width, "height": table.height},
-        "table": {"width": table.table_width, "height": table.table_height},
-        "mapping": table.mapping,
-        "primaries": table.primaries,
-        "convention": {"up_axis": conv["up_axis"], "rotation_deg": conv["rotation_deg"], "handedness": conv["handedness"]},
-        "options": doc["options"],
-        "integrals": doc["integrals"],
-        "cells": int(prob.size),
-        "nonzero_cells": int(np.count_nonzero(prob > 0)),
-        "largest_cell": largest,
-        "valid_only_inside_mis": bool(doc.get("valid_only_inside_mis", False)),
-        "recommendation": doc.get("recommendation"),
-        "notes": doc.get("notes", []),
-        "files": files,
-        "caveat": ESTIMATE_CAVEAT,
-    }
-
+__all__ = ["DemoStep", "DemoContext", "DemoScene", "DEMO_SCENES", "demo_steps", "run_demo"]
 
 # --------------------------------------------------------------------------- demo
 

@@ -105,12 +105,12 @@ def test_debug_shows_the_traceback(run, tmp_path, where):
 
 def test_unexpected_failure_is_reported_as_a_bug(run, tmp_path, monkeypatch):
     """A non-user error gets exit status 3 and one line asking for --debug."""
-    import envsample.demo
+    import envsample.workflow
 
     def broken(*args, **kwargs):
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(envsample.demo, "build_from_file", broken)
+    monkeypatch.setattr(envsample.workflow, "build_from_file", broken)
     result = run("build", _map(tmp_path / "m.exr", _gradient()), "-o", tmp_path / "t")
     assert result.exit_code == EXIT_INTERNAL_ERROR
     assert result.stderr.strip() == (
