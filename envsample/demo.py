@@ -19,40 +19,22 @@ References
 
 from __future__ import annotations
 
-import hashlib
-import json
 import time
-import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from .color import canonical_primaries, luminance
-from .errors import EnvsampleError, MapValidationError
-from .sphere import direction_to_uv, row_solid_angles, uv_to_direction
-
+from .color import luminance
+from .errors import EnvsampleError
 from .workflow import (
-)
     BuildResult,
     ESTIMATE_CAVEAT,
-    VECTORS_SCHEMA,
-    VECTORS_SCHEMA_VERSION,
-    MAX_VECTORS,
     build_from_file,
-    check_output_folder,
     golden_vectors,
     write_vectors,
-    vectors_text,
-    map_facts,
-    table_facts,
-    direction_angles,
-    map_integrals,
-    output_prefix,
-    _tick,
     _pixel_direction,
-    Progress,
 )
 
 __all__ = ["DemoStep", "DemoContext", "DemoScene", "DEMO_SCENES", "demo_steps", "run_demo"]

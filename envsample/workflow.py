@@ -29,8 +29,8 @@ import hashlib
 import json
 import time
 import warnings
-from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
