@@ -22,6 +22,7 @@ import tracemalloc
 
 import numpy as np
 
+from envsample._accel import backend_name, kernels
 from envsample.color import luminance
 from envsample.constants import luminance_weights
 from envsample.table import build_table
@@ -62,27 +63,27 @@ def peak_extra(fn):
     return peak
 
 
+def backends():
+    return ["compiled", "numpy"] if kernels("auto") is not None else ["numpy"]
+
+
 def bench_build(width, height):
     rgb = synthetic_map(width, height)
     w = luminance_weights("bt709").astype(np.float32)
     t_lum = best(lambda: rgb @ w)
     sa = row_solid_angles(height, width)
-
-    def cdf_only():
-        lum = luminance(rgb)
-        return build_row_cdfs(lum, row_scale=sa)
-
-    t_cdf = best(cdf_only)
-    t_full = best(lambda: build_table(rgb), repeats=2)
+    print(f"build {width}x{height} (input {rgb.nbytes / 2**20:.0f} MiB); luminance pass {t_lum:.3f} s = 1.00x")
     lum = luminance(rgb)
-    t_alias = best(lambda: build_alias(lum, row_scale=sa), repeats=2)
+    for backend in backends():
+        t_cdf = best(lambda: build_row_cdfs(luminance(rgb), row_scale=sa, backend=backend))
+        t_alias = best(lambda: build_alias(lum, row_scale=sa, backend=backend), repeats=2)
+        print(f"  [{backend}] luminance + CDF tables  {t_cdf:7.3f} s  {t_cdf / t_lum:6.2f}x  (goal <= 3x)")
+        print(f"  [{backend}] alias table alone       {t_alias:7.3f} s  {t_alias / t_lum:6.2f}x")
+    t_full = best(lambda: build_table(rgb), repeats=2)
     mem = peak_extra(lambda: build_table(rgb))
-    print(f"build {width}x{height} (input {rgb.nbytes / 2**20:.0f} MiB)")
-    print(f"  luminance pass            {t_lum:8.3f} s   1.00x")
-    print(f"  luminance + CDF tables    {t_cdf:8.3f} s   {t_cdf / t_lum:5.2f}x   (goal <= 3x)")
-    print(f"  alias table alone         {t_alias:8.3f} s   {t_alias / t_lum:5.2f}x")
-    print(f"  build_table (CDF + alias) {t_full:8.3f} s   {t_full / t_lum:5.2f}x   (goal <= 6x)")
-    print(f"  peak extra memory         {mem / 2**20:8.0f} MiB {mem / rgb.nbytes:5.2f}x input (goal <= 2x)")
+    print(f"  [{backend_name()}] build_table (CDF + alias, integrals, checks) {t_full:7.3f} s  "
+          f"{t_full / t_lum:6.2f}x  (goal <= 6x)")
+    print(f"  [{backend_name()}] peak extra memory {mem / 2**20:6.0f} MiB  {mem / rgb.nbytes:5.2f}x input (goal <= 2x)")
 
 
 def bench_sampling(width, height, n=2_000_000):
@@ -92,10 +93,12 @@ def bench_sampling(width, height, n=2_000_000):
     t_u = best(lambda: rng.random((n, 2)))
     u = rng.random((n, 2))
     print(f"sampling {width}x{height} table, {n:,} samples (directions + pdf)")
-    print(f"  numpy uniforms            {n / t_u / 1e6:8.1f} M/s  1.00x")
-    for method in ("alias", "inverse"):
-        t = best(lambda: table.sample(u, method=method))
-        print(f"  {method:<25} {n / t / 1e6:8.1f} M/s  {t / t_u:5.2f}x the uniforms' time (alias goal <= 4x)")
+    print(f"  numpy uniforms              {n / t_u / 1e6:8.1f} M/s  1.00x")
+    for backend in backends():
+        for method in ("alias", "inverse"):
+            t = best(lambda: table.sample(u, method=method, backend=backend))
+            print(f"  [{backend}] {method:<16} {n / t / 1e6:8.1f} M/s  {t / t_u:6.2f}x the uniforms' time"
+                  f"{'  (goal <= 4x)' if method == 'alias' else ''}")
 
 
 def main():
