@@ -721,6 +721,8 @@ def _fmt(x, digits: int = 3) -> str:
         return str(x)
     if x != 0 and (abs(x) >= 1e6 or abs(x) < 1e-3):
         return f"{x:.{digits - 1}e}"
+    if abs(x) >= 10 ** digits:
+        return f"{x:.0f}"
     return f"{x:.{digits}g}"
 
 
@@ -846,7 +848,8 @@ def _count_check(ctx: CheckContext, check_id: str, bad: np.ndarray, what: str) -
     frac = count / bad.size
     return CheckResult(
         check_id, "fail", value=count, threshold=s["max_pixels"],
-        message=f"{count} pixels ({_pct(frac)}) have a {what} channel, first at row {r}, column {c}",
+        message=(f"{count} pixel{'s' if count > 1 else ''} ({_pct(frac)}) "
+                 f"{'have' if count > 1 else 'has'} a {what} channel, first at row {r}, column {c}"),
         remedy="fix them at the source, or read with validate_map(repair=True), which sets them to 0",
         details={"first_row": int(r), "first_column": int(c), "fraction": frac},
     )
@@ -1006,6 +1009,8 @@ def _check_clipping(ctx: CheckContext) -> CheckResult:
     details = {}
     for where, p in candidates:
         details["plateau"] = p
+        note = (f"largest plateau at the maximum: {p['pixels']} px, {_fmt(p['sun_multiple'])}x the sun's solid angle "
+                "(not clipped)")
         if (p["pixels"] >= s["plateau_min_pixels"] and p["sun_multiple"] >= s["plateau_min_sun_multiple"]
                 and p["contrast"] >= s["plateau_min_contrast"]):
             note = (f"{p['pixels']} pixels share the maximum inside a sharp-edged emitter "

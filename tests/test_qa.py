@@ -570,3 +570,42 @@ def test_usage_errors_raise():
         qa.check_map(42)
     with pytest.raises(ValueError, match="unknown check id"):
         qa.check_map(sunny(64), checks=["seams"])
+
+
+def test_row_weighted_quantiles_match_an_argsort_reference(rng):
+    """The packed-key sort must give the same weighted quantiles as a plain argsort of
+    (value, weight) pairs (numpy reference), including ties and zeros."""
+    values = rng.lognormal(size=(37, 74)).astype(np.float32)
+    values[rng.random(values.shape) < 0.2] = 0.0
+    values[3, :10] = -0.0
+    values[5] = values[6]  # ties across rows
+    w = row_solid_angles(37, 74)
+    sample = qa._RowWeightedSample(values, w)
+    flat = np.maximum(values, 0).ravel().astype(np.float64)
+    weights = np.broadcast_to(w[:, None], values.shape).ravel()
+    order = np.argsort(flat, kind="stable")
+    cdf = np.cumsum(weights[order])
+    for q in (0.0, 0.01, 0.25, 0.5, 0.9, 0.999, 1.0):
+        k = min(int(np.searchsorted(cdf, q * cdf[-1], side="left")), flat.size - 1)
+        assert sample.quantile(q) == flat[order[k]]
+
+
+def test_a_check_refused_by_a_lower_layer_fails_without_stopping_the_others(monkeypatch):
+    from envsample.errors import MapValidationError
+
+    def refuse(ctx):
+        raise MapValidationError("map: refused on purpose")
+
+    monkeypatch.setitem(qa.CHECKS, "seam", refuse)
+    report = qa.check_map(sunny(64), checks=["seam", "poles"])
+    assert report["seam"].severity == "fail" and "refused on purpose" in report["seam"].message
+    assert report["poles"].severity == "pass"
+
+
+def test_sharp_edged_area_lights_are_plateaus_but_not_clipping():
+    """Uniform rectangular lights (envsample.skies studio) share their exact radiance over many
+    pixels; with no shoulder this is their real radiance, reported as a note."""
+    c = qa.check_map(skies.make_sky("studio", width=W), checks=["clipping"])["clipping"]
+    p = c.details["plateau"]
+    assert c.severity == "pass" and p["pixels"] >= 100 and p["shoulder"] < 0.01
+    assert "sharp-edged" in c.message
