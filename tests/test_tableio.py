@@ -1,0 +1,436 @@
+"""Tests of envsample.tableio: the NPZ + JSON (+ raw .bin) table files.
+
+External references used here:
+- numpy's NPZ/NPY container (numpy.lib.format) and ``numpy.frombuffer`` with explicit
+  little-endian dtypes ('<f4', '<i4') read the raw file independently of envsample.
+- hashlib.sha256 over the C-order bytes recomputes every checksum the JSON lists.
+- The JSON schema and the drawing recipe are our own, documented in docs/table-format.md;
+  a from-scratch loader below follows that text (not envsample's code) and must reproduce
+  EnvTable.sample, which is what a renderer developer's C++/GPU loader would do.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import re
+import zipfile
+from bisect import bisect_right
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from envsample import tableio
+from envsample.errors import TableFormatError
+from envsample.table import build_table, load_table
+from envsample.tableio import ARRAY_DTYPES, SCHEMA_NAME, SCHEMA_VERSION, read_table_json, table_paths
+
+#: Position within a cell is kept in [EDGE, 1 - EDGE] (docs/table-format.md).
+EDGE = 1e-7
+
+
+def _map(seed=5, h=16, w=32):
+    r = np.random.default_rng(seed)
+    rgb = np.exp(r.normal(0.0, 1.0, (h, w, 3))).astype(np.float32)
+    rgb[3, 7] = 5e4  # a small sun
+    return rgb
+
+
+@pytest.fixture
+def table():
+    t = build_table(_map(), mapping="uv-linear", up="z", rotate_deg=30.0, uniform_mix=0.1, size=(16, 8))
+    t.metadata["recommendation"] = {"method": "alias", "why": "invented for the test"}
+    return t
+
+
+def _match(path) -> str:
+    """A pytest.raises pattern that requires the message to name the file."""
+    return re.escape(str(path))
+
+
+def _saved(tmp_path, table, raw=False):
+    prefix = tmp_path / "rooftop"
+    table.save(prefix, raw=raw)
+    return prefix, table_paths(prefix)
+
+
+def _rewrite_json(path, edit):
+    doc = json.loads(Path(path).read_text())
+    edit(doc)
+    Path(path).write_text(json.dumps(doc))
+
+
+# ------------------------------------------------------------------ round trip
+def test_round_trip_is_bit_exact(tmp_path, table, rng):
+    """Every array (values, dtype, shape) and all metadata survive save/load exactly; the loaded table
+    samples bit-identically."""
+    prefix = tmp_path / "rooftop"
+    written = table.save(prefix)
+    assert [p.name for p in written] == ["rooftop.npz", "rooftop.json"]  # JSON last
+    for source in (prefix, written[0], written[1], str(prefix) + ".json"):
+        loaded = load_table(source)
+        for name, a in table.arrays().items():
+            b = loaded.arrays()[name]
+            assert b.dtype == np.dtype(ARRAY_DTYPES[name]) and b.shape == a.shape, name
+            np.testing.assert_array_equal(b, a, err_msg=name)
+        for key in ("convention", "options", "integrals", "sampled_integral", "notes", "source", "recommendation"):
+            assert loaded.metadata[key] == table.metadata[key], key
+        for attr in ("height", "width", "table_height", "table_width", "up", "rotate_deg", "mapping",
+                     "primaries", "uniform_mix", "compensated"):
+            assert getattr(loaded, attr) == getattr(table, attr), attr
+    u = rng.random((5000, 2))
+    for method in ("inverse", "alias"):
+        a, b = table.sample(u, method=method), loaded.sample(u, method=method)
+        np.testing.assert_array_equal(a.directions, b.directions)
+        np.testing.assert_array_equal(a.pdf, b.pdf)
+        np.testing.assert_array_equal(a.cells, b.cells)
+
+
+def test_round_trip_of_a_compensated_table(tmp_path):
+    t = build_table(_map(), compensate=True)
+    prefix, _ = _saved(tmp_path, t)
+    loaded = load_table(prefix)
+    assert loaded.compensated and loaded.metadata.get("valid_only_inside_mis") is True
+    np.testing.assert_array_equal(loaded.cell_pdf, t.cell_pdf)
+
+
+def test_json_describes_the_table(tmp_path, table):
+    """The JSON names the schema and version, sizes, convention, mapping, and a recipe for its mapping."""
+    _, paths = _saved(tmp_path, table)
+    doc = read_table_json(paths["json"])
+    assert doc["schema"] == SCHEMA_NAME and doc["schema_version"] == SCHEMA_VERSION
+    assert doc["image"] == {"width": 32, "height": 16} and doc["table"] == {"width": 16, "height": 8}
+    assert doc["convention"]["up_axis"] == "z" and doc["convention"]["rotation_deg"] == 30.0
+    assert doc["convention"]["handedness"] == "right"
+    assert doc["mapping"] == "uv-linear" and "uv-linear" in doc["usage"] and "equal-area" not in doc["usage"]
+    assert doc["files"] == {"npz": "rooftop.npz", "raw": None}
+    assert set(doc["arrays"]) == set(ARRAY_DTYPES)
+
+
+def test_checksums_in_json_match_hashlib(tmp_path, table):
+    """sha256 (hashlib) of each array's C-order little-endian bytes equals the JSON entry."""
+    _, paths = _saved(tmp_path, table)
+    doc = json.loads(paths["json"].read_text())
+    with np.load(paths["npz"]) as z:
+        for name, entry in doc["arrays"].items():
+            a = np.ascontiguousarray(z[name], dtype=np.dtype(entry["dtype"]))
+            assert hashlib.sha256(a.tobytes()).hexdigest() == entry["sha256"], name
+            assert entry["byte_order"] == "little" and entry["dtype"] in ("<f4", "<i4")
+
+
+def test_raw_file_holds_the_arrays_at_the_json_offsets(tmp_path, table):
+    """PREFIX.bin: each array at its JSON offset (64-byte aligned) as little-endian bytes, read with
+    numpy.frombuffer, equals the NPZ array."""
+    prefix = tmp_path / "rooftop"
+    written = table.save(prefix, raw=True)
+    assert [p.name for p in written] == ["rooftop.npz", "rooftop.bin", "rooftop.json"]
+    paths = table_paths(prefix)
+    doc = json.loads(paths["json"].read_text())
+    assert doc["files"]["raw"] == "rooftop.bin"
+    blob = paths["bin"].read_bytes()
+    end = 0
+    with np.load(paths["npz"]) as z:
+        for name, entry in doc["arrays"].items():
+            dtype = np.dtype(entry["dtype"])
+            count = int(np.prod(entry["shape"]))
+            assert entry["offset"] % 64 == 0 and entry["nbytes"] == count * dtype.itemsize
+            a = np.frombuffer(blob, dtype=dtype, count=count, offset=entry["offset"]).reshape(entry["shape"])
+            np.testing.assert_array_equal(a, z[name], err_msg=name)
+            assert hashlib.sha256(blob[entry["offset"] : entry["offset"] + entry["nbytes"]]).hexdigest() == entry["sha256"]
+            end = max(end, entry["offset"] + entry["nbytes"])
+    assert len(blob) == end
+    load_table(prefix)  # a raw table loads like any other
+
+
+# ------------------------------------------------------------------ an independent loader
+class _DocLoader:
+    """A loader written from docs/table-format.md alone: raw bytes + JSON, plain Python per sample."""
+
+    def __init__(self, prefix):
+        doc = json.loads(Path(str(prefix) + ".json").read_text())
+        blob = Path(str(prefix) + ".bin").read_bytes()
+        self.arr = {}
+        for name, e in doc["arrays"].items():
+            a = np.frombuffer(blob, dtype=np.dtype(e["dtype"]), count=int(np.prod(e["shape"])), offset=e["offset"])
+            self.arr[name] = a.reshape(e["shape"])
+        self.h, self.w = doc["table"]["height"], doc["table"]["width"]
+        conv = doc["convention"]
+        self.f, self.r, self.a = (np.array(conv[k], dtype=np.float64) for k in ("forward", "right", "up"))
+        self.rot = math.radians(conv["rotation_deg"])
+        self.mapping = doc["mapping"]
+
+    def sample(self, u0, u1, method):
+        h, w = self.h, self.w
+        if method == "inverse":
+            m = [float(x) for x in self.arr["marginal_cdf"]]
+            i = min(bisect_right(m, u0) - 1, h - 1)
+            fv = (u0 - m[i]) / (m[i + 1] - m[i])
+            c = [float(x) for x in self.arr["conditional_cdf"][i]]
+            j = min(bisect_right(c, u1) - 1, w - 1)
+            fu = (u1 - c[j]) / (c[j + 1] - c[j])
+            cell = i * w + j
+        else:
+            n = h * w
+            k = int(u0 * n)
+            f = u0 * n - k
+            p = float(self.arr["alias_probability"][k])
+            if f < p:
+                cell, fu = k, f / p
+            else:
+                cell, fu = int(self.arr["alias_index"][k]), (f - p) / (1 - p)
+            fv = u1
+            i, j = divmod(cell, w)
+        fu = min(max(fu, EDGE), 1 - EDGE)
+        fv = min(max(fv, EDGE), 1 - EDGE)
+        phi = 2 * math.pi * (j + fu) / w - math.pi + self.rot
+        ci, cn = math.cos(math.pi * i / h), math.cos(math.pi * (i + 1) / h)
+        pdf = float(self.arr["cell_pdf"][i, j])
+        if self.mapping == "equal-area":
+            cos_t = ci - fv * (ci - cn)
+            sin_t = math.sqrt(max(0.0, 1 - cos_t * cos_t))
+        else:
+            theta = math.pi * (i + fv) / h
+            cos_t, sin_t = math.cos(theta), math.sin(theta)
+            pdf *= (ci - cn) * 2 * math.pi / w * h * w / (2 * math.pi**2 * sin_t)
+        d = sin_t * (math.cos(phi) * self.f + math.sin(phi) * self.r) + cos_t * self.a
+        return d, pdf, cell
+
+
+@pytest.mark.parametrize("mapping", ["equal-area", "uv-linear"])
+@pytest.mark.parametrize("method", ["inverse", "alias"])
+def test_documented_recipe_reproduces_sampling(tmp_path, rng, mapping, method):
+    """docs/table-format.md is enough to write a loader: following its recipe on the raw file gives
+    the cells, directions and pdf of EnvTable.sample (to the float rounding of the recipe)."""
+    t = build_table(_map(), mapping=mapping, up="z", rotate_deg=-40.0)
+    prefix = tmp_path / "studio"
+    t.save(prefix, raw=True)
+    ref = _DocLoader(prefix)
+    u = rng.random((300, 2))
+    s = t.sample(u, method=method)
+    for k in range(u.shape[0]):
+        d, pdf, cell = ref.sample(float(u[k, 0]), float(u[k, 1]), method)
+        assert cell == s.cells[k]
+        np.testing.assert_allclose(d, s.directions[k], atol=1e-6)
+        assert pdf == pytest.approx(s.pdf[k], rel=1e-6)
+
+
+# ------------------------------------------------------------------ refused tables
+def test_missing_json_is_refused(tmp_path):
+    with pytest.raises(TableFormatError, match=_match(tmp_path / "nothing.json") + ".*not found"):
+        load_table(tmp_path / "nothing")
+
+
+def test_missing_npz_is_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    paths["npz"].unlink()
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*not found"):
+        load_table(paths["json"])
+
+
+def test_invalid_json_is_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    paths["json"].write_text('{"schema": "envsample.sampling-table", "schema_version": 1,')
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*not valid JSON"):
+        load_table(paths["json"])
+    paths["json"].write_bytes(b"\xff\xfe\x00garbage")
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*not valid JSON"):
+        load_table(paths["json"])
+
+
+def test_other_schema_or_version_is_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d.update(schema_version=SCHEMA_VERSION + 1))
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + f".*schema version {SCHEMA_VERSION + 1}"):
+        load_table(paths["json"])
+    _rewrite_json(paths["json"], lambda d: d.update(schema="someone.else", schema_version=SCHEMA_VERSION))
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*not an envsample table"):
+        load_table(paths["json"])
+    paths["json"].write_text("[1, 2, 3]")
+    with pytest.raises(TableFormatError, match="not an envsample table"):
+        load_table(paths["json"])
+
+
+def test_missing_json_key_is_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d.pop("arrays"))
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*missing key 'arrays'"):
+        load_table(paths["json"])
+
+
+def _rewrite_npz(path, edit):
+    with np.load(path) as z:
+        arrays = {k: z[k].copy() for k in z.files}
+    edit(arrays)
+    with open(path, "wb") as f:
+        np.savez(f, **arrays)
+
+
+def test_tampered_value_is_refused(tmp_path, table):
+    """One value changed in one array: its sha256 no longer matches the JSON."""
+    _, paths = _saved(tmp_path, table)
+
+    def tamper(a):
+        a["cell_pdf"][2, 3] = np.nextafter(a["cell_pdf"][2, 3], np.float32(1e9))
+
+    _rewrite_npz(paths["npz"], tamper)
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'cell_pdf' fails its sha256"):
+        load_table(paths["json"])
+
+
+def test_wrong_dtype_and_missing_array_are_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    _rewrite_npz(paths["npz"], lambda a: a.update(alias_index=a["alias_index"].astype(np.int64)))
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' has dtype <i8"):
+        load_table(paths["json"])
+    _rewrite_npz(paths["npz"], lambda a: a.pop("alias_index"))
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' missing"):
+        load_table(paths["json"])
+
+
+@pytest.mark.parametrize("keep", [0.5, 0.1, 0.0])
+def test_truncated_npz_is_refused(tmp_path, table, keep):
+    _, paths = _saved(tmp_path, table)
+    data = paths["npz"].read_bytes()
+    paths["npz"].write_bytes(data[: int(len(data) * keep)])
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*corrupt or truncated"):
+        load_table(paths["json"])
+
+
+def test_npz_that_is_not_a_zip_is_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    paths["npz"].write_text("this is not an archive\n" * 20)
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*corrupt or truncated"):
+        load_table(paths["json"])
+
+
+def test_mismatched_shapes_are_refused(tmp_path, table):
+    """The JSON's array shape, or its table size, disagreeing with the arrays."""
+    _, paths = _saved(tmp_path, table)
+    original = paths["json"].read_text()
+    _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(shape=[4, 32]))
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + r".*'cell_pdf' has shape \[8, 16\], JSON says \[4, 32\]"):
+        load_table(paths["json"])
+    paths["json"].write_text(original)
+    _rewrite_json(paths["json"], lambda d: d["table"].update(width=8, height=16))
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*expected .* for a 8x16 table"):
+        load_table(paths["json"])
+    paths["json"].write_text(original)
+    _rewrite_json(paths["json"], lambda d: d["image"].update(width=64))
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'radiance' has shape"):
+        load_table(paths["json"])
+
+
+@pytest.mark.parametrize(
+    "name, edit, message",
+    [
+        ("marginal_cdf", lambda a: a.__setitem__(3, a[2] - 0.01), "marginal_cdf is not non-decreasing"),
+        ("conditional_cdf", lambda a: a.__setitem__((1, -1), 0.99), "conditional_cdf does not end at exactly 1"),
+        ("marginal_cdf", lambda a: a.__setitem__(0, 1e-6), "marginal_cdf does not start at exactly 0"),
+        ("alias_index", lambda a: a.__setitem__(5, a.size), "alias_index has entries outside"),
+        ("alias_probability", lambda a: a.__setitem__(5, 1.5), "alias_probability has values outside"),
+        ("cell_pdf", lambda a: a.__setitem__((0, 0), -1.0), "cell_pdf has negative or non-finite"),
+        ("cell_pdf", lambda a: a.__setitem__((0, 0), np.nan), "cell_pdf has negative or non-finite"),
+    ],
+)
+def test_inconsistent_arrays_with_valid_checksums_are_refused(tmp_path, name, edit, message):
+    """A writer that produced bad arrays (checksums consistent): the loader's own checks catch it."""
+    t = build_table(_map())
+    edit(getattr(t, {"marginal_cdf": "marginal_cdf", "conditional_cdf": "conditional_cdf",
+                     "alias_index": "alias_index", "alias_probability": "alias_probability",
+                     "cell_pdf": "cell_pdf"}[name]))
+    prefix, paths = _saved(tmp_path, t)
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*" + re.escape(message)):
+        load_table(prefix)
+
+
+def test_unknown_mapping_is_refused(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d["options"].update(mapping="spiral"))
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*unknown in-cell mapping 'spiral'"):
+        load_table(paths["json"])
+
+
+# ------------------------------------------------------------------ atomic writes
+def _listing(folder):
+    return sorted(p.name for p in Path(folder).iterdir())
+
+
+def test_failed_save_leaves_no_files(tmp_path, table, monkeypatch):
+    """np.savez failing mid-save: the error propagates and no partial or temporary file remains."""
+
+    def boom(*args, **kwargs):
+        raise OSError("disk full (simulated)")
+
+    monkeypatch.setattr(np, "savez", boom)
+    with pytest.raises(OSError, match="simulated"):
+        table.save(tmp_path / "rooftop", raw=True)
+    assert _listing(tmp_path) == []
+
+
+def test_failed_save_keeps_the_existing_table(tmp_path, table, monkeypatch):
+    """An existing table is untouched, byte for byte, when a new save fails while writing arrays."""
+    prefix, paths = _saved(tmp_path, table, raw=True)
+    before = {k: p.read_bytes() for k, p in paths.items()}
+    other = build_table(_map(seed=9))
+
+    real = tableio.atomic_write
+
+    def failing_after_first_bytes(path, write):
+        def partial(f):
+            f.write(b"PK\x03\x04 half an archive")
+            raise OSError("interrupted (simulated)")
+
+        return real(path, partial)
+
+    monkeypatch.setattr(tableio, "atomic_write", failing_after_first_bytes)
+    with pytest.raises(OSError, match="simulated"):
+        other.save(prefix, raw=True)
+    assert {k: p.read_bytes() for k, p in paths.items()} == before
+    assert _listing(tmp_path) == ["rooftop.bin", "rooftop.json", "rooftop.npz"]
+    np.testing.assert_array_equal(load_table(prefix).cell_pdf, table.cell_pdf)
+
+
+def test_interrupted_before_the_json_never_loads_a_hybrid(tmp_path, table, monkeypatch):
+    """If the save dies after the new arrays are in place but before the JSON is renamed, the old JSON's
+    checksums refuse the new arrays: a half-written table never loads (tableio module docstring)."""
+    prefix, paths = _saved(tmp_path, table)
+    other = build_table(_map(seed=9), mapping="uv-linear", up="z", rotate_deg=30.0, uniform_mix=0.1, size=(16, 8))
+    real_replace = os.replace
+
+    def replace(src, dst):
+        if str(dst).endswith(".json"):
+            raise OSError("power cut (simulated)")
+        return real_replace(src, dst)
+
+    monkeypatch.setattr(os, "replace", replace)
+    with pytest.raises(OSError, match="simulated"):
+        other.save(prefix)
+    monkeypatch.undo()
+    assert _listing(tmp_path) == ["rooftop.json", "rooftop.npz"]  # no temporary files left
+    with pytest.raises(TableFormatError, match="sha256"):
+        load_table(prefix)
+
+
+def test_save_into_a_missing_folder_fails_cleanly(tmp_path, table):
+    with pytest.raises(FileNotFoundError, match="output folder does not exist"):
+        table.save(tmp_path / "no" / "such" / "dir" / "sky")
+    assert _listing(tmp_path) == []
+
+
+def test_table_paths():
+    p = table_paths("tables/sky.v2")
+    assert p["json"].name == "sky.v2.json" and p["npz"].name == "sky.v2.npz" and p["bin"].name == "sky.v2.bin"
+    for name in ("tables/sky.json", "tables/sky.npz", "tables/sky.BIN", "tables/sky"):
+        assert table_paths(name)["json"] == Path("tables/sky.json")
+
+
+def test_npz_is_a_plain_uncompressed_zip(tmp_path, table):
+    """NPZ is numpy's zip container: every member is a stored (uncompressed) .npy file."""
+    _, paths = _saved(tmp_path, table)
+    with zipfile.ZipFile(paths["npz"]) as z:
+        names = {i.filename for i in z.infolist()}
+        assert names == {f"{n}.npy" for n in ARRAY_DTYPES}
+        assert all(i.compress_type == zipfile.ZIP_STORED for i in z.infolist())
