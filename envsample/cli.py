@@ -596,6 +596,62 @@ def sky(kind, output, size, pixel_type, **given):
 sky.help = inspect.cleandoc(sky.help).replace("{kinds}", _sky_help())
 
 
+# --------------------------------------------------------------------------- check
+
+
+def _write_text_atomic(path: Path, text: str) -> None:
+    from .tableio import atomic_write
+
+    atomic_write(path, lambda f: f.write(text.encode("utf-8")))
+
+
+@main.command()
+@click.argument("maps", metavar="MAP...", nargs=-1, required=True, type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
+              help="Thresholds (TOML); default: the built-in profile (see 'envsample/profiles/default.toml').")
+@click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="FILE",
+              help="Also write every check with its values as JSON ('-' for standard output).")
+@click.option("--html", "html_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="FILE",
+              help="Also write one self-contained HTML page for all the maps.")
+@click.option("--strict", is_flag=True, help="Exit with status 1 on warnings too.")
+@click.option("--only", "only", default=None, metavar="ID,ID",
+              help="Run only these checks (comma-separated ids; 'read' always runs).")
+def check(maps, profile_path, json_path, html_path, strict, only):
+    """Check HDR environment maps before they enter the library.
+
+    Each check has a stable id, a severity (pass, warn, fail), the measured value,
+    its threshold, a message and a remedy. Exit status: 0 all pass, 1 any fail
+    (with --strict also any warn), 2 unreadable input or usage error.
+    Light levels are estimates for asset preparation, not certified lighting calculations.
+    """
+    from .qa import check_map, format_report, load_profile, report_to_json
+
+    profile = load_profile(profile_path)
+    ids = None if only is None else [c.strip() for c in only.split(",") if c.strip()]
+    for out in (json_path, html_path):
+        if out is not None and str(out) != "-" and not out.parent.exists():
+            raise click.UsageError(f"{out.parent}: output folder does not exist; create it first")
+    reports = []
+    with _progress_bar(len(maps), "checking") as bar:
+        for path in maps:
+            reports.append(check_map(path, profile=profile, checks=ids))
+            bar.update(1)
+    click.echo(format_report(reports, color=sys.stdout.isatty()))
+    if json_path is not None:
+        text = report_to_json(reports) + "\n"
+        if str(json_path) == "-":
+            click.echo(text, nl=False)
+        else:
+            _write_text_atomic(json_path, text)
+            click.echo(f"wrote {json_path}")
+    if html_path is not None:
+        from .html import check_page
+
+        check_page(reports, html_path)
+        click.echo(f"wrote {html_path}")
+    return max(r.exit_code(strict=strict) for r in reports)
+
+
 # --------------------------------------------------------------------------- demo
 
 
