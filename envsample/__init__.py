@@ -51,6 +51,43 @@ _EXPORTS = {
     # skies
     "make_sky": "skies",
     "sky_kinds": "skies",
+    "sun_sky": "skies",
+    "cie_overcast_sky": "skies",
+    "uniform_sky": "skies",
+    "studio_sky": "skies",
+    "rooftop_scene": "skies",
+    "studio_scene": "skies",
+    "sun_direction": "skies",
+    # pictures
+    "tonemap": "pictures",
+    "thumbnail": "pictures",
+    "write_png": "pictures",
+    # strategies and MIS
+    "make_strategy": "strategies",
+    "make_frame": "strategies",
+    "TableStrategy": "strategies",
+    "estimate_irradiance": "mis",
+    "estimate_glossy": "mis",
+    "estimators": "mis",
+    "mis_weights": "mis",
+    "firefly_index": "mis",
+    "EstimatorSamples": "mis",
+    # QA
+    "check_map": "qa",
+    "load_profile": "qa",
+    "Report": "qa",
+    "CheckResult": "qa",
+    "Profile": "qa",
+    "ProfileError": "qa",
+    "format_report": "qa",
+    "report_to_json": "qa",
+    # workflow and demo
+    "build_from_file": "workflow",
+    "golden_vectors": "workflow",
+    "write_vectors": "workflow",
+    "map_facts": "workflow",
+    "table_facts": "workflow",
+    "run_demo": "demo",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]
