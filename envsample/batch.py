@@ -668,6 +668,18 @@ def _up_to_date(folder: Path, sha256: str, key: str, version: str) -> dict | Non
 def _worker_init() -> None:
     # Ctrl-C reaches the whole process group; only the parent decides what to stop.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # A worker whose parent was killed (SIGKILL, OOM) would otherwise wait forever on the
+    # task queue, whose pipe it holds open itself: leave as soon as the parent is gone.
+    parent = multiprocessing.parent_process()
+    if parent is not None:
+        import threading
+        from multiprocessing.connection import wait as wait_for
+
+        def watch():
+            wait_for([parent.sentinel])
+            os._exit(1)
+
+        threading.Thread(target=watch, name="envsample-parent-watch", daemon=True).start()
 
 
 def _run_inline(tasks, task_fn):
