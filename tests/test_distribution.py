@@ -36,6 +36,7 @@ from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
 from envsample import distribution as dist
+from envsample._accel import backend_name
 from envsample.distribution import (
     alias_cell_probabilities,
     build_alias,
@@ -53,17 +54,11 @@ ABS_TOL = 1e-30
 #: value each round by at most half an ulp below 1, 2**-25.
 F32_STORE = 2.0**-24
 
-try:  # the compiled kernels are optional; when they are built, test both code paths
-    from envsample._accel import backend_name
-
-    BACKENDS = ["numpy"] + (["compiled"] if backend_name() == "compiled" else [])
-except ImportError:  # no backend switch in this version: the default path only
-    BACKENDS = [None]
+#: The compiled kernels are optional; when they are built, both code paths are tested.
+BACKENDS = ["numpy"] + (["compiled"] if backend_name() == "compiled" else [])
 
 
-def _build_alias(weights, backend=None, **kw):
-    if backend is None:
-        return build_alias(weights, **kw)
+def _build_alias(weights, backend="auto", **kw):
     return build_alias(weights, backend=backend, **kw)
 
 
@@ -147,6 +142,37 @@ def test_build_alias_2d_with_row_scale(backend, rng):
     _assert_alias_valid(prob, alias, _expected(weights, scale))
 
 
+@pytest.mark.parametrize(
+    "backend",
+    [
+        pytest.param(
+            b,
+            marks=pytest.mark.xfail(
+                strict=True,
+                reason="known: the numpy sweep hands the lights' float32 rounding drift to the last heavy "
+                "cell (~4e-5 relative here); the compiled sweep does not",
+            ),
+        )
+        if b == "numpy"
+        else b
+        for b in BACKENDS
+    ],
+)
+def test_build_alias_flat_map_with_one_brighter_cell_is_exact(backend):
+    """A flat 256 x 128 lat-long map (a studio backdrop) with one pixel 5 x brighter: every cell,
+    including the last heavy, to 1e-6 relative plus the per-bucket float32 bound (no drift allowance)."""
+    h, w = 128, 256
+    weights = np.ones((h, w), dtype=np.float32)
+    weights[h // 10, w // 3] = 5.0
+    scale = np.diff(-np.cos(np.pi * np.arange(h + 1) / h)) * 2 * math.pi / w
+    prob, alias = _build_alias(weights, backend, row_scale=scale)
+    expected = _expected(weights, scale)
+    n = expected.size
+    err = np.abs(alias_cell_probabilities(prob, alias) - expected)
+    tol = REL_TOL * expected + (1 + np.bincount(alias, minlength=n)) * F32_STORE / n
+    assert np.all(err <= tol), f"worst relative error {np.max(err / expected):.3g}"
+
+
 def test_build_alias_across_chunk_boundaries(rng, monkeypatch):
     """The construction streams rows in chunks; force many tiny chunks so lights and heavies
     are matched across chunk boundaries, and compare with the unchunked table's probabilities."""
@@ -157,7 +183,7 @@ def test_build_alias_across_chunk_boundaries(rng, monkeypatch):
     scale = rng.uniform(0.1, 2.0, h)
     expected = _expected(weights, scale)
     monkeypatch.setattr(dist, "_CHUNK_CELLS", 1)  # one row per chunk
-    prob, alias = _build_alias(weights, BACKENDS[0], row_scale=scale)  # the chunked (numpy) path
+    prob, alias = _build_alias(weights, "numpy", row_scale=scale)  # the chunked (numpy) path
     _assert_alias_valid(prob, alias, expected)
 
 
@@ -213,7 +239,7 @@ def test_alias_property_2d_chunked(shape, seed, zero_fraction, chunk):
         weights[0, 0] = 1.0
     with pytest.MonkeyPatch.context() as mp:
         mp.setattr(dist, "_CHUNK_CELLS", chunk)
-        prob, alias = _build_alias(weights, BACKENDS[0], row_scale=scale)
+        prob, alias = _build_alias(weights, "numpy", row_scale=scale)
     _assert_alias_valid(prob, alias, _expected(weights, scale))
 
 

@@ -33,6 +33,7 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
+from envsample._accel import backend_name
 from envsample.errors import EnvsampleWarning, MapValidationError
 from envsample.sphere import UP_AXES, direction_to_uv, pixel_center_directions, uv_to_direction
 from envsample.table import MAPPINGS, SAMPLE_METHODS, build_table, parse_size, reduce_power
@@ -43,17 +44,11 @@ N_SIGMA = 4.0
 PDF_RTOL = 1e-5
 BT709_Y = colour.RGB_COLOURSPACES["ITU-R BT.709"].matrix_RGB_to_XYZ[1]
 
-try:  # the compiled sampler is optional; test both code paths when it is built
-    from envsample._accel import backend_name
-
-    BACKENDS = ["numpy"] + (["compiled"] if backend_name() == "compiled" else [])
-except ImportError:  # pragma: no cover - no backend switch in this version
-    BACKENDS = [None]
+#: The compiled sampler is optional; when it is built, both code paths are tested.
+BACKENDS = ["numpy"] + (["compiled"] if backend_name() == "compiled" else [])
 
 
-def _sample(table, u, method="inverse", backend=None):
-    if backend is None:
-        return table.sample(u, method=method)
+def _sample(table, u, method="inverse", backend="auto"):
     return table.sample(u, method=method, backend=backend)
 
 
