@@ -253,6 +253,29 @@ def test_other_schema_or_version_is_refused(tmp_path, table):
         load_table(paths["json"])
 
 
+@pytest.mark.parametrize(
+    "label, edit",
+    [
+        ("entry without sha256", lambda d: d["arrays"]["cell_pdf"].pop("sha256")),
+        ("entry without dtype", lambda d: d["arrays"]["cell_pdf"].pop("dtype")),
+        ("table without height", lambda d: d["table"].pop("height")),
+        ("arrays as a list", lambda d: d.update(arrays=[1, 2])),
+        ("convention without up_axis", lambda d: d["convention"].pop("up_axis")),
+        ("options without uniform_mix", lambda d: d["options"].pop("uniform_mix")),
+        ("height as text", lambda d: d["table"].update(height="eight")),
+        ("sampled_integral as text", lambda d: d.update(sampled_integral="x")),
+        ("unknown up axis", lambda d: d["convention"].update(up_axis="w")),
+    ],
+)
+def test_malformed_json_structure_is_refused(tmp_path, table, label, edit):
+    """Valid JSON of the wrong structure (hand-edited or written by another tool) is refused with a
+    TableFormatError that names the JSON file, not a bare KeyError/ValueError."""
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], edit)
+    with pytest.raises(TableFormatError, match=_match(paths["json"])):
+        load_table(paths["json"])
+
+
 def test_missing_json_key_is_refused(tmp_path, table):
     _, paths = _saved(tmp_path, table)
     _rewrite_json(paths["json"], lambda d: d.pop("arrays"))
