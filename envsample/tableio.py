@@ -199,10 +199,20 @@ def load_table(prefix_or_path):
     (naming the file and the problem) for a missing, corrupt, truncated, tampered
     or other-version table.
     """
-    from .table import EnvTable
-
     paths = table_paths(prefix_or_path)
     doc = read_table_json(prefix_or_path)
+    try:
+        return _load_verified(paths, doc)
+    except (KeyError, IndexError, TypeError, AttributeError, ValueError) as exc:
+        # Valid JSON of the wrong structure (hand-edited, or another tool's file).
+        raise TableFormatError(
+            f"{paths['json']}: malformed table metadata ({type(exc).__name__}: {exc}); rebuild the table"
+        ) from None
+
+
+def _load_verified(paths: dict, doc: dict):
+    from .table import EnvTable
+
     npz_path = paths["npz"]
     if not npz_path.exists():
         raise TableFormatError(f"{npz_path}: table array file not found (the JSON names it); rebuild the table")
