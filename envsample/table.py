@@ -309,7 +309,7 @@ class EnvTable:
 
     def cells_of(self, directions) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Row, column (int64) of the table cell containing each direction, and sin(theta)."""
-        d = np.asarray(directions, dtype=np.float64)
+        d = _finite_directions(directions)
         u, v = direction_to_uv(d, up=self.up, rotate_deg=self.rotate_deg)
         h, w = self.table_height, self.table_width
         col = np.minimum((u * w).astype(np.int64), w - 1)
@@ -329,7 +329,7 @@ class EnvTable:
 
     def eval(self, directions) -> np.ndarray:
         """Radiance of the full-resolution map in ``directions`` (N, 3): float32 (N, 3), nearest pixel."""
-        d = np.asarray(directions, dtype=np.float64)
+        d = _finite_directions(directions)
         u, v = direction_to_uv(d, up=self.up, rotate_deg=self.rotate_deg)
         col = np.minimum((u * self.width).astype(np.int64), self.width - 1)
         row = np.minimum((v * self.height).astype(np.int64), self.height - 1)
@@ -352,6 +352,15 @@ class EnvTable:
             "cell_pdf": self.cell_pdf,
             "radiance": self.image,
         }
+
+
+def _finite_directions(directions) -> np.ndarray:
+    d = np.asarray(directions, dtype=np.float64)
+    if d.ndim != 2 or d.shape[1] != 3:
+        raise ValueError(f"directions must have shape (N, 3), got {d.shape}")
+    if not np.isfinite(d).all():
+        raise ValueError("directions contain NaN or Inf; every direction must be a finite vector")
+    return d
 
 
 def _axis_map(frame) -> list[tuple[int, float]]:
@@ -432,6 +441,8 @@ def build_table(
     Returns
     -------
     EnvTable
+        Its ``image`` is the caller's array when that is already float32 (no copy,
+        to keep memory low for large maps): do not modify it afterwards.
     """
     image, source = _as_image(rgb)
     H, W = image.shape[:2]

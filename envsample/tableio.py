@@ -166,6 +166,10 @@ def save_table(table, prefix, *, raw: bool = False) -> list[Path]:
     text = json.dumps(doc, indent=2, sort_keys=False) + "\n"
     atomic_write(paths["json"], lambda f: f.write(text.encode("utf-8")))
     written.append(paths["json"])
+    if not raw and paths["bin"].exists():
+        # A raw file from an earlier save no longer matches this table: remove it so a
+        # loader cannot pair it with the new JSON (which says "raw": null).
+        paths["bin"].unlink()
     return written
 
 

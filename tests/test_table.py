@@ -667,3 +667,25 @@ def test_parse_size():
             parse_size(bad)
     with pytest.raises(ValueError, match="size must be positive"):
         parse_size((0, 8))
+
+
+def test_pdf_and_eval_refuse_non_finite_directions():
+    # A NaN direction has no cell: say so instead of indexing garbage.
+    import envsample
+
+    table = envsample.build_table(np.ones((8, 16, 3), np.float32))
+    bad = np.array([[0.0, np.nan, 1.0]])
+    with pytest.raises(ValueError, match="NaN or Inf"):
+        table.pdf(bad)
+    with pytest.raises(ValueError, match="NaN or Inf"):
+        table.eval(bad)
+
+
+def test_saving_without_raw_removes_a_stale_raw_file(tmp_path):
+    import envsample
+
+    table = envsample.build_table(np.ones((8, 16, 3), np.float32))
+    table.save(tmp_path / "t", raw=True)
+    assert (tmp_path / "t.bin").exists()
+    table.save(tmp_path / "t")
+    assert not (tmp_path / "t.bin").exists()
