@@ -149,7 +149,7 @@ ROW_FIELDS = (
     "pixel_type",
     "failed_checks",
     "warned_checks",
-    "dynamic_range",
+    "dynamic_range_stops",
     "sun_azimuth_deg",
     "sun_elevation_deg",
     "sun_share",
@@ -488,7 +488,7 @@ def _report_figures(report) -> dict:
         v = None if c is None else c.value
         return float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) else None
 
-    fig["dynamic_range"] = value("dynamic-range")
+    fig["dynamic_range_stops"] = value("dynamic-range")
     fig["irradiance_up"] = value("light-level")
     fig["sampling_relative_rmse"] = value("sampling")
     sun = report.get("sun")
@@ -537,7 +537,7 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
         try:
             clean, _ = validate_map(image)
         except MapValidationError as e:
-            row["table_note"] = f"no table: {_one_line(e)}"
+            row["table_note"] = "no table: " + _one_line(e).removeprefix(f"{src}: ")
             return row
         o = task["options"]
         table = build_table(clean, size=o["size"], primaries=o["primaries"], mapping=o["mapping"],
@@ -925,55 +925,70 @@ def run_batch(
         "thumb_width": THUMB_WIDTH,
         "profile": prof.to_dict()["settings"],
     }
-    key = _options_key(key_doc)
     with _locked(out):
-        staging = out / _STAGING
+        return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
+                           runner=_runner(scheduler, n_workers), progress=progress)
+
+
+def _runner(scheduler, workers: int):
+    """A function (tasks, task_fn) -> generator of (index, outcome): Dask, a process pool, or inline."""
+    if scheduler is not None:
+        return lambda tasks, fn: _run_dask(tasks, fn, scheduler)
+    if workers == 0:
+        return _run_inline
+    return lambda tasks, fn: _run_pool(tasks, fn, min(workers, len(tasks))) if tasks else _run_inline(tasks, fn)
+
+
+def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bool, runner, progress) -> BatchResult:
+    """The batch proper, with OUTDIR locked: plan, run, write the summaries; Ctrl-C anywhere -> BatchInterrupted."""
+    version = key_doc["tool_version"]
+    staging = out / _STAGING
+    results: list = [None] * len(paths)
+    duplicates: list = []
+
+    def emit(item):
+        if progress is not None:
+            progress(BatchProgress(done=sum(r is not None for r in results), total=len(results),
+                                   counts=_counts(results, total=len(results)), item=item))
+
+    jobs = None
+    try:
         _remove(staging)  # left by a batch that was killed
         (out / _MAPS).mkdir(exist_ok=True)
-        plan = _plan(paths, out, force=force, key=key, version=__version__)
-        results: list[MapResult | None] = plan.results
-        total = len(results)
-
-        def emit(item):
-            if progress is not None:
-                progress(BatchProgress(done=sum(r is not None for r in results), total=total,
-                                       counts=_counts(results, total=total), item=item))
-
+        plan = _plan(paths, out, force=force, key=key, version=version)
+        results[:] = plan.results
+        duplicates = plan.duplicates
         emit(None)
-        for i, r in enumerate(results):
+        for r in results:
             if r is not None:
                 emit(r)
         tasks = [(i, {"source": os.fspath(paths[i].resolve()), "display": os.fspath(paths[i]),
                       "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(out),
-                      "staging": os.fspath(staging), "options": opts, "verify": bool(verify),
-                      "profile": prof, "key": key, "key_doc": key_doc, "version": __version__})
+                      "staging": os.fspath(staging), "options": key_doc["build"],
+                      "verify": key_doc["verify"] is not None, "profile": profile, "key": key,
+                      "key_doc": key_doc, "version": version})
                  for i in plan.todo]
-        if scheduler is not None:
-            runner = _run_dask(tasks, _TASK, scheduler)
-        elif n_workers == 0 or not tasks:
-            runner = _run_inline(tasks, _TASK)
-        else:
-            runner = _run_pool(tasks, _TASK, min(n_workers, len(tasks)))
-        interrupted = False
-        try:
-            for index, outcome in runner:
-                results[index] = _finish(plan, index, outcome)
-                emit(results[index])
-                for j in plan.aliases.get(index, ()):
-                    results[j] = _alias(results[index], os.fspath(paths[j]), plan.dup_of[j])
-                    emit(results[j])
-        except KeyboardInterrupt:
-            interrupted = True
-        finally:
-            runner.close()
-            _remove(staging)
+        jobs = runner(tasks, _TASK)
+        for index, outcome in jobs:
+            results[index] = _finish(plan, index, outcome)
+            emit(results[index])
+            for j in plan.aliases.get(index, ()):
+                results[j] = _alias(results[index], os.fspath(paths[j]), plan.dup_of[j])
+                emit(results[j])
+        jobs.close()
+        result = BatchResult(outdir=out, maps=results, options=key_doc["build"], duplicates=duplicates)
+        result.summary = _write_summaries(result, key_doc, profile)
+        return result
+    except KeyboardInterrupt:
+        if jobs is not None:
+            jobs.close()  # cancels what is pending and stops the workers
         done = [r for r in results if r is not None]
-        result = BatchResult(outdir=out, maps=done if interrupted else results, options=opts,
-                             interrupted=interrupted, duplicates=plan.duplicates)
-        if interrupted:
-            raise BatchInterrupted(result) from None
-        result.summary = _write_summaries(result, key_doc, prof)
-    return result
+        raise BatchInterrupted(BatchResult(outdir=out, maps=done, options=key_doc["build"], interrupted=True,
+                                           duplicates=duplicates)) from None
+    finally:
+        if jobs is not None:
+            jobs.close()
+        _remove(staging)
 
 
 def _dask_client_check() -> None:
@@ -1153,10 +1168,11 @@ def _index_row(outdir: Path, row: dict, with_verify: bool) -> str:
         extra.append("up to date, not redone")
     if extra:
         src += "<br><small>" + "; ".join(extra) + "</small>"
+    verdict = row["verdict"]
     problems = []
     if row.get("error"):
         problems.append(html.escape(row["error"]))
-    if row.get("failed_checks"):
+    if row.get("failed_checks") and verdict != "error":
         problems.append("fail: " + html.escape(", ".join(row["failed_checks"])))
     if row.get("warned_checks"):
         problems.append("warn: " + html.escape(", ".join(row["warned_checks"])))
@@ -1168,14 +1184,13 @@ def _index_row(outdir: Path, row: dict, with_verify: bool) -> str:
         sun = (f"{_fmt(row['sun_share'] * 100, 2)}% at az {_fmt(row['sun_azimuth_deg'])}&deg;, "
                f"el {_fmt(row['sun_elevation_deg'])}&deg;")
     table = f"{row['table_width']}&times;{row['table_height']}" if row.get("table_width") else ""
-    verdict = row["verdict"]
     cells = [
         f"<td>{_thumb_cell(outdir, row)}</td>",
         f'<td class="src">{src}</td>',
         f'<td><span class="v v-{verdict}">{verdict}</span></td>',
         f'<td class="problems">{"<br>".join(problems)}</td>',
         f'<td class="num">{size}</td>',
-        f'<td class="num">{_fmt(row.get("dynamic_range"))}</td>',
+        f'<td class="num">{_fmt(row.get("dynamic_range_stops"))}</td>',
         f'<td class="num">{sun}</td>',
         f'<td class="num">{_fmt(row.get("irradiance_up"))}</td>',
         f'<td class="num">{_fmt(row.get("sampling_relative_rmse"))}</td>',
@@ -1191,7 +1206,7 @@ def _index_page(result: BatchResult, rows: list[dict]) -> str:
     """One self-contained page (thumbnails as data URIs), our own plain design."""
     c = result.counts
     totals = "".join(f"<li>{k}: <b>{c[k]}</b></li>" for k in ("maps", "pass", "warn", "fail", "error", "skipped"))
-    heads = ["map", "source", "verdict", "problems", "size", "dynamic range", "sun (share, direction)",
+    heads = ["map", "source", "verdict", "problems", "size", "dynamic range (stops)", "sun (share, direction)",
              "irradiance up", "sampling rel. RMSE", "table"]
     with_verify = any(r.get("verify_rmse_table") is not None or r.get("verify_rmse_mis") is not None for r in rows)
     if with_verify:
@@ -1207,7 +1222,7 @@ def _index_page(result: BatchResult, rows: list[dict]) -> str:
         f"<p class=\"meta\">table options: {opts}</p>\n"
         f"<ul class=\"totals\">{totals}</ul>\n"
         f"<table>\n<thead><tr>{head}</tr></thead>\n<tbody>\n{body}\n</tbody>\n</table>\n"
-        "<p class=\"note\">Dynamic range: the QA check's percentile ratio. Irradiance up: on an up-facing surface, "
+        "<p class=\"note\">Dynamic range: stops between the QA check's high and low luminance percentiles. Irradiance up: on an up-facing surface, "
         f"in map units (lux for maps calibrated in cd/m&sup2;); {PHOTOMETRY_NOTE}. "
         "Sampling rel. RMSE: relative RMSE of the recommended estimator in the QA sampling check.</p>\n"
         "</body>\n</html>\n"
