@@ -444,9 +444,12 @@ def test_dask_cluster_gives_the_same_files_as_the_local_run(tmp_path):
     with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
         remote = run_batch([tmp_path / "lib"], tmp_path / "dask", scheduler=client)
+        by_address = run_batch([tmp_path / "lib"], tmp_path / "address", scheduler=cluster.scheduler_address)
     assert [m.to_row() for m in remote.maps] == [m.to_row() for m in local.maps]
-    local_files, dask_files = tree_hashes(tmp_path / "local"), tree_hashes(tmp_path / "dask")
-    assert local_files == dask_files
+    assert [m.to_row() for m in by_address.maps] == [m.to_row() for m in local.maps]
+    local_files = tree_hashes(tmp_path / "local")
+    assert tree_hashes(tmp_path / "dask") == local_files
+    assert tree_hashes(tmp_path / "address") == local_files
     assert any(k.endswith("table.npz") for k in local_files)
 
 
