@@ -531,19 +531,20 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
         return row
     row["verdict"] = report.verdict
     write_png(work / "thumb.png", thumbnail(image.rgb, width=THUMB_WIDTH))
-    notes = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", EnvsampleWarning)
+    # The notes of validation and of the build say what the warnings would say; a batch
+    # records them in the row instead of printing them once per map.
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", EnvsampleWarning)
         try:
-            clean, _ = validate_map(image)
+            clean, notes = validate_map(image)
         except MapValidationError as e:
             row["table_note"] = "no table: " + _one_line(e).removeprefix(f"{src}: ")
             return row
         o = task["options"]
         table = build_table(clean, size=o["size"], primaries=o["primaries"], mapping=o["mapping"],
                             uniform_mix=o["uniform_mix"], up=o["up"], rotate_deg=o["rotate"])
-        table.save(work / "table")
-    notes.extend(str(w.message) for w in caught if issubclass(w.category, EnvsampleWarning))
+    table.save(work / "table")
+    notes = list(notes) + [str(n) for n in table.metadata.get("notes", [])]
     row.update(luminance_integral=float(table.integrals["luminance"]),
                table_width=table.table_width, table_height=table.table_height,
                table_note="; ".join(notes) or None)
@@ -836,7 +837,11 @@ def _locked(outdir: Path):
 
 def _check_workers(workers) -> int:
     if workers is None:
-        return max(1, os.cpu_count() or 1)
+        # The cores this process may run on (affinity, cpusets), else all of them.
+        try:
+            return max(1, len(os.sched_getaffinity(0)))
+        except (AttributeError, OSError):
+            return max(1, os.cpu_count() or 1)
     if isinstance(workers, bool) or not isinstance(workers, (int, np.integer)) or workers < 0:
         raise ValueError(f"workers must be a whole number >= 0 (0 = in this process), got {workers!r}")
     return int(workers)
@@ -866,8 +871,11 @@ def run_batch(
     outdir : str or PathLike
         Output folder (created if missing); layout in the module docstring.
     workers : int, optional
-        Worker processes (spawned); default ``os.cpu_count()``.  0 runs every map
+        Worker processes (spawned); default: the number of cores this process may
+        use (``os.sched_getaffinity``, else ``os.cpu_count()``).  0 runs every map
         in the calling process (no isolation; for debugging and profiling).
+        Scripts that call run_batch with workers must guard their entry point with
+        ``if __name__ == "__main__":`` (spawned workers import the main module).
     verify : bool
         Also run the validation render (:func:`envsample.verify.verify_map`) at
         :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.

@@ -319,6 +319,23 @@ def test_a_crashing_worker_costs_only_its_map(tmp_path, monkeypatch):
     assert rows["uniform.exr"].status == "done" and rows["sun_copy.exr"].status == "done"
 
 
+def test_clamped_pixels_are_noted_and_the_source_keeps_them(tmp_path):
+    from envsample.io import read_map
+
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    rgb = make_sky("overcast", width=WIDTH)
+    rgb[3, 5, 0] = -0.5
+    write_map(lib / "negative.exr", rgb, pixel_type="float")
+    before = fingerprint([lib / "negative.exr"])
+    m = run_batch([lib], tmp_path / "out", workers=0).maps[0]
+    assert m.status == "done" and "clamped 1 negative values" in m.figures["table_note"]
+    table = load_table(tmp_path / "out" / m.folder / "table")
+    assert table.image.min() == 0.0
+    assert fingerprint([lib / "negative.exr"]) == before
+    assert read_map(lib / "negative.exr").rgb[3, 5, 0] == np.float32(-0.5)
+
+
 def test_lock_refuses_a_second_batch_on_the_same_folder(tmp_path):
     fcntl = pytest.importorskip("fcntl")
     make_library(tmp_path / "lib")
