@@ -7,8 +7,11 @@ sun at different azimuths, written as half-float EXR) goes through
 :func:`envsample.batch.run_batch` into a fresh output folder each time (``force``
 is not needed: nothing is up to date), with ``workers=1`` and ``workers=2`` (spawned
 processes) and, for reference, ``workers=0`` (in the calling process).  Reported:
-wall seconds (best of ``--repeats``), maps per second, the speed-up of 2 workers over
-1, and the fixed cost of starting the pool (one batch of a single map).  A pass that
+wall seconds (best of ``--repeats``) with the CPU seconds of that run (this process
+plus its workers, ``getrusage``), maps per second, the speed-up of 2 workers over 1,
+and the fixed cost of starting the pool (one batch of a single map).  The CPU
+figures do not depend on other load on the machine; the wall times do (the load
+average is printed first).  A pass that
 skips every map (the resume path: hashing plus reading the manifests) is timed too.
 
 Timings are ``time.perf_counter`` wall times on this machine; they include
@@ -20,6 +23,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import shutil
 import tempfile
 import time
@@ -38,14 +42,24 @@ def make_folder(folder: Path, n: int, width: int) -> None:
         write_map(folder / f"sky{i:03d}.exr", rgb)
 
 
-def timed_batch(src: Path, work: Path, workers: int, verify: bool) -> float:
+def _cpu() -> float:
+    """CPU seconds (user + system) of this process and of its finished children (the workers)."""
+    total = 0.0
+    for who in (resource.RUSAGE_SELF, resource.RUSAGE_CHILDREN):
+        ru = resource.getrusage(who)
+        total += ru.ru_utime + ru.ru_stime
+    return total
+
+
+def timed_batch(src: Path, work: Path, workers: int, verify: bool) -> tuple[float, float]:
+    """(wall seconds, CPU seconds) of one batch into a fresh folder."""
     out = work / f"out-{workers}-{time.monotonic_ns()}"
-    t0 = time.perf_counter()
+    c0, t0 = _cpu(), time.perf_counter()
     result = run_batch([src], out, workers=workers, verify=verify)
-    seconds = time.perf_counter() - t0
+    seconds, cpu = time.perf_counter() - t0, _cpu() - c0
     assert all(m.status == "done" for m in result.maps), [m.error for m in result.maps if m.error]
     shutil.rmtree(out)
-    return seconds
+    return seconds, cpu
 
 
 def main() -> None:
@@ -64,16 +78,20 @@ def main() -> None:
         make_folder(one, 1, args.width)
         print(f"{args.maps} maps of {args.width}x{args.width // 2}, verify={args.verify}, "
               f"{os.cpu_count()} cores visible")
-        rows = {}
+        print(f"load average before: {' '.join(f'{x:.1f}' for x in os.getloadavg())}")
+        rows, rows_cpu = {}, {}
         for workers in (0, 1, 2):
-            best = min(timed_batch(src, work, workers, args.verify) for _ in range(args.repeats))
-            rows[workers] = best
+            best, cpu = min(timed_batch(src, work, workers, args.verify) for _ in range(args.repeats))
+            rows[workers], rows_cpu[workers] = best, cpu
             label = "in-process (workers=0)" if workers == 0 else f"{workers} worker process{'es' if workers > 1 else ''}"
-            print(f"  {label:<26} {best:7.2f} s   {args.maps / best:6.2f} maps/s")
+            print(f"  {label:<26} {best:7.2f} s   {args.maps / best:6.2f} maps/s   CPU {cpu:6.2f} s")
         print(f"  speed-up, 2 workers over 1: {rows[1] / rows[2]:.2f}x")
-        for workers in (1, 2):
-            start = min(timed_batch(one, work, workers, args.verify) for _ in range(args.repeats))
-            print(f"  a batch of one map with {workers} worker(s): {start:.2f} s (pool start-up plus one map)")
+        # A batch never starts more workers than it has maps: this is one worker's start-up plus one map.
+        start, cpu = min(timed_batch(one, work, 1, args.verify) for _ in range(args.repeats))
+        print(f"  a batch of one map in a worker: {start:.2f} s, CPU {cpu:.2f} s (pool start-up plus one map)")
+        per_map = (rows_cpu[1] - cpu) / max(1, args.maps - 1)
+        print(f"  CPU per map (1-worker batch minus the one-map batch): {per_map:.3f} s; "
+              f"start-up of a second worker: {rows_cpu[2] - rows_cpu[1]:.2f} s CPU")
         out = work / "resume"
         run_batch([src], out, workers=2, verify=args.verify)
         t0 = time.perf_counter()
@@ -81,6 +99,7 @@ def main() -> None:
         skip = time.perf_counter() - t0
         assert again.counts["skipped"] == args.maps
         print(f"  rerun with everything up to date: {skip:.3f} s ({args.maps / skip:.0f} maps/s)")
+        print(f"load average after: {' '.join(f'{x:.1f}' for x in os.getloadavg())}")
 
 
 if __name__ == "__main__":
