@@ -184,7 +184,7 @@ ul.attention li { padding: 6px 10px; margin: 4px 0; border-left: 5px solid var(-
 ul.attention li.r-fail { border-left-color: var(--fail); background: var(--fail-bg); }
 ul.attention li.r-warn { border-left-color: var(--warn); background: var(--warn-bg); }
 ul.attention .remedy { display: block; font-size: 13px; }
-dl.figures { display: grid; grid-template-columns: repeat(auto-fill, minmax(190px, 1fr)); gap: 8px; margin: 10px 0; }
+dl.figures { display: grid; grid-template-columns: repeat(auto-fill, minmax(160px, 1fr)); gap: 8px; margin: 10px 0; }
 dl.figures div { border: 1px solid var(--rule); padding: 6px 10px; background: var(--panel); }
 dl.figures dt { font-size: 12px; color: var(--muted); } dl.figures dd { margin: 0; font-size: 16px; font-weight: 600; }
 .pictures { display: grid; grid-template-columns: repeat(auto-fit, minmax(420px, 1fr)); gap: 16px; align-items: start; }
@@ -260,6 +260,10 @@ def _scaled(x, factor: float):
     return x
 
 
+def _maps(n: int) -> str:
+    return f"{n} map" if n == 1 else f"{n} maps"
+
+
 def _png_size(data: bytes) -> tuple[int, int]:
     """(width, height) from the IHDR chunk (ISO/IEC 15948, 11.2.2), the first chunk of every PNG."""
     if not data.startswith(_PNG_SIGNATURE) or data[12:16] != b"IHDR":
@@ -286,8 +290,7 @@ def _umask() -> int:
 def _write_atomic(path, text: str) -> Path:
     """Write UTF-8 text by a temporary file in the same folder and :func:`os.replace`."""
     path = Path(path)
-    if not path.parent.is_dir():
-        raise EnvsampleError(f"{path}: output folder {path.parent} does not exist; create it first")
+    _check_folder(path)
     fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
         with os.fdopen(fd, "wb") as fh:
@@ -303,6 +306,12 @@ def _write_atomic(path, text: str) -> Path:
     return path
 
 
+def _check_folder(path) -> None:
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise EnvsampleError(f"{path}: output folder {path.parent} does not exist; create it first")
+
+
 def _document(title: str, body: str) -> str:
     from . import __version__
 
@@ -316,9 +325,11 @@ def _document(title: str, body: str) -> str:
     )
 
 
-def _severity_key() -> str:
-    items = "".join(f"<span>{_mark(s)} {w}</span>" for s, w in
-                    (("pass", "nothing to do"), ("warn", "look at it"), ("fail", "fix before use")))
+def _severity_key(*, with_error: bool = False) -> str:
+    meaning = [("pass", "nothing to do"), ("warn", "look at it"), ("fail", "fix before use")]
+    if with_error:
+        meaning.append(("error", "could not be processed"))
+    items = "".join(f"<span>{_mark(s)} {w}</span>" for s, w in meaning)
     return f'<p class="key">{items}</p>'
 
 
@@ -744,9 +755,14 @@ def check_page(reports, path, *, verify_dirs=None, title: str | None = None, ima
         raise ValueError("check_page needs at least one report")
     dirs = _per_map(verify_dirs, len(reps), "verify_dirs")
     imgs = _per_map(images, len(reps), "images")
+    # Refuse bad destinations before the (slow) pictures are drawn.
+    _check_folder(path)
+    for d in dirs:
+        if d is not None and not Path(d).is_dir():
+            raise EnvsampleError(f"{d}: verify folder does not exist; run 'envsample verify' into it or leave it out")
     names = [_map_name(r, k) for k, r in enumerate(reps)]
     if title is None:
-        title = f"envsample check: {names[0]}" if len(reps) == 1 else f"envsample check: {len(reps)} maps"
+        title = f"envsample check: {names[0]}" if len(reps) == 1 else f"envsample check: {_maps(len(reps))}"
 
     verdicts = [r.get("verdict", "error") if r.get("readable", True) else "fail" for r in reps]
     worst = max(verdicts, key=lambda v: _VERDICTS.index(v) if v in _VERDICTS else len(_VERDICTS))
@@ -756,7 +772,7 @@ def check_page(reports, path, *, verify_dirs=None, title: str | None = None, ima
         count_text = checks_text
     else:
         per = ", ".join(f"{sum(v == s for v in verdicts)} {s}" for s in SEVERITIES)
-        count_text = f"{len(reps)} maps: {per} \u00b7 {checks_text}"
+        count_text = f"{_maps(len(reps))}: {per} \u00b7 {checks_text}"
     head = [
         f"<h1>{_esc(title)}</h1>",
         f'<div class="summary v-{worst}"><span class="big">{_mark(worst)}</span>'
@@ -916,13 +932,13 @@ def index_page(rows: Sequence[Mapping], path, *, title: str | None = None) -> Pa
     rows = list(rows)
     path = Path(path)
     base = path.parent
-    title = title or f"envsample batch: {len(rows)} map{'s' if len(rows) != 1 else ''}"
+    title = title or f"envsample batch: {_maps(len(rows))}"
     body_rows = [_index_row(r, k, base) for k, r in enumerate(rows)]
     verdicts = [r.get("verdict") if r.get("verdict") in _VERDICTS else "error" for r in rows]
     worst = max(verdicts, key=_VERDICTS.index) if verdicts else "pass"
     counts = ", ".join(f"{sum(v == s for v in verdicts)} {s}" for s in _VERDICTS)
     skipped = sum(r.get("status") == "skipped" for r in rows)
-    summary = f"{len(rows)} maps: {counts}" + (f" \u00b7 {skipped} up to date, not redone" if skipped else "")
+    summary = f"{_maps(len(rows))}: {counts}" + (f" \u00b7 {skipped} up to date, not redone" if skipped else "")
     heads = ["picture", "map", "verdict", "problems", "size <small>(px)</small>",
              "dynamic range <small>(stops)</small>", "sun elevation <small>(deg)</small>",
              "sun share <small>(% of light)</small>", "firefly index <small>(largest sample / mean E)</small>",
@@ -934,7 +950,7 @@ def index_page(rows: Sequence[Mapping], path, *, title: str | None = None) -> Pa
     body = "\n".join([
         f"<h1>{_esc(title)}</h1>",
         f'<div class="summary v-{worst}"><span class="big">{_mark(worst)}</span><span>{_esc(summary)}</span></div>',
-        _severity_key(),
+        _severity_key(with_error="error" in verdicts),
         f'<p class="caution">{_esc(CAUTION)}</p>',
         table,
         "<p class=\"meta\">Dynamic range: stops between the percentiles of the dynamic-range check. Firefly index: "

@@ -1,0 +1,469 @@
+"""Tests of envsample.html: self-contained check pages and the batch index page.
+
+Sources the tests check against, outside this project:
+- the page is parsed by Python's own ``html.parser`` (a tokenizer following the WHATWG HTML
+  syntax) and every non-void element must be closed in order (void elements: WHATWG HTML
+  Living Standard, section 13.1.2);
+- pictures are ``data:`` URIs (RFC 2397) whose base64 payload (RFC 4648) must decode strictly
+  (``base64.b64decode(validate=True)``) to a PNG (ISO/IEC 15948 signature) that imageio reads,
+  with the pixel size the <img> tag states;
+- escaping is compared with ``html.escape`` of the standard library;
+- the ring around the sun is compared with the sun position the analytic sky was built with
+  (:func:`envsample.skies.make_sky`, its documented convention: azimuth 0 at the image centre,
+  positive to the right, elevation 90 deg at the top row), not with the QA check's estimate.
+
+Maps are small (128 x 64) so the file runs in a few seconds.
+"""
+
+from __future__ import annotations
+
+import base64
+import html as std_html
+import json
+import re
+from html.parser import HTMLParser
+from pathlib import Path
+
+import imageio.v3 as iio
+import numpy as np
+import pytest
+
+from envsample.errors import EnvsampleError
+from envsample.html import CAUTION, INDEX_ROW_KEYS, THUMB_WIDTH, check_page, index_page, report_row
+from envsample.io import write_map
+from envsample.qa import CHECKS, check_map
+from envsample.skies import make_sky
+
+WIDTH = 128
+SUN_AZ, SUN_EL = 60.0, 35.0
+ODD_NAME = "sky<b>&.exr"  # a legal POSIX file name full of markup characters
+SUN_RING_RGB = (255, 60, 170)  # envsample.html._SUN_RING colour
+OTHER_RING_RGB = (0, 215, 255)  # envsample.html._OTHER_RING colour
+
+# Void elements of the HTML syntax (WHATWG HTML Living Standard, 13.1.2): they have no end tag.
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+class PageParser(HTMLParser):
+    """Collects tags, <img> attributes, links and text; records unbalanced end tags."""
+
+    def __init__(self):
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.problems: list[str] = []
+        self.imgs: list[dict] = []
+        self.refs: list[tuple[str, str, str]] = []
+        self.text: list[str] = []
+        self.ids: list[str] = []
+        self.id_cells: list[str] = []
+        self.style = ""
+        self._in_style = False
+        self._in_id_cell = False
+
+    def _open(self, tag, attrs):
+        a = {k: (v or "") for k, v in attrs}
+        if tag == "img":
+            self.imgs.append(a)
+        for key in ("src", "href", "action", "poster", "srcset"):
+            if key in a:
+                self.refs.append((tag, key, a[key]))
+        if "id" in a:
+            self.ids.append(a["id"])
+        self._in_style = tag == "style"
+        self._in_id_cell = tag == "td" and "id" in a.get("class", "").split()
+        return a
+
+    def handle_starttag(self, tag, attrs):
+        self._open(tag, attrs)
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self._open(tag, attrs)
+
+    def handle_endtag(self, tag):
+        if tag in VOID:
+            return
+        if not self.stack or self.stack[-1] != tag:
+            self.problems.append(f"</{tag}> closes {self.stack[-1] if self.stack else 'nothing'}")
+            return
+        self.stack.pop()
+        self._in_style = False
+        if tag == "td":
+            self._in_id_cell = False
+
+    def handle_data(self, data):
+        if self._in_style:
+            self.style += data
+        else:
+            self.text.append(data)
+        if self._in_id_cell:
+            self.id_cells.append(data)
+
+    @property
+    def all_text(self) -> str:
+        return " ".join(" ".join(self.text).split())
+
+
+def parse(path: Path) -> tuple[PageParser, str]:
+    raw = path.read_text(encoding="utf-8")
+    p = PageParser()
+    p.feed(raw)
+    p.close()
+    assert not p.problems, p.problems[:5]
+    assert not p.stack, f"unclosed elements: {p.stack}"
+    return p, raw
+
+
+def decode_png(src: str) -> tuple[bytes, np.ndarray]:
+    prefix = "data:image/png;base64,"
+    assert src.startswith(prefix), src[:40]
+    data = base64.b64decode(src[len(prefix):], validate=True)
+    assert data.startswith(b"\x89PNG\r\n\x1a\n")
+    return data, iio.imread(data, extension=".png")
+
+
+def assert_self_contained(p: PageParser, raw: str) -> None:
+    """No resource from anywhere else: only data: pictures and in-page anchors; no script, no CSS url()."""
+    for tag, key, value in p.refs:
+        assert value.startswith(("data:image/png;base64,", "#")), (tag, key, value[:60])
+    assert "<script" not in raw.lower()
+    assert "url(" not in p.style and "@import" not in p.style
+    assert not re.search(r"""(?:src|href)\s*=\s*["']?\s*(?:https?:|file:|//|/)""", raw, re.I)
+
+
+def assert_images_valid(p: PageParser) -> None:
+    assert p.imgs, "the page has no pictures"
+    for a in p.imgs:
+        _, pic = decode_png(a["src"])
+        assert pic.ndim in (2, 3) and pic.shape[0] > 0 and pic.shape[1] > 0
+        assert (pic.shape[1], pic.shape[0]) == (int(a["width"]), int(a["height"])), a.get("alt")
+        assert a.get("alt"), "every picture has a text alternative"
+
+
+def no_temp_files(folder: Path) -> list[str]:
+    return [p.name for p in folder.iterdir() if p.name.endswith(".tmp") or p.name.startswith(".")]
+
+
+# --------------------------------------------------------------------------- fixtures
+
+
+@pytest.fixture(scope="module")
+def maps(tmp_path_factory):
+    """A clean sun sky and a defective one (upside down, a block of NaN pixels), as EXR files."""
+    folder = tmp_path_factory.mktemp("maps")
+    clean = make_sky("sun", width=WIDTH, elevation_deg=SUN_EL, azimuth_deg=SUN_AZ)
+    bad = np.ascontiguousarray(make_sky("sun", width=WIDTH, elevation_deg=20.0, azimuth_deg=-100.0)[::-1])
+    bad[40:43, 10:20] = np.nan
+    clean_path, bad_path = folder / "clean.exr", folder / ODD_NAME
+    write_map(clean_path, clean, pixel_type="float")
+    write_map(bad_path, bad, pixel_type="float")
+    return {"folder": folder, "clean": clean_path, "bad": bad_path,
+            "r_clean": check_map(clean_path), "r_bad": check_map(bad_path)}
+
+
+@pytest.fixture(scope="module")
+def pages(tmp_path_factory, maps):
+    """The pages of the clean and the defective map, drawn once for the tests that only read them."""
+    folder = tmp_path_factory.mktemp("pages")
+    return {"clean": check_page(maps["r_clean"], folder / "clean.html"),
+            "bad": check_page(maps["r_bad"], folder / "bad.html")}
+
+
+@pytest.fixture(scope="module")
+def verify_dir(tmp_path_factory, maps):
+    from envsample.verify import verify_map
+
+    out = tmp_path_factory.mktemp("verify")
+    verify_map(maps["clean"], out, spp=4, normals=(16, 8), estimators=["cosine", "table", "mis-balance"],
+               sphere=False)
+    return out
+
+
+# --------------------------------------------------------------------------- check_page
+
+
+def test_clean_page_parses_and_every_picture_is_an_embedded_png(pages):
+    p, raw = parse(pages["clean"])
+    assert_self_contained(p, raw)
+    assert_images_valid(p)
+    # Thumbnail and pdf heat map.
+    assert len(p.imgs) == 2
+    thumb = [a for a in p.imgs if a["alt"].startswith("tone-mapped thumbnail")]
+    assert len(thumb) == 1
+    # A 128-px map is enlarged by pixel repetition to the documented thumbnail width, 2:1.
+    assert (int(thumb[0]["width"]), int(thumb[0]["height"])) == (THUMB_WIDTH, THUMB_WIDTH // 2)
+
+
+def test_verdict_counts_caution_and_every_check_id_appear(maps, pages):
+    r = maps["r_clean"]
+    p, _ = parse(pages["clean"])
+    text = p.all_text
+    assert r.verdict.upper() in text
+    c = r.counts()
+    assert f"checks: {c['fail']} failed, {c['warn']} warned, {c['pass']} passed" in text
+    assert CAUTION in text
+    shown = [t.strip() for t in p.id_cells]
+    assert shown == [x.id for x in r.checks]
+    assert set(shown) <= set(CHECKS)
+
+
+def test_defective_map_shows_failures_with_word_and_shape(maps, pages):
+    r = maps["r_bad"]
+    assert r.verdict == "fail" and "nan" in r.ids("fail")
+    p, raw = parse(pages["bad"])
+    assert_self_contained(p, raw)
+    assert_images_valid(p)
+    text = p.all_text
+    for cid in r.ids("fail") + r.ids("warn"):
+        assert cid in text
+    for x in r.checks:
+        assert std_html.escape(x.message) in raw
+        if x.remedy:
+            assert std_html.escape(x.remedy) in raw
+    # Every severity mark holds a shape element and the severity word (readable without colour).
+    marks = re.findall(r'<span class="sev s-(\w+)"><span class="shape" aria-hidden="true"></span>(\w+)</span>', raw)
+    assert len(marks) == raw.count('class="sev ')
+    assert marks and all(word == sev.upper() for sev, word in marks)
+    assert {"fail", "warn", "pass"} <= {sev for sev, _ in marks}
+    # The three shapes differ in form, not only in colour.
+    css = p.style
+    assert "border-radius: 50%" in css.split(".s-pass .shape")[1].split("}")[0]
+    assert "clip-path: polygon" in css.split(".s-warn .shape")[1].split("}")[0]
+    assert "background" in css.split(".s-fail .shape")[1].split("}")[0]
+
+
+def test_file_name_with_markup_is_shown_literally(pages):
+    p, raw = parse(pages["bad"])
+    assert ODD_NAME in p.all_text
+    assert "sky<b>" not in raw
+    assert std_html.escape(ODD_NAME) in raw
+    # No <b> element was injected: every <b> in the page is one of our own labels.
+    assert "&.exr" not in raw.replace("&amp;.exr", "")
+
+
+def test_measured_values_thresholds_and_units_are_shown(maps, pages):
+    r = maps["r_clean"]
+    _, raw = parse(pages["clean"])
+    row = raw.split('<td class="id">resolution</td>')[1].split("</tr>")[0]
+    cells = re.findall(r"<td[^>]*>(.*?)</td>", row)
+    assert cells[0] == str(r["resolution"].value) and cells[1] == str(r["resolution"].threshold)
+    assert cells[2] == "px wide"
+    # Fractions are shown in per cent with the unit saying so.
+    row = raw.split('<td class="id">orientation</td>')[1].split("</tr>")[0]
+    cells = re.findall(r"<td[^>]*>(.*?)</td>", row)
+    assert float(cells[0]) == pytest.approx(100.0 * r["orientation"].value, rel=1e-3)
+    assert cells[2].startswith("% of the light")
+    assert "<th>measured</th><th>threshold</th><th>unit</th>" in raw
+
+
+def test_sun_ring_sits_on_the_sun_of_the_analytic_sky(pages):
+    p, _ = parse(pages["clean"])
+    thumb = next(a for a in p.imgs if a["alt"].startswith("tone-mapped thumbnail"))
+    _, pic = decode_png(thumb["src"])
+    ring = np.all(pic[..., :3] == SUN_RING_RGB, axis=-1)
+    assert ring.sum() > 20, "no sun ring drawn"
+    rows, cols = np.nonzero(ring)
+    h, w = pic.shape[:2]
+    # Where make_sky put the sun: u = 1/2 + az/360, v = (90 - el)/180 (envsample.skies convention).
+    x_sun, y_sun = (0.5 + SUN_AZ / 360.0) * w, (90.0 - SUN_EL) / 180.0 * h
+    pixel = w / WIDTH  # one map pixel in thumbnail pixels
+    assert abs((cols + 0.5).mean() - x_sun) < pixel
+    assert abs((rows + 0.5).mean() - y_sun) < pixel
+    # The ring is around the sun, not on it: the centre pixel is not ring-coloured.
+    assert not ring[int(y_sun), int(x_sun)]
+
+
+def test_diffuse_emitters_get_the_other_ring(tmp_path):
+    """Studio lights are bright but not sun-like (about 31 deg across): thin cyan rings, none magenta."""
+    img = make_sky("studio", width=WIDTH)
+    r = check_map(img)
+    emitters = r["sun"].details["emitters"]
+    assert emitters and not any(e["sun_like"] for e in emitters)
+    p, _ = parse(check_page(r, tmp_path / "studio.html", images=[img]))
+    _, pic = decode_png(next(a for a in p.imgs if a["alt"].startswith("tone-mapped"))["src"])
+    assert np.all(pic[..., :3] == OTHER_RING_RGB, axis=-1).sum() > 20
+    assert not np.all(pic[..., :3] == SUN_RING_RGB, axis=-1).any()
+
+
+def test_batch_page_with_verify_pictures_embedded_byte_for_byte(maps, verify_dir, tmp_path):
+    reports = [maps["r_clean"], maps["r_bad"]]
+    page = check_page(reports, tmp_path / "batch.html", verify_dirs=[verify_dir, None])
+    p, raw = parse(page)
+    assert_self_contained(p, raw)
+    assert_images_valid(p)
+    assert {"map-1", "map-2"} <= set(p.ids)
+    assert [v for t, k, v in p.refs if t == "a"] == ["#map-1", "#map-2"]
+    text = p.all_text
+    counts = [x.verdict for x in reports]
+    assert f"2 maps: {counts.count('pass')} pass, {counts.count('warn')} warn, {counts.count('fail')} fail" in text
+    assert raw.index('<div class="summary v-fail">') < raw.index('id="map-1"')  # the worst verdict leads
+    metrics = json.loads((verify_dir / "metrics.json").read_text())
+    embedded = {decode_png(a["src"])[0] for a in p.imgs}
+    for name in metrics["files"]["errors"] + [metrics["files"]["convergence"]]:
+        assert (verify_dir / name).read_bytes() in embedded, name
+    for est, entry in metrics["estimators"].items():
+        assert est in text
+    # One thumbnail and one pdf map per map, plus the verify pictures of the first.
+    assert len(p.imgs) == 4 + len(metrics["files"]["errors"]) + 1
+    assert set(CHECKS) - {s["id"] for r in reports for s in r.skipped} <= set(t.strip() for t in p.id_cells)
+
+
+def test_summary_counts_maps_by_verdict(maps, tmp_path):
+    clean_again = check_map(make_sky("sun", width=WIDTH), checks=["aspect", "nan"])  # passes
+    p, _ = parse(check_page([clean_again, maps["r_bad"]], tmp_path / "two.html", images=[None, maps["bad"]]))
+    assert "2 maps: 1 pass, 0 warn, 1 fail" in p.all_text
+
+
+def test_page_is_written_atomically(maps, tmp_path, monkeypatch):
+    out = tmp_path / "page.html"
+    check_page(maps["r_clean"], out)
+    assert no_temp_files(tmp_path) == []
+    before = out.read_bytes()
+
+    import os
+
+    real_replace = os.replace
+    attempts = []
+
+    def fail_on_the_page(src, dst, *args, **kwargs):
+        # Only the final rename of the page fails (pictures drawn on the way are renamed too).
+        if Path(dst) == out:
+            attempts.append(Path(src))
+            raise OSError("disk full (simulated)")
+        return real_replace(src, dst, *args, **kwargs)
+
+    monkeypatch.setattr(os, "replace", fail_on_the_page)
+    with pytest.raises(OSError, match="simulated"):
+        check_page(maps["r_bad"], out)
+    assert attempts and attempts[0].parent == tmp_path, "the page goes through a temporary file beside it"
+    assert out.read_bytes() == before, "a failed write must leave the old page untouched"
+    assert no_temp_files(tmp_path) == []
+
+
+def test_missing_output_folder_and_verify_folder_are_one_line_errors(maps, tmp_path):
+    with pytest.raises(EnvsampleError, match="does not exist; create it first"):
+        check_page(maps["r_clean"], tmp_path / "nowhere" / "page.html")
+    with pytest.raises(EnvsampleError, match=r"verify folder does not exist"):
+        check_page(maps["r_clean"], tmp_path / "page.html", verify_dirs=tmp_path / "no-verify")
+    with pytest.raises(ValueError, match="one per report"):
+        check_page([maps["r_clean"], maps["r_bad"]], tmp_path / "page.html", verify_dirs=[None])
+    with pytest.raises(TypeError, match=r"reports\[0\]"):
+        check_page(["not a report"], tmp_path / "page.html")
+    assert no_temp_files(tmp_path) == []
+
+
+def test_report_dict_form_gives_the_same_page(maps, pages, tmp_path):
+    """A check.json read back (Report.to_dict) renders exactly like the Report itself."""
+    b = check_page(json.loads(json.dumps(maps["r_bad"].to_dict())), tmp_path / "b.html")
+    assert pages["bad"].read_bytes() == b.read_bytes()
+
+
+@pytest.mark.parametrize("case", ["in-memory", "unreadable", "black", "square", "ldr"])
+def test_awkward_inputs_still_give_a_valid_page(case, tmp_path):
+    images = None
+    if case == "in-memory":
+        report = check_map(make_sky("sun", width=64))
+        expect_pictures = False
+    elif case == "unreadable":
+        bad = tmp_path / "broken.exr"
+        bad.write_bytes(b"not an exr file")
+        report = check_map(bad)
+        expect_pictures = False
+    elif case == "black":
+        img = np.zeros((32, 64, 3), np.float32)
+        report, images, expect_pictures = check_map(img), [img], True
+    elif case == "square":
+        img = make_sky("sun", width=64, height=64)
+        report, images, expect_pictures = check_map(img), [img], True
+    else:
+        png = tmp_path / "ldr.png"
+        iio.imwrite(png, (np.linspace(0, 255, 64 * 32 * 3) % 256).astype(np.uint8).reshape(32, 64, 3))
+        report, expect_pictures = check_map(png), True
+    p, raw = parse(check_page(report, tmp_path / "page.html", images=images))
+    assert_self_contained(p, raw)
+    if expect_pictures:
+        assert_images_valid(p)
+    else:
+        assert not p.imgs
+    for x in report.checks:
+        assert x.id in [t.strip() for t in p.id_cells]
+    assert report.verdict.upper() in p.all_text
+
+
+# --------------------------------------------------------------------------- index_page
+
+
+def test_report_row_takes_the_key_figures_from_the_checks(maps):
+    r = maps["r_clean"]
+    row = report_row(r, page="maps/clean/check.html")
+    assert set(row) <= set(INDEX_ROW_KEYS)
+    assert row["name"] == "clean.exr" and row["verdict"] == r.verdict
+    assert (row["width"], row["height"]) == (WIDTH, WIDTH // 2)
+    assert row["sampling_relative_rmse"] == r["sampling"].value
+    d = r["sampling"].details
+    assert row["firefly_index"] == d["estimators"][d["estimator"]]["firefly_index"]
+    assert row["irradiance_up"] == r["light-level"].value
+    sun = [e for e in r["sun"].details["emitters"] if e["sun_like"]][0]
+    assert (row["sun_azimuth_deg"], row["sun_elevation_deg"], row["sun_share"]) == (
+        sun["azimuth_deg"], sun["elevation_deg"], sun["share"])
+    # The QA estimate lies within a pixel (2.8 deg) of where the sky put the sun.
+    assert abs(row["sun_azimuth_deg"] - SUN_AZ) < 360.0 / WIDTH
+    assert abs(row["sun_elevation_deg"] - SUN_EL) < 180.0 / (WIDTH // 2)
+    assert row["failed_checks"] == r.ids("fail") and row["warned_checks"] == r.ids("warn")
+
+
+def test_index_page_rows_thumbnails_links_and_escaping(maps, tmp_path):
+    from envsample.pictures import thumbnail, write_png
+
+    (tmp_path / "maps" / "a").mkdir(parents=True)
+    thumb_file = write_png(tmp_path / "maps" / "a" / "thumb.png", thumbnail(make_sky("sun", width=WIDTH), width=64))
+    rows = [
+        report_row(maps["r_clean"], thumbnail="maps/a/thumb.png", page="maps/a/page.html",
+                   links={"report (JSON)": "maps/a/check.json", "odd & <name>": "maps/a/x y#1.json"}),
+        report_row(maps["r_bad"], thumbnail=np.full((16, 32, 3), 90, np.uint8)),
+        {"source": "lib/broken.exr", "verdict": "error", "error": "lib/broken.exr: truncated <file>"},
+    ]
+    page = index_page(rows, tmp_path / "index.html")
+    assert no_temp_files(tmp_path) == []
+    p, raw = parse(page)
+    assert_images_valid(p)
+    assert len(p.imgs) == 2
+    assert decode_png(p.imgs[0]["src"])[0] == thumb_file.read_bytes()
+    hrefs = [v for t, k, v in p.refs if t == "a"]
+    assert hrefs == ["maps/a/page.html", "maps/a/check.json", "maps/a/x%20y#1.json"]
+    for h in hrefs:
+        assert not re.match(r"^(?:[a-z][a-z0-9+.-]*:|/)", h, re.I)
+    text = p.all_text
+    assert ODD_NAME in text and "broken.exr" in text and "truncated <file>" in text
+    assert "odd & <name>" in text and "sky<b>" not in raw
+    assert "3 maps: 0 pass, 1 warn, 1 fail, 1 error" in text
+    assert CAUTION in text
+    for head in ("size (px)", "dynamic range (stops)", "sun elevation (deg)", "sun share (% of light)"):
+        assert head in text
+    assert "ERROR" in text and "FAIL" in text and "WARN" in text
+
+
+def test_index_page_refuses_absolute_links_and_nameless_rows(tmp_path):
+    for bad in ("/etc/passwd", "file:///tmp/x.html", "http://example.invalid/x", "C:\\maps\\x.html"):
+        with pytest.raises(ValueError, match="relative"):
+            index_page([{"name": "x", "page": bad}], tmp_path / "index.html")
+    with pytest.raises(ValueError, match="neither 'name' nor 'source'"):
+        index_page([{"verdict": "pass"}], tmp_path / "index.html")
+    assert not (tmp_path / "index.html").exists()
+    assert no_temp_files(tmp_path) == []
+
+
+def test_index_page_of_batch_rows_as_they_are(tmp_path):
+    """Rows shaped like envsample.batch summary rows (ROW_FIELDS) render without extra keys."""
+    from envsample.batch import ROW_FIELDS
+
+    row = {k: None for k in ROW_FIELDS}
+    row.update(source="lib/sky.exr", status="skipped", verdict="pass", width=64, height=32, format="exr",
+               dynamic_range=9.5, sun_elevation_deg=12.0, sun_azimuth_deg=-30.0, sun_share=0.25,
+               failed_checks=[], warned_checks=[])
+    p, raw = parse(index_page([row], tmp_path / "index.html", title="Library <2>"))
+    text = p.all_text
+    assert "Library <2>" in text and "<2>" not in raw
+    assert "sky.exr" in text and "up to date" in text and "9.5" in text and "25" in text
+    assert "1 map: 1 pass, 0 warn, 0 fail, 0 error" in text
