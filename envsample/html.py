@@ -243,7 +243,8 @@ def _num(x, digits: int = 4) -> str:
         if x == 0.0:
             return "0"
         if 1e-3 <= abs(x) < 1e6:
-            return f"{x:.{digits}g}"
+            # Large values keep their integer digits ("2104", not "2.1e+03").
+            return f"{x:.0f}" if abs(x) >= 10 ** digits else f"{x:.{digits}g}"
         return f"{x:.{max(1, digits - 1)}e}"
     if isinstance(x, (list, tuple)):
         return ", ".join(_num(v, digits) for v in x)
@@ -469,15 +470,23 @@ def _pdf_png(rgb: np.ndarray, primaries: str) -> tuple[bytes, str]:
                              cmap=_PDF_CMAP)
         data = out.read_bytes()
     uniform = 1.0 / (4.0 * math.pi)
-    caption = (f"Where the table sends samples: density per steradian (proportional to luminance). "
-               f"Uniform sampling of the sphere would be 1/4\u03c0 = {uniform:.4f} /sr everywhere; "
-               f"this map peaks at {_num(hi, 3)} /sr ({_num(hi / uniform, 3)}\u00d7 uniform). ")
+    caption = ("Where the table sends samples: density per steradian (proportional to luminance). "
+               f"Uniform sampling of the sphere would be 1/4\u03c0 = {uniform:.4f} /sr everywhere")
+    if not np.any(rgb > 0):
+        caption += "; the map is black, so the table samples the sphere uniformly. "
+    elif hi <= 1.01 * float(np.median(positive)):
+        caption += f"; this map is nearly flat (peak {_num(hi, 3)} /sr). "
+    else:
+        # Cell centres in the image frame of envsample.sphere (rotation 0), as the checks report them.
+        i, j = np.unravel_index(int(np.argmax(pdf)), pdf.shape)
+        az = (j + 0.5) * 360.0 / pdf.shape[1] - 180.0
+        el = 90.0 - (i + 0.5) * 180.0 / pdf.shape[0]
+        caption += (f"; this map peaks at {_num(hi, 3)} /sr ({_num(hi / uniform, 3)}\u00d7 uniform) in the cell at "
+                    f"azimuth {_num(az, 4)}\u00b0, elevation {_num(el, 3)}\u00b0. ")
     if positive.size < pdf.size:
         caption += "Grey cells have zero pdf (never sampled). "
     if positive.size and float(positive.min()) < lo:
         caption += f"The colour scale is cut {_MAX_DECADES:g} decades below the peak. "
-    if not positive.size:
-        caption += "The map is black: the table samples the sphere uniformly. "
     return data, caption
 
 

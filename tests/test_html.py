@@ -274,6 +274,20 @@ def test_sun_ring_sits_on_the_sun_of_the_analytic_sky(pages):
     assert not ring[int(y_sun), int(x_sun)]
 
 
+def test_pdf_map_peaks_at_the_sun_and_is_flat_for_a_uniform_sky(pages, tmp_path):
+    """The caption's brightest cell is where make_sky put the sun (within one cell of the
+    reduced table); a uniform sky has the closed-form pdf 1/(4 pi) per steradian everywhere."""
+    p, _ = parse(pages["clean"])
+    m = re.search(r"in the cell at azimuth (-?[\d.]+)\u00b0, elevation (-?[\d.]+)\u00b0", p.all_text)
+    assert m, "the pdf caption names the brightest cell"
+    cell_az, cell_el = 360.0 / WIDTH, 180.0 / (WIDTH // 2)  # the map is smaller than PDF_TABLE_SIZE
+    assert abs(float(m.group(1)) - SUN_AZ) <= cell_az and abs(float(m.group(2)) - SUN_EL) <= cell_el
+    img = make_sky("uniform", width=64)
+    p, _ = parse(check_page(check_map(img, checks=["aspect"]), tmp_path / "u.html", images=[img]))
+    assert f"1/4\u03c0 = {1 / (4 * np.pi):.4f} /sr" in p.all_text
+    assert f"nearly flat (peak {1 / (4 * np.pi):.3g} /sr)" in p.all_text
+
+
 def test_diffuse_emitters_get_the_other_ring(tmp_path):
     """Studio lights are bright but not sun-like (about 31 deg across): thin cyan rings, none magenta."""
     img = make_sky("studio", width=WIDTH)
