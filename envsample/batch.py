@@ -178,7 +178,6 @@ VERIFY_SETTINGS = {
 _LAYOUT_VERSION = 1
 _STAGING = ".staging"
 _MAPS = "maps"
-_HASH_CHUNK = 1 << 20
 _NAME_CHARS = re.compile(r"[^A-Za-z0-9._-]+")
 _GLOB_CHARS = re.compile(r"[*?\[]")
 
@@ -419,22 +418,15 @@ def _map_name(path: Path, sha256: str, width: int = 8) -> str:
     return f"{stem[:80]}-{sha256[:width]}"
 
 
-def _file_sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for chunk in iter(lambda: fh.read(_HASH_CHUNK), b""):
-            h.update(chunk)
-    return h.hexdigest()
-
-
 def _hash_all(paths: list[Path]) -> list[tuple[str | None, str | None]]:
     """(sha256, error) per path; hashing releases the GIL, so threads overlap the reads."""
+    from .io import _sha256
 
     def one(p: Path):
         try:
-            return _file_sha256(p), None
-        except OSError as e:
-            return None, f"{p}: cannot be read ({e.strerror or e}); check the file's permissions"
+            return _sha256(p), None
+        except MapReadError as e:
+            return None, str(e)
 
     if not paths:
         return []
@@ -500,10 +492,12 @@ def _report_figures(report) -> dict:
 
 
 def _files_of(folder: Path) -> dict:
+    from .io import _sha256
+
     files = {}
     for p in sorted(folder.rglob("*")):
         if p.is_file():
-            files[p.relative_to(folder).as_posix()] = {"size": p.stat().st_size, "sha256": _file_sha256(p)}
+            files[p.relative_to(folder).as_posix()] = {"size": p.stat().st_size, "sha256": _sha256(p)}
     return files
 
 
@@ -759,13 +753,19 @@ def _run_pool(tasks, task_fn, workers: int):
             executor.shutdown(wait=True, cancel_futures=True)
 
 
-def _dask_client(scheduler):
+def _import_distributed():
+    """dask.distributed, imported only when a scheduler is given (an optional extra)."""
     try:
         import distributed
     except ImportError as e:
         raise EnvsampleError(
             "scheduler: dask.distributed is not installed; install it with 'pip install envsample[dask]'"
         ) from e
+    return distributed
+
+
+def _dask_client(scheduler):
+    distributed = _import_distributed()
     if isinstance(scheduler, str):
         try:
             return distributed, distributed.Client(scheduler, timeout="30s"), True
@@ -922,7 +922,7 @@ def run_batch(
         shown = ", ".join(os.fspath(s) for s in ([sources] if isinstance(sources, (str, os.PathLike)) else sources))
         raise EnvsampleError(f"no map files found in {shown or 'the sources given'}; pass .exr/.hdr files, folders or globs")
     if scheduler is not None:
-        _dask_client_check()
+        _import_distributed()
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
     key_doc = {
@@ -997,15 +997,6 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
         if jobs is not None:
             jobs.close()
         _remove(staging)
-
-
-def _dask_client_check() -> None:
-    try:
-        import distributed  # noqa: F401
-    except ImportError as e:
-        raise EnvsampleError(
-            "scheduler: dask.distributed is not installed; install it with 'pip install envsample[dask]'"
-        ) from e
 
 
 @dataclass
