@@ -176,7 +176,7 @@ code, .id { font-family: "DejaVu Sans Mono", "Liberation Mono", Consolas, monosp
 .s-error .shape { border: 0.16em solid var(--error); transform: rotate(45deg) scale(0.8); }
 .s-pass { color: var(--pass); } .s-warn { color: var(--warn); } .s-fail { color: var(--fail); } .s-error { color: var(--error); }
 .key { font-size: 13px; color: var(--muted); display: flex; gap: 18px; flex-wrap: wrap; align-items: center; margin: 6px 0; }
-nav.maps { margin: 10px 0 4px; } nav.maps ol { margin: 4px 0; padding-left: 22px; columns: 2; }
+nav.maps { margin: 10px 0 4px; } nav.maps ol { margin: 4px 0; padding-left: 22px; } nav.maps ol.cols { columns: 2; }
 nav.maps a { color: var(--ink); }
 section.map { border-top: 3px solid var(--ink); margin-top: 28px; padding-top: 14px; }
 ul.attention { list-style: none; margin: 8px 0; padding: 0; }
@@ -792,7 +792,8 @@ def check_page(reports, path, *, verify_dirs=None, title: str | None = None, ima
     if len(reps) > 1:
         links = "".join(f'<li><a href="#map-{k + 1}">{_esc(n)}</a> {_mark(v)}</li>'
                         for k, (n, v) in enumerate(zip(names, verdicts)))
-        head.append(f'<nav class="maps"><b>Maps</b><ol>{links}</ol></nav>')
+        cols = ' class="cols"' if len(reps) > 8 else ""  # a long list reads better in two columns
+        head.append(f'<nav class="maps"><b>Maps</b><ol{cols}>{links}</ol></nav>')
     sections = [_map_section(r, k, imgs[k], dirs[k]) for k, r in enumerate(reps)]
     return _write_atomic(path, _document(title, "\n".join(head + sections)))
 

@@ -481,3 +481,18 @@ def test_index_page_of_batch_rows_as_they_are(tmp_path):
     assert "Library <2>" in text and "<2>" not in raw
     assert "sky.exr" in text and "up to date" in text and "9.5" in text and "25" in text
     assert "1 map: 1 pass, 0 warn, 0 fail, 0 error" in text
+
+
+def test_cli_check_writes_the_page(maps, tmp_path):
+    """``envsample check MAP --html FILE`` goes through check_page: a parsed, self-contained page."""
+    from click.testing import CliRunner
+
+    from envsample.cli import main
+
+    out = tmp_path / "cli.html"
+    result = CliRunner().invoke(main, ["check", str(maps["clean"]), "--html", str(out)])
+    assert result.exit_code == 0, result.output
+    p, raw = parse(out)
+    assert_self_contained(p, raw)
+    assert_images_valid(p)
+    assert "clean.exr" in p.all_text and CAUTION in p.all_text
