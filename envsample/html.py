@@ -53,7 +53,6 @@ References
 
 from __future__ import annotations
 
-import datetime as _dt
 import html
 import json
 import math
@@ -68,7 +67,7 @@ from urllib.parse import quote, urlsplit
 import numpy as np
 
 from .errors import EnvsampleError
-from .qa import PHOTOMETRY_NOTE, SEVERITIES, Report
+from .qa import SEVERITIES, Report
 
 __all__ = [
     "THUMB_WIDTH",
