@@ -520,7 +520,7 @@ def _verify_pictures(folder: Path, metrics: dict | None) -> tuple[list, list]:
     other = []
     conv = files.get("convergence") or ("convergence.png" if (folder / "convergence.png").is_file() else None)
     if conv:
-        other.append((str(conv), "convergence: relative RMSE against samples per normal (log-log)"))
+        other.append((str(conv), "relative RMSE against samples per normal (log-log)"))
     sphere = files.get("sphere") or ("sphere.png" if (folder / "sphere.png").is_file() else None)
     if sphere:
         other.append((str(sphere), "reference and recommended estimate shaded on a white sphere"))
