@@ -17,7 +17,8 @@ Output layout
 ::
 
     OUTDIR/
-      summary.json  summary.csv  index.html     one row per source (written last)
+      summary.json  summary.csv  index.html     one row per source (written last; the
+                                                 page by envsample.html.index_page)
       maps/<stem>-<sha8>/                        one folder per map name and content
         manifest.json   written last: source sha256, options key, tool version,
                         the files with sizes and SHA-256, the summary row
@@ -75,7 +76,6 @@ import contextlib
 import csv
 import glob
 import hashlib
-import html
 import io as _io
 import json
 import math
@@ -149,12 +149,13 @@ ROW_FIELDS = (
     "pixel_type",
     "failed_checks",
     "warned_checks",
-    "dynamic_range_stops",
+    "dynamic_range",
     "sun_azimuth_deg",
     "sun_elevation_deg",
     "sun_share",
     "irradiance_up",
     "sampling_relative_rmse",
+    "firefly_index",
     "luminance_integral",
     "table_width",
     "table_height",
@@ -464,31 +465,17 @@ def _dump_json(path: Path, doc) -> None:
 
 
 def _report_figures(report) -> dict:
-    """Key figures of a QA report for the summary row (None where a check did not run)."""
-    img = report.image or {}
-    fig = {
-        "width": img.get("width"),
-        "height": img.get("height"),
-        "format": img.get("format"),
-        "pixel_type": img.get("pixel_type"),
-        "failed_checks": report.ids("fail"),
-        "warned_checks": report.ids("warn"),
-    }
+    """Key figures of a QA report for the summary row (None where a check did not run).
 
-    def value(check_id):
-        c = report.get(check_id)
-        v = None if c is None else c.value
-        return float(v) if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) else None
+    The same figures as a row of the HTML index (:func:`envsample.html.report_row`):
+    dynamic range in stops, the sun-like emitter (degrees, share of the light), the
+    sampling check's relative RMSE and firefly index, the irradiance on an up-facing
+    surface (map units x sr).
+    """
+    from .html import report_row
 
-    fig["dynamic_range_stops"] = value("dynamic-range")
-    fig["irradiance_up"] = value("light-level")
-    fig["sampling_relative_rmse"] = value("sampling")
-    sun = report.get("sun")
-    emitters = [] if sun is None else [e for e in sun.details.get("emitters", []) if e.get("sun_like")]
-    if emitters:
-        e = emitters[0]
-        fig.update(sun_azimuth_deg=e.get("azimuth_deg"), sun_elevation_deg=e.get("elevation_deg"), sun_share=e.get("share"))
-    return fig
+    row = report_row(report)
+    return {k: row.get(k) for k in ROW_FIELDS if k in row and k not in ("source", "verdict", "error")}
 
 
 def _files_of(folder: Path) -> dict:
@@ -521,7 +508,7 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
     row = _report_figures(report)
     row.update(source=task["display"], status="done", folder=f"{_MAPS}/{task['name']}", sha256=task["sha256"])
     if image is None or not report.readable:
-        row.update(verdict="error", error=report.checks[0].message if report.checks else "unreadable", table_note="no table: unreadable")
+        row.update(verdict="error", error=report.checks[0].message if report.checks else "unreadable")
         return row
     row["verdict"] = report.verdict
     write_png(work / "thumb.png", thumbnail(image.rgb, width=THUMB_WIDTH))
@@ -1109,120 +1096,38 @@ def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
     for row in rows:
         writer.writerow([_csv_value(row[k]) for k in ROW_FIELDS])
     _atomic_text(paths["csv"], buf.getvalue())
-    _atomic_text(paths["html"], _index_page(result, rows))
+    from .html import index_page
+
+    index_page(_index_rows(result, rows), paths["html"])
     return paths
 
 
-_PAGE_STYLE = """
-body { font: 14px/1.45 system-ui, -apple-system, "Segoe UI", sans-serif; color: #1f2328; background: #fff; margin: 24px; }
-h1 { font-size: 20px; font-weight: 600; margin: 0 0 6px; }
-p.meta, p.note { color: #59636e; margin: 2px 0; font-size: 13px; }
-ul.totals { list-style: none; padding: 0; margin: 12px 0 16px; display: flex; gap: 8px; flex-wrap: wrap; }
-ul.totals li { border: 1px solid #d1d9e0; border-radius: 4px; padding: 3px 10px; }
-table { border-collapse: collapse; width: 100%; }
-th, td { border-bottom: 1px solid #e3e7eb; padding: 6px 8px; text-align: left; vertical-align: middle; }
-th { font-weight: 600; background: #f4f6f8; position: sticky; top: 0; }
-td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
-td.src { max-width: 22em; overflow-wrap: anywhere; }
-td.src small { color: #59636e; }
-img.thumb { display: block; width: 128px; height: 64px; object-fit: fill; background: #222; }
-span.nothumb { display: inline-block; width: 128px; height: 64px; line-height: 64px; text-align: center; background: #eef0f2; color: #59636e; font-size: 12px; }
-span.v { display: inline-block; min-width: 3.6em; padding: 1px 6px; border-radius: 3px; font-weight: 600; text-align: center; }
-span.v-pass { background: #dcefe1; color: #1a5a2a; }
-span.v-warn { background: #f7ecd0; color: #6b4b00; }
-span.v-fail { background: #f6d9d9; color: #8b1a1a; }
-span.v-error { background: #e4e4e4; color: #2b2b2b; }
-.problems { font-size: 12px; }
-"""
-
-
-def _fmt(v, digits: int = 3) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, float):
-        return f"{v:.{digits}g}"
-    return html.escape(str(v))
-
-
-def _thumb_cell(outdir: Path, row: dict) -> str:
-    from .pictures import png_data_uri
-
-    if row.get("folder"):
-        thumb = outdir / row["folder"] / "thumb.png"
-        if thumb.is_file():
-            with contextlib.suppress(ValueError):
-                return f'<img class="thumb" alt="thumbnail of {html.escape(row["source"])}" src="{png_data_uri(thumb)}">'
-    return '<span class="nothumb">no picture</span>'
-
-
-def _index_row(outdir: Path, row: dict, with_verify: bool) -> str:
-    src = html.escape(row["source"])
-    if row.get("folder"):
-        link = html.escape(f"{row['folder']}/check.json")
-        src = f'<a href="{link}">{src}</a>'
-    extra = []
-    if row.get("duplicate_of"):
-        extra.append(f"same bytes as {html.escape(row['duplicate_of'])}")
-    if row["status"] == "skipped":
-        extra.append("up to date, not redone")
-    if extra:
-        src += "<br><small>" + "; ".join(extra) + "</small>"
-    verdict = row["verdict"]
-    problems = []
-    if row.get("error"):
-        problems.append(html.escape(row["error"]))
-    if row.get("failed_checks") and verdict != "error":
-        problems.append("fail: " + html.escape(", ".join(row["failed_checks"])))
-    if row.get("warned_checks"):
-        problems.append("warn: " + html.escape(", ".join(row["warned_checks"])))
-    if row.get("table_note"):
-        problems.append(html.escape(row["table_note"]))
-    size = f"{row['width']}&times;{row['height']} {_fmt(row.get('format'))}" if row.get("width") else ""
-    sun = ""
-    if row.get("sun_share") is not None:
-        sun = (f"{_fmt(row['sun_share'] * 100, 2)}% at az {_fmt(row['sun_azimuth_deg'])}&deg;, "
-               f"el {_fmt(row['sun_elevation_deg'])}&deg;")
-    table = f"{row['table_width']}&times;{row['table_height']}" if row.get("table_width") else ""
-    cells = [
-        f"<td>{_thumb_cell(outdir, row)}</td>",
-        f'<td class="src">{src}</td>',
-        f'<td><span class="v v-{verdict}">{verdict}</span></td>',
-        f'<td class="problems">{"<br>".join(problems)}</td>',
-        f'<td class="num">{size}</td>',
-        f'<td class="num">{_fmt(row.get("dynamic_range_stops"))}</td>',
-        f'<td class="num">{sun}</td>',
-        f'<td class="num">{_fmt(row.get("irradiance_up"))}</td>',
-        f'<td class="num">{_fmt(row.get("sampling_relative_rmse"))}</td>',
-        f'<td class="num">{table}</td>',
-    ]
-    if with_verify:
-        cells.append(f'<td class="num">{_fmt(row.get("verify_rmse_table"))}</td>')
-        cells.append(f'<td class="num">{_fmt(row.get("verify_rmse_mis"))}</td>')
-    return "<tr>" + "".join(cells) + "</tr>"
-
-
-def _index_page(result: BatchResult, rows: list[dict]) -> str:
-    """One self-contained page (thumbnails as data URIs), our own plain design."""
-    c = result.counts
-    totals = "".join(f"<li>{k}: <b>{c[k]}</b></li>" for k in ("maps", "pass", "warn", "fail", "error", "skipped"))
-    heads = ["map", "source", "verdict", "problems", "size", "dynamic range (stops)", "sun (share, direction)",
-             "irradiance up", "sampling rel. RMSE", "table"]
-    with_verify = any(r.get("verify_rmse_table") is not None or r.get("verify_rmse_mis") is not None for r in rows)
-    if with_verify:
-        heads += ["verify rel. RMSE table", "verify rel. RMSE MIS"]
-    head = "".join(f"<th>{h}</th>" for h in heads)
-    body = "\n".join(_index_row(result.outdir, r, with_verify) for r in rows)
-    o = result.options
-    opts = html.escape(", ".join(f"{k}={v}" for k, v in o.items()))
-    return (
-        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
-        f"<title>envsample batch: {c['maps']} maps</title>\n<style>{_PAGE_STYLE}</style>\n</head>\n<body>\n"
-        f"<h1>Batch of {c['maps']} maps</h1>\n"
-        f"<p class=\"meta\">table options: {opts}</p>\n"
-        f"<ul class=\"totals\">{totals}</ul>\n"
-        f"<table>\n<thead><tr>{head}</tr></thead>\n<tbody>\n{body}\n</tbody>\n</table>\n"
-        "<p class=\"note\">Dynamic range: stops between the QA check's high and low luminance percentiles. Irradiance up: on an up-facing surface, "
-        f"in map units (lux for maps calibrated in cd/m&sup2;); {PHOTOMETRY_NOTE}. "
-        "Sampling rel. RMSE: relative RMSE of the recommended estimator in the QA sampling check.</p>\n"
-        "</body>\n</html>\n"
-    )
+def _index_rows(result: BatchResult, rows: list[dict]) -> list[dict]:
+    """Rows for :func:`envsample.html.index_page`: the summary row plus picture, links and a note."""
+    out = []
+    for row in rows:
+        r = dict(row)
+        notes = []
+        folder = row.get("folder")
+        if folder:
+            r["links"] = {"report": f"{folder}/check.json"}
+            if (result.outdir / folder / "table.json").is_file():
+                r["links"]["table"] = f"{folder}/table.json"
+            if (result.outdir / folder / "verify" / "metrics.json").is_file():
+                r["links"]["verify"] = f"{folder}/verify/metrics.json"
+            if (result.outdir / folder / "thumb.png").is_file():
+                r["thumbnail"] = f"{folder}/thumb.png"
+        if row.get("table_width"):
+            notes.append(f"table {row['table_width']}\u00d7{row['table_height']}")
+        if row.get("table_note"):
+            notes.append(row["table_note"])
+        if row.get("verify_rmse_table") is not None or row.get("verify_rmse_mis") is not None:
+            figures = ", ".join(f"{label} {row[key]:.3g}" for label, key in (("table", "verify_rmse_table"),
+                                                                            ("MIS", "verify_rmse_mis"))
+                                if row.get(key) is not None)
+            notes.append(f"verify relative RMSE: {figures}")
+        if row.get("duplicate_of"):
+            notes.append(f"same bytes as {row['duplicate_of']}")
+        r["note"] = "; ".join(notes) or None
+        out.append(r)
+    return out
