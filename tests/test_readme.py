@@ -6,7 +6,7 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO_COMMAND = "pip install . && envsample demo"
-TEST_COMMAND = 'pip install ".[test]" && python -m pytest -q'
+TEST_COMMAND = 'pip install ".[test]" && pytest -q'
 
 
 def _readme() -> str:
