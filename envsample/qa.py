@@ -1494,12 +1494,16 @@ def format_report(report, *, color: bool = False) -> str:
             head.append(f"sha256 {r.source.sha256[:12]}")
         lines = ["  ".join(head)]
         idw = max([len(x.id) for x in r.checks] + [5])
-        lines.append(f"  {'':4}  {'check':<{idw}}  {'value':>10}  {'limit':>10}  message")
-        for x in r.checks:
+        vals = [_cell(x.value, 20) for x in r.checks]
+        lims = [_cell(x.threshold, 20) for x in r.checks]
+        vw = max([len(v) for v in vals] + [5])
+        lw = max([len(v) for v in lims] + [5])
+        lines.append(f"  {'':4}  {'check':<{idw}}  {'value':>{vw}}  {'limit':>{lw}}  message")
+        for x, v, lim in zip(r.checks, vals, lims):
             sev = _paint(f"{x.severity:<4}", x.severity, color)
-            lines.append(f"  {sev}  {x.id:<{idw}}  {_cell(x.value, 10):>10}  {_cell(x.threshold, 10):>10}  {x.message}")
+            lines.append(f"  {sev}  {x.id:<{idw}}  {v:>{vw}}  {lim:>{lw}}  {x.message}")
             if x.severity != "pass" and x.remedy:
-                lines.append(f"  {'':4}  {'':<{idw}}  {'':>10}  {'':>10}  -> {x.remedy}")
+                lines.append(f"  {'':4}  {'':<{idw}}  {'':>{vw}}  {'':>{lw}}  -> {x.remedy}")
         if r.skipped:
             ids = ", ".join(s["id"] for s in r.skipped)
             lines.append(f"  skipped: {ids}")
