@@ -30,6 +30,7 @@ import numpy as np
 
 from . import distribution as dist
 from .errors import TableFormatError
+from .io import _target_mode
 
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "save_table", "load_table", "table_paths", "atomic_write", "read_table_json"]
 
@@ -87,6 +88,8 @@ def atomic_write(path: Path, write) -> None:
             write(f)
             f.flush()
             os.fsync(f.fileno())
+        # mkstemp creates 0600 files; give the result the permissions a plain open() would.
+        os.chmod(tmp, _target_mode(path))
         os.replace(tmp, path)
     except BaseException:
         try:
