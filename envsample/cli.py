@@ -7,6 +7,8 @@ build      :func:`envsample.workflow.build_from_file`
 inspect    :func:`envsample.workflow.map_facts` / :func:`envsample.workflow.table_facts`
 vectors    :func:`envsample.workflow.golden_vectors` + :func:`envsample.workflow.write_vectors`
 sky        :func:`envsample.skies.make_sky` + :func:`envsample.io.write_map`
+check      :func:`envsample.qa.check_map` (+ :func:`envsample.html.check_page` for --html)
+batch      :func:`envsample.batch.run_batch`
 demo       :func:`envsample.demo.run_demo`
 =========  =====================================================
 
@@ -650,6 +652,84 @@ def check(maps, profile_path, json_path, html_path, strict, only):
         check_page(reports, html_path)
         click.echo(f"wrote {html_path}")
     return max(r.exit_code(strict=strict) for r in reports)
+
+
+# --------------------------------------------------------------------------- batch
+
+
+@main.command()
+@click.argument("sources", metavar="SOURCE...", nargs=-1, required=True)
+@click.option("-o", "--output", "outdir", required=True, type=click.Path(file_okay=False, path_type=Path),
+              help="Output folder (created if missing): maps/<name>-<sha8>/, summary.csv, summary.json, index.html.")
+@click.option("--workers", type=click.IntRange(0, None), default=None,
+              help="Worker processes (default: the cores available; 0 runs in this process).")
+@click.option("--verify", is_flag=True, help="Also run a small validation render per map.")
+@click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
+@click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
+              help="QA thresholds (TOML); default: the built-in profile.")
+@click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
+@click.option("--size", type=SIZE, default=None, help="Table grid WIDTHxHEIGHT (default: each map's own size).")
+@click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
+              show_default=True, help="Luminance weights of the tables.")
+@click.option("--mapping", type=click.Choice(["equal-area", "uv-linear"]), default="equal-area", show_default=True,
+              help="In-cell mapping of the tables.")
+@click.option("--uniform-mix", type=click.FloatRange(0.0, 1.0, max_open=True), default=0.0, show_default=True,
+              help="Fraction of uniform sphere sampling mixed into the tables.")
+@click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True, help="World up axis.")
+@click.option("--rotate", "rotate_deg", type=DEGREES, default=0.0, show_default=True,
+              help="Rotation of the environments about the up axis, degrees.")
+def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
+          uniform_mix, up, rotate_deg):
+    """Check, build tables for (and optionally verify) every map under SOURCE.
+
+    SOURCE is files, folders (searched recursively) or glob patterns. Each map's
+    outputs appear in OUTDIR only when complete, so an interrupted batch can be
+    rerun to resume; maps whose source and options are unchanged are skipped.
+    Source files are never modified. Exit status: 0 every map passed or warned,
+    1 any map failed or could not be read (with --strict also any warning), 2 usage
+    error, 130 interrupted.
+    """
+    from .batch import BatchInterrupted, run_batch
+    from .qa import load_profile
+
+    profile = load_profile(profile_path)
+    options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,
+               "up": up, "rotate": rotate_deg}
+    bar = _progress_bar(0, "maps")
+
+    def progress(p):
+        bar.total = p.total
+        bar.n = p.done
+        c = p.counts
+        bar.set_postfix_str(f"pass {c['pass']} warn {c['warn']} fail {c['fail']} error {c['error']} "
+                            f"up-to-date {c['skipped']}", refresh=True)
+
+    try:
+        with bar:
+            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force,
+                               scheduler=scheduler, options=options, profile=profile, progress=progress)
+    except BatchInterrupted as e:
+        c = e.result.counts
+        click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete); "
+                   "rerun the same command to resume", err=True)
+        return 130
+    for m in result.maps:
+        if m.verdict == "pass":
+            continue
+        detail = m.error or ", ".join(
+            f"{k}" for k in (m.figures.get("failed_checks") or []) + (m.figures.get("warned_checks") or [])) or ""
+        click.echo(f"{m.verdict:<5}  {m.source}" + (f"  {detail}" if detail else ""))
+    c = result.counts
+    click.echo(f"{c['maps']} maps: {c['pass']} pass, {c['warn']} warn, {c['fail']} fail, {c['error']} error "
+               f"({c['skipped']} up to date, not redone)")
+    for dup in result.duplicates:
+        click.echo("duplicate: " + " == ".join(dup["sources"]))
+    if result.summary:
+        names = ", ".join(Path(p).name for p in result.summary.values())
+        click.echo(f"wrote {outdir}/ ({names})")
+    return result.exit_code(strict=strict)
 
 
 # --------------------------------------------------------------------------- demo

@@ -1,0 +1,40 @@
+"""`envsample batch` through the command line: per-map results, exit statuses, resumable reruns."""
+
+import csv
+
+from click.testing import CliRunner
+
+from envsample.cli import main
+from envsample.io import write_map
+from envsample.skies import make_sky
+
+
+def _run(*args):
+    return CliRunner().invoke(main, list(map(str, args)))
+
+
+def test_batch_reports_bad_files_and_resumes(tmp_path):
+    src = tmp_path / "library"
+    src.mkdir()
+    write_map(src / "overcast.exr", make_sky("overcast", width=128), pixel_type="float")
+    write_map(src / "sun.exr", make_sky("sun", width=128), pixel_type="float")
+    (src / "broken.exr").write_text("not an image")
+    out = tmp_path / "out"
+
+    r = _run("batch", src, "-o", out, "--workers", "0")
+    assert r.exit_code == 1, r.output  # one map could not be read
+    assert "broken.exr" in r.output
+    assert "3 maps:" in r.output
+    with open(out / "summary.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert sorted(row["source"].rsplit("/", 1)[-1] for row in rows) == ["broken.exr", "overcast.exr", "sun.exr"]
+    assert (out / "index.html").exists()
+
+    again = _run("batch", src, "-o", out, "--workers", "0")
+    assert "(3 up to date, not redone)" in again.output
+
+
+def test_batch_usage_errors_exit_two(tmp_path):
+    r = _run("batch", tmp_path / "nothing-here", "-o", tmp_path / "out")
+    assert r.exit_code == 2
+    assert r.output.startswith("error:")
