@@ -60,17 +60,20 @@ the map resolution.  The horizon term is a 1D integral of a piecewise-constant
 function along a great circle: its crossings with the 2(H-1) latitude circles and
 the W half-meridians are computed in closed form, sorted, and each arc between
 consecutive crossings lies in one cell.  The cost is O((H + W) log(H + W)) per
-normal instead of O(H W): 128x64 normals on a 2048x1024 map take a few seconds
-(``benchmarks/bench_reference.py``).
+normal instead of O(H W): 128x64 normals on a 2048x1024 map take about 14 s on one
+core (``benchmarks/bench_reference.py``).  Memory: float64 column sums of the map (24
+bytes per cell), latitude tables built in blocks of about 64 MB, and about 150 MB of
+temporaries per batch of normals.
 
 Accuracy: the result is the exact integral of the piecewise-constant map up to
 floating-point rounding; no quadrature or subdivision is involved.  Coincidences
 (the horizon running along the equator or along a meridian, for axis-aligned
 normals) are resolved by assigning a horizon arc that lies on a cell edge to the
-lit side.  The measured agreement with adaptive quadrature (``scipy.integrate``)
-in the tests is better than 1e-9 relative; near tangency of the horizon with a
-latitude circle the rounding of ``arccos`` can cost up to about 1e-8 of the local
-radiance.  :func:`reference_accuracy` reports a self-consistency residual based on
+lit side.  The tests agree with adaptive quadrature (``scipy.integrate.dblquad``,
+cell by cell) to 1e-11 relative, axis-aligned normals included.  Where the horizon
+is almost tangent to a latitude circle the rounding of ``arccos`` (error ~ sqrt of
+the machine epsilon) can in principle cost up to ~1e-8 of the local radiance.
+:func:`reference_accuracy` reports a self-consistency residual based on
 the exact identity ``E(n) - E(-n) = n . integral of L(w) w dw`` (the right-hand side
 from the unclamped closed form), and, if the map was reduced with ``size``, the
 change against the full-resolution map.
@@ -146,7 +149,10 @@ _CHUNK_ELEMENTS = 1_000_000
 # ---------------------------------------------------------------------------
 
 def _map_array(rgb, name: str = "rgb") -> np.ndarray:
-    """(H, W, 3) float64 radiance from an array or a MapImage-like object (``.rgb``)."""
+    """(H, W, 3) float32/float64 radiance from an array or a MapImage-like object (``.rgb``).
+
+    float32 maps are kept as they are (not copied): every sum is accumulated in float64.
+    """
     if hasattr(rgb, "rgb"):
         rgb = rgb.rgb
     arr = np.asarray(rgb)
@@ -154,7 +160,9 @@ def _map_array(rgb, name: str = "rgb") -> np.ndarray:
         raise MapValidationError(f"{name} must be an (H, W, 3) RGB array, got shape {arr.shape}")
     if arr.shape[0] < 1 or arr.shape[1] < 2:
         raise MapValidationError(f"{name} must have at least 1 row and 2 columns, got shape {arr.shape}")
-    arr = arr.astype(np.float64, copy=False)
+    if arr.dtype not in (np.float32, np.float64):
+        arr = arr.astype(np.float64)
+    arr = np.ascontiguousarray(arr)
     bad = ~np.isfinite(arr)
     if bad.any():
         raise MapValidationError(
@@ -171,7 +179,7 @@ def _prepare_map(rgb, size) -> np.ndarray:
         if wh[0] < 2:
             raise ValueError(f"size must have at least 2 columns, got {wh[0]}x{wh[1]}")
         # The table's power-preserving box filter, so reference and table see the same map.
-        arr = reduce_power(arr, wh).astype(np.float64)
+        arr = reduce_power(arr, wh)
     return arr
 
 
@@ -288,69 +296,88 @@ def first_moment(rgb, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
 # exact irradiance
 # ---------------------------------------------------------------------------
 
+#: Bytes of float64 latitude-edge tables built at a time (rows of edges per block follow from it).
+_LAT_BLOCK_BYTES = 64_000_000
+
+
 class _IrradianceTables:
-    """Prefix sums of the radiance jumps across latitude and meridian edges (float64)."""
+    """What every normal needs: the map (as given) and float64 column prefix sums of it.
+
+    ``colsum[i, j] = sum of L[i', j] for i' < i`` ((H+1) x W x 3): the prefix sums of the
+    meridian-edge jumps ``L[:, j] - L[:, j-1]`` are differences of two columns of it.
+    The latitude-edge tables are larger (12 floats per cell) and are built block by
+    block (:func:`_latitude_block`), so memory stays near 24 bytes per cell.
+    """
 
     def __init__(self, L: np.ndarray):
         H, W = L.shape[:2]
-        g = self.grid = _Grid(H, W)
-        self.L_flat = np.ascontiguousarray(L.reshape(H * W, 3))
-        # Latitude edges k = 1..H-1: jump D = L(row k-1) - L(row k); cumulative functions of
-        # phi along the edge for the weights cos phi, sin phi and 1 (exact antiderivatives).
-        lat = np.empty((H - 1, W, 4, 3))
-        D = lat[:, :, 3]
-        np.subtract(L[:-1], L[1:], out=D)
-        # Inclusive prefix sums I(j) of D*dS, -D*dC and D*dphi; the value at phi in cell j is
-        # offset + D*sin(phi) (resp. -D*cos(phi), D*phi) with offset = I(j) - D*sin(phi_{j+1}) etc.
-        for f, (w, edge, sign) in enumerate(((np.diff(g.sph), g.sph, -1.0), (-np.diff(g.cph), g.cph, 1.0),
-                                              (np.full(W, g.dphi), g.phi, -1.0))):
-            out = lat[:, :, f]
-            np.multiply(D, w[None, :, None], out=out)
-            np.cumsum(out, axis=1, out=out)
-            out += sign * D * edge[None, 1:, None]
-        self.lat = lat.reshape((H - 1) * W, 12)
-        self.lat_total = np.stack([lat[:, -1, f] - s * D[:, -1] * e[-1] for f, (s, e) in
-                                   enumerate(((-1.0, g.sph), (1.0, g.cph), (-1.0, g.phi)))], axis=1)
-        # Meridian edges j = 0..W-1 (phi_j): jump G = L(col j) - L(col j-1), cumulative in theta.
-        G = L - np.roll(L, 1, axis=1)
-        dth = math.pi / H
-        PM = np.concatenate([np.zeros((1, W, 3)), np.cumsum(G * dth, axis=0)], axis=0)
-        OM = PM[:-1] - G * g.theta[:-1, None, None]
-        self.mer = np.ascontiguousarray(np.stack([OM, G], axis=2).reshape(H * W, 6))
-        self.mer_total = PM[-1]  # (W, 3)
+        self.grid = _Grid(H, W)
+        self.L = L
+        self.L_flat = L.reshape(H * W, 3)
+        colsum = np.zeros((H + 1, W, 3))
+        np.cumsum(L, axis=0, dtype=np.float64, out=colsum[1:])
+        self.colsum = colsum.reshape((H + 1) * W, 3)
 
 
-def _latitude_terms(T: _IrradianceTables, nx, ny, nz, nh, phin):
-    """1/2 sum over latitude edges of jump x lit integral; also the crossing data. (M, 3)."""
+def _latitude_block(T: _IrradianceTables, k0: int, k1: int):
+    """Tables of latitude edges k0..k1-1 (k = 1..H-1 is the edge between rows k-1 and k).
+
+    Jump ``D = L(row k-1) - L(row k)``; along the edge, the cumulative functions of phi for
+    the weights cos phi, sin phi and 1 are exact antiderivatives: in cell j their value at
+    phi is ``offset + D sin(phi)`` (resp. ``- D cos(phi)``, ``+ D phi``).  Returns the records
+    (rows x W, 12: three offsets and D, per channel) and the full-circle totals (rows, 3, 3).
+    """
     g = T.grid
-    H, W = g.H, g.W
-    mu, s = g.mu[1:-1], g.s[1:-1]
+    W = g.W
+    lat = np.empty((k1 - k0, W, 4, 3))
+    D = lat[:, :, 3]
+    np.subtract(T.L[k0 - 1:k1 - 1], T.L[k0:k1], out=D, dtype=np.float64)
+    weights = ((np.diff(g.sph), g.sph, -1.0), (-np.diff(g.cph), g.cph, 1.0), (np.full(W, g.dphi), g.phi, -1.0))
+    totals = []
+    for f, (w, edge, sign) in enumerate(weights):
+        out = lat[:, :, f]
+        np.multiply(D, w[None, :, None], out=out)
+        np.cumsum(out, axis=1, out=out)  # inclusive prefix I(j)
+        totals.append(out[:, -1].copy())
+        out += sign * D * edge[None, 1:, None]  # offset = I(j) -/+ D * edge(j+1)
+    return lat.reshape((k1 - k0) * W, 12), np.stack(totals, axis=1)
+
+
+def _latitude_x(g: _Grid, nz, nh, k0: int, k1: int):
+    """cos of the half-width of the lit interval on latitude edges k0..k1-1, (M, k1-k0).
+
+    ``x = -n_z mu / (n_h s)``; with ``n_h = 0`` it is set to -2 (all lit) or 2 (none lit).
+    """
+    mu, s = g.mu[k0:k1][None, :], g.s[k0:k1][None, :]
     with np.errstate(divide="ignore", invalid="ignore"):
-        x = -(nz[:, None] * mu[None, :]) / (nh[:, None] * s[None, :])
-    flat = nh[:, None] == 0.0
-    lit_all = (nz[:, None] * mu[None, :]) > 0.0
-    x = np.where(flat, np.where(lit_all, -2.0, 2.0), x)
-    beta = np.arccos(np.clip(x, -1.0, 1.0))
+        x = -(nz[:, None] * mu) / (nh[:, None] * s)
+    return np.where(nh[:, None] == 0.0, np.where(nz[:, None] * mu > 0.0, -2.0, 2.0), x)
+
+
+def _latitude_terms(T: _IrradianceTables, rec, totals, k0, k1, nx, ny, nz, nh, phin):
+    """1/2 sum over latitude edges k0..k1-1 of jump x integral over the lit interval, (M, 3)."""
+    g = T.grid
+    W = g.W
+    mu, s = g.mu[k0:k1], g.s[k0:k1]
+    beta = np.arccos(np.clip(_latitude_x(g, nz, nh, k0, k1), -1.0, 1.0))
     wC = -(mu * s)[None, :] * nx[:, None]
     wS = -(mu * s)[None, :] * ny[:, None]
     w1 = (s * s)[None, :] * nz[:, None]
-    k = np.arange(H - 1)[None, :]
-    total = np.einsum("mk,kc->mkc", wC, T.lat_total[:, 0]) + np.einsum("mk,kc->mkc", wS, T.lat_total[:, 1]) \
-        + np.einsum("mk,kc->mkc", w1, T.lat_total[:, 2])
+    k = np.arange(k1 - k0)[None, :]
+    total = wC[..., None] * totals[None, :, 0] + wS[..., None] * totals[None, :, 1] + w1[..., None] * totals[None, :, 2]
 
     def value(phi):
         q = np.floor((phi + math.pi) / TWO_PI)
         p = phi - TWO_PI * q
         j = np.clip(np.floor((p + math.pi) / g.dphi).astype(np.int64), 0, W - 1)
-        rec = T.lat[k * W + j]  # (M, H-1, 12)
-        OC, OS, O1, D = rec[..., 0:3], rec[..., 3:6], rec[..., 6:9], rec[..., 9:12]
-        v = wC[..., None] * (OC + D * np.sin(p)[..., None]) + wS[..., None] * (OS - D * np.cos(p)[..., None]) \
-            + w1[..., None] * (O1 + D * p[..., None])
+        r = rec[k * W + j]  # (M, rows, 12)
+        v = wC[..., None] * (r[..., 0:3] + r[..., 9:12] * np.sin(p)[..., None]) \
+            + wS[..., None] * (r[..., 3:6] - r[..., 9:12] * np.cos(p)[..., None]) \
+            + w1[..., None] * (r[..., 6:9] + r[..., 9:12] * p[..., None])
         return v + q[..., None] * total
 
     phic = phin[:, None]
-    out = 0.5 * np.sum(value(phic + beta) - value(phic - beta), axis=1)
-    return out, x
+    return 0.5 * np.sum(value(phic + beta) - value(phic - beta), axis=1)
 
 
 def _meridian_terms(T: _IrradianceTables, nx, ny, nz):
@@ -362,20 +389,24 @@ def _meridian_terms(T: _IrradianceTables, nx, ny, nz):
     sgn = np.sign(nz)[:, None]
     thc = np.arctan2(np.abs(nz)[:, None] + 0.0 * c, -sgn * c)  # horizon crossing on each meridian
     i = np.clip(np.floor(thc * (H / math.pi)).astype(np.int64), 0, H - 1)
-    rec = T.mer[i * W + np.arange(W)[None, :]]
-    cum = rec[..., 0:3] + rec[..., 3:6] * thc[..., None]
-    tot = T.mer_total[None, :, :]
+    j = np.arange(W)[None, :]
+    jl = (j - 1) % W
+    # Jump G = L(col j) - L(col j-1); cumulative in theta: dtheta * (prefix difference) + G (theta - theta_i).
+    G = T.L_flat[i * W + j].astype(np.float64) - T.L_flat[i * W + jl]
+    pre = T.colsum[i * W + j] - T.colsum[i * W + jl]
+    cum = (math.pi / H) * pre + G * (thc - g.theta[i])[..., None]
+    tot = (math.pi / H) * (T.colsum[H * W + j] - T.colsum[H * W + jl])
     val = np.where((sgn > 0)[..., None], cum,
                    np.where((sgn < 0)[..., None], tot - cum, np.where((c > 0)[..., None], tot, 0.0)))
     return 0.5 * np.einsum("mj,mjc->mc", nm, val), thc
 
 
-def _horizon_term(T: _IrradianceTables, n, nh, x, thc):
+def _horizon_term(T: _IrradianceTables, n, nh, thc):
     """1/2 integral of L along the horizon great circle of each normal, exact. (M, 3)."""
     g = T.grid
     H, W = g.H, g.W
-    M = n.shape[0]
     nx, ny, nz = n[:, 0], n[:, 1], n[:, 2]
+    x = _latitude_x(g, nz, nh, 1, H)
     e1, e2 = orthonormal_basis(n)
     with np.errstate(divide="ignore", invalid="ignore"):
         hx, hy = nx / nh, ny / nh
@@ -420,7 +451,7 @@ def _horizon_term(T: _IrradianceTables, n, nh, x, thc):
     row = _classify_rows(g, wx, wy, wz, nz[:, None])
     col = _classify_cols(g, wx, wy, nx[:, None], ny[:, None])
     Lc = T.L_flat[np.where(valid, row * W + col, 0)]
-    return 0.5 * np.einsum("mk,mkc->mc", length, Lc)
+    return 0.5 * np.einsum("mk,mkc->mc", length, Lc.astype(np.float64, copy=False))
 
 
 def _classify_rows(g: _Grid, wx, wy, wz, nz):
@@ -450,18 +481,6 @@ def _classify_cols(g: _Grid, wx, wy, nx, ny):
     return col % W
 
 
-def _irradiance_chunk(T: _IrradianceTables, n: np.ndarray) -> np.ndarray:
-    nx, ny, nz = n[:, 0], n[:, 1], n[:, 2]
-    nh = np.hypot(nx, ny)
-    phin = np.arctan2(ny, nx)
-    lat, x = _latitude_terms(T, nx, ny, nz, nh, phin) if T.grid.H > 1 else (np.zeros((n.shape[0], 3)), None)
-    if x is None:
-        x = np.zeros((n.shape[0], 0))
-    mer, thc = _meridian_terms(T, nx, ny, nz)
-    hor = _horizon_term(T, n, nh, x, thc)
-    return lat + mer + hor
-
-
 def _chunk_size(chunk, grid_h: int, grid_w: int) -> int:
     if chunk is None:
         return max(1, _CHUNK_ELEMENTS // (2 * grid_h + grid_w + 2))
@@ -473,11 +492,24 @@ def _chunk_size(chunk, grid_h: int, grid_w: int) -> int:
 
 def _irradiance(L: np.ndarray, n_world: np.ndarray, frame: np.ndarray, chunk) -> np.ndarray:
     T = _IrradianceTables(L)
+    g = T.grid
     n = n_world @ frame.T
-    out = np.empty((n.shape[0], 3), dtype=np.float64)
-    step = _chunk_size(chunk, L.shape[0], L.shape[1])
-    for a in range(0, n.shape[0], step):
-        out[a:a + step] = _irradiance_chunk(T, n[a:a + step])
+    nx, ny, nz = n[:, 0], n[:, 1], n[:, 2]
+    nh = np.hypot(nx, ny)
+    phin = np.arctan2(ny, nx)
+    out = np.zeros((n.shape[0], 3), dtype=np.float64)
+    step = _chunk_size(chunk, g.H, g.W)
+    chunks = [slice(a, a + step) for a in range(0, n.shape[0], step)]
+    rows = max(1, _LAT_BLOCK_BYTES // (96 * g.W))
+    for k0 in range(1, g.H, rows):
+        k1 = min(g.H, k0 + rows)
+        rec, totals = _latitude_block(T, k0, k1)
+        for c in chunks:
+            out[c] += _latitude_terms(T, rec, totals, k0, k1, nx[c], ny[c], nz[c], nh[c], phin[c])
+        del rec
+    for c in chunks:
+        mer, thc = _meridian_terms(T, nx[c], ny[c], nz[c])
+        out[c] += mer + _horizon_term(T, n[c], nh[c], thc)
     return out
 
 
@@ -501,7 +533,7 @@ def reference_irradiance(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0
         First reduce the map with the table's power-preserving box filter
         (:func:`envsample.table.reduce_power`); the result is then exact for the reduced map.
     chunk : int, optional
-        Normals per vectorised batch (default: chosen to keep temporaries near 100 MB).
+        Normals per vectorised batch (default: chosen to keep temporaries near 150 MB).
 
     Returns
     -------
@@ -696,11 +728,16 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: 
         As in :func:`reference_irradiance`.
     resolution : float
         Sub-rectangles per scale length of the integrand.  Each cell, a rectangle in
-        ``(mu, phi)``, is split 2x2 (equal solid angle) while its angular diameter
+        ``(theta, phi)``, is halved along its long side(s) while its angular diameter
         exceeds ``scale / resolution``, where ``scale`` is the larger of alpha and the
-        half-vector's angle from the peak (and, near the horizon of ``n``, the larger of
-        alpha and ``|n.w|``, the width of the shadowing edge); leaves get a 2x2
-        Gauss-Legendre rule.  Cells entirely below the horizon are skipped.
+        half-vector's angle from the peak.  Leaves get a 2x2 Gauss-Legendre rule in
+        ``(theta, phi)`` with the ``sin(theta)`` weight (smooth at the poles).  Cells
+        entirely below the horizon of ``n`` are skipped.
+    tolerance : float
+        Near the horizon of ``n`` the Smith shadowing falls to zero over a band of width
+        ~alpha (a kink in the integrand): rectangles there are split down to
+        ``max(alpha, |n.w|) / resolution`` while their mean kernel (1/sr) times their
+        diameter exceeds ``tolerance``.
     max_depth : int
         Maximum number of splits of one cell.
 
@@ -711,9 +748,11 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: 
     Notes
     -----
     A quadrature, not a closed form: :func:`reference_glossy_accuracy` reports the change
-    when ``resolution`` is doubled.  Roughly 1e-4 relative at the default for
-    alpha >= 0.05 (see tests).  A Python loop runs over (normal, wo) pairs, never over pixels;
-    meant for a few dozen pairs.
+    when ``resolution`` is doubled.  At the defaults, the directional albedo of a white map
+    matches scipy quadrature to about 1e-8 for views up to 70 degrees and 6e-7 at 83
+    degrees, for alpha from 0.01 to 0.5 (tests allow 2e-6).  A Python loop runs over
+    (normal, wo) pairs, never over pixels; each pair takes 0.05-1 s on a 64x32 map, so
+    it is meant for a few dozen pairs on a reduced map.
     """
     L = _prepare_map(rgb, size)
     n, w, r, shape = _pair_vectors(normals, wo, roughness)
@@ -733,10 +772,11 @@ def reference_glossy_accuracy(rgb, normals, wo, roughness, *, up: str = "y", rot
                               max_depth: int = 16) -> dict:
     """The glossy reference at ``resolution`` and ``2 * resolution``, with the change between them.
 
-    Returns a dict: ``values`` (the finer result, float64 ``broadcast + (3,)``), ``coarse``,
-    ``change`` (max absolute difference over pairs and channels) and ``relative_change``
-    (that difference over the largest finer value), an estimate of the quadrature error of
-    the coarser result and a conservative one for the finer.
+    The finer run also uses a tolerance ten times smaller.  Returns a dict: ``values`` (the
+    finer result, float64 ``broadcast + (3,)``), ``coarse``, ``change`` (max absolute
+    difference over pairs and channels, map units) and ``relative_change`` (that difference
+    over the largest finer value): an estimate of the coarser result's quadrature error
+    and a conservative one for the finer's.
     """
     kw = dict(up=up, rotate_deg=rotate_deg, size=size, max_depth=max_depth)
     coarse = reference_glossy(rgb, normals, wo, roughness, resolution=resolution, tolerance=tolerance, **kw)
