@@ -133,7 +133,13 @@ GLOSSY_ESTIMATORS = ("bsdf", "table", "mis-balance", "mis-power", "one-sample-ba
 GLOSSY_VIEW_DEG = (0.0, 45.0, 75.0)
 
 #: Normals of the glossy check (a coarse lat-long grid, width x height).
-GLOSSY_NORMALS = (16, 8)
+GLOSSY_NORMALS = (8, 4)
+
+#: Largest map (width, height) of the glossy check; larger maps are reduced (power-preserving).
+GLOSSY_MAP = (128, 64)
+
+#: (normal, view) pairs per view angle on which the glossy reference's accuracy is measured.
+GLOSSY_ACCURACY_PAIRS = 4
 
 #: Table-selection probabilities tried by :func:`tune_one_sample`.
 DEFAULT_FRACTIONS = (0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9)
@@ -512,29 +518,78 @@ def _view_directions(normals: np.ndarray, angle_deg: float) -> np.ndarray:
     return math.cos(a) * normals + math.sin(a) * t
 
 
-def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
-    from .mis import estimate_glossy
-    from .reference import reference_glossy
+def _glossy_table(table):
+    """The table of the glossy check: the map reduced to at most GLOSSY_MAP (power-preserving), same options.
 
+    The quadrature reference runs a Python loop per (normal, view) pair and its cost grows with
+    the map; estimates and reference then both see the same reduced map, which is enough to
+    validate BSDF sampling and the MIS weights.
+    """
+    from .table import build_table, reduce_power
+
+    gw, gh = GLOSSY_MAP
+    if table.width <= gw:
+        return table, [table.width, table.height]
+    image = reduce_power(table.image, (gw, gh))
+    opts = table.metadata["options"]
+    small = build_table(image, primaries=table.primaries, mapping=table.mapping, uniform_mix=table.uniform_mix,
+                        up=table.up, rotate_deg=table.rotate_deg, compensate=bool(opts.get("compensate", False)))
+    return small, [gw, gh]
+
+
+def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
+    """GGX glossy estimates against reference.reference_glossy: a few view angles on a coarse grid of normals."""
+    from .mis import estimate_glossy
+    from .reference import reference_glossy, reference_glossy_accuracy
+
+    gtable, map_wh = _glossy_table(table)
     gw, gh = GLOSSY_NORMALS
-    normals, weights = normal_grid(gw, gh, up=table.up, rotate_deg=table.rotate_deg)
-    names = [e for e in GLOSSY_ESTIMATORS if not (e == "table" and table.compensated)]
-    out = {"roughness": float(roughness), "normals": [gw, gh], "view_angles_deg": list(GLOSSY_VIEW_DEG),
-           "spp": spp, "integrand": "L_o = integral of L f_GGX(F=1) cos; map units (radiance)",
-           "estimators": {n: {"relative_rmse": [], "mean_bias": []} for n in names}, "reference_seconds": 0.0}
+    normals, weights = normal_grid(gw, gh, up=gtable.up, rotate_deg=gtable.rotate_deg)
+    names = [e for e in GLOSSY_ESTIMATORS if not (e == "table" and gtable.compensated)]
+    kw = {"up": gtable.up, "rotate_deg": gtable.rotate_deg}
+    per = {n: {"relative_rmse": [], "mean_bias": [], "mean_bias_se": [], "variance_per_sample": [],
+               "firefly_index": [], "bias_consistent_with_zero": []} for n in names}
+    ref_seconds, accuracy = 0.0, 0.0
     for k, angle in enumerate(GLOSSY_VIEW_DEG):
         wo = _view_directions(normals, angle)
         t0 = time.perf_counter()
-        ref = np.asarray(reference_glossy(table.image, normals, wo, roughness, up=table.up,
-                                          rotate_deg=table.rotate_deg), dtype=np.float64)
-        out["reference_seconds"] += time.perf_counter() - t0
+        ref = np.asarray(reference_glossy(gtable.image, normals, wo, roughness, **kw), dtype=np.float64)
+        ref_seconds += time.perf_counter() - t0
+        pick = np.linspace(0, normals.shape[0] - 1, GLOSSY_ACCURACY_PAIRS).round().astype(np.int64)
+        acc = reference_glossy_accuracy(gtable.image, normals[pick], wo[pick], roughness, **kw)
+        ref32 = ref.astype(np.float32)
+        ebar = error_metrics(ref32, ref32, weights, primaries=gtable.primaries)["reference_mean"]
+        top = float(_luminance64(ref32, gtable.primaries).max())
+        # The accuracy statement is relative to the largest value; restate it relative to Ebar.
+        rel_acc = acc["relative_change"] * top / ebar if ebar > 0 else 0.0
+        accuracy = max(accuracy, rel_acc)
         for name in names:
-            est = estimate_glossy(table, normals, wo, roughness, estimator=name, spp=spp,
-                                  seed=_stream(seed, "glossy", name, k))
-            m = error_metrics(est.astype(np.float32), ref.astype(np.float32), weights, primaries=table.primaries)
-            out["estimators"][name]["relative_rmse"].append(_num(m["relative_rmse"]))
-            out["estimators"][name]["mean_bias"].append(_num(m["mean_bias"]))
-    return out
+            est, samples = estimate_glossy(gtable, normals, wo, roughness, estimator=name, spp=spp,
+                                           seed=_stream(seed, "glossy", name, k), return_samples=True)
+            m = error_metrics(est.astype(np.float32), ref32, weights, primaries=gtable.primaries)
+            st = _sample_statistics(samples, weights, ebar) if ebar > 0 else {}
+            e = per[name]
+            e["relative_rmse"].append(_num(m["relative_rmse"]))
+            e["mean_bias"].append(_num(m["mean_bias"]))
+            e["mean_bias_se"].append(_num(st.get("bias_se")))
+            e["variance_per_sample"].append(_num(st.get("variance_per_sample")))
+            e["firefly_index"].append(_num(samples.firefly_index()))
+            ok = None
+            if m["mean_bias"] is not None and st.get("bias_se") is not None:
+                ok = bool(abs(m["mean_bias"]) <= BIAS_SIGMAS * st["bias_se"] + rel_acc)
+            e["bias_consistent_with_zero"].append(ok)
+    return {
+        "roughness": float(roughness),
+        "integrand": "outgoing radiance L_o = integral of L f_GGX (F = 1) max(0, n.w) dw, map units",
+        "normals": [gw, gh],
+        "view_angles_deg": list(GLOSSY_VIEW_DEG),
+        "view": "wo at the given angle from each normal, tilted towards the tangent of its orthonormal basis",
+        "map": map_wh,
+        "spp": spp,
+        "reference_seconds": ref_seconds,
+        "reference_relative_accuracy": accuracy,
+        "estimators": per,
+    }
 
 
 # --------------------------------------------------------------------------- files
@@ -630,7 +685,8 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     roughness : float, optional
         GGX alpha in [1e-4, 1]: also compare glossy estimates with
         :func:`envsample.reference.reference_glossy` (:data:`GLOSSY_NORMALS` normals,
-        :data:`GLOSSY_VIEW_DEG` view angles).
+        :data:`GLOSSY_VIEW_DEG` view angles, the map reduced to at most :data:`GLOSSY_MAP`
+        for estimates and reference alike, because the quadrature reference is slow).
     seed : int >= 0 or None
         Seed of every random stream (None: fresh entropy, recorded in the metrics).
     table_size : (width, height) or "WxH", optional
