@@ -151,6 +151,9 @@ _ONE_SAMPLE = {"balance": "one-sample-balance", "power": "one-sample-power",
 #: Measured bias is "consistent with zero" within this many standard errors (plus the reference's accuracy).
 BIAS_SIGMAS = 4.0
 
+#: Estimators with at least this fraction of the best efficiency are listed as close to it.
+CLOSE_EFFICIENCY = 0.9
+
 #: Largest normal grid of the convergence plot (a sub-grid of the render's normals).
 CONVERGENCE_GRID = (32, 16)
 
@@ -348,7 +351,7 @@ def _largest_sample(samples, height: int, width: int, rotate_deg: float) -> dict
     azimuth = (360.0 * ((col + 0.5) / width - 0.5) + rotate_deg + 180.0) % 360.0 - 180.0
     strategy = samples.strategies[int(samples.strategy[normal, k])]
     return {"normal_azimuth_deg": round(azimuth, 3), "normal_elevation_deg": round(90.0 - 180.0 * (row + 0.5) / height, 3),
-            "strategy": strategy, "contribution_over_mean": _num(samples.firefly_index())}
+            "strategy": strategy}
 
 
 def _render_one(table, name, normals, weights, grid_wh, spp, seed, ref32, ebar, ref_accuracy):
@@ -409,7 +412,11 @@ def _recommendation(entries: dict) -> dict:
             f"measured mean bias is within {BIAS_SIGMAS:g} standard errors (plus the reference accuracy) of zero")
     if fallback:
         rule += "; no estimator passed the bias check, so all were ranked (increase spp)"
+    top = score(ranked[0])[1] if ranked else 0.0
+    close = [n for n, e in ranked[1:] if score((n, e))[1] >= CLOSE_EFFICIENCY * top]
     return {"estimator": best, "rule": rule, "ranking": [n for n, _ in ranked],
+            "close_to_best": close,
+            "close_to_best_means": f"efficiency within {1 - CLOSE_EFFICIENCY:.0%} of the best: timing noise can swap them",
             "excluded_for_bias": sorted(n for n, e in entries.items() if e.get("bias_consistent_with_zero") is False)}
 
 
@@ -458,8 +465,10 @@ def _plotted(series: dict, entries: dict, recommended: str | None) -> list[str]:
     The recommended estimator is always drawn; the others stay in metrics.json.
     """
     names = list(series)
+    first = [recommended] if recommended in names else []
     if len(names) <= MAX_PLOT_SERIES:
-        return names
+        # The N^-1/2 guide passes through the first series: make that the recommended one.
+        return first + [n for n in names if n not in first]
 
     def final(name):
         v = [x for x in series[name] if x is not None]
@@ -471,7 +480,7 @@ def _plotted(series: dict, entries: dict, recommended: str | None) -> list[str]:
     for n in singles + mixed:
         if len(keep) < MAX_PLOT_SERIES and n not in keep:
             keep.append(n)
-    return [n for n in names if n in keep]
+    return first + [n for n in names if n in keep and n not in first]
 
 
 def sphere_normals(size: int, *, up: str = "y") -> tuple[np.ndarray, np.ndarray]:
