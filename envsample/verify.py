@@ -81,8 +81,6 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
-import tempfile
 import time
 import zlib
 from collections.abc import Callable
@@ -403,6 +401,9 @@ def _recommendation(entries: dict) -> dict:
             return (1, math.inf)
         return (1, e["efficiency"]) if e.get("efficiency") is not None else (0, 0.0)
 
+    if all(e.get("relative_rmse") is None for e in entries.values()):
+        return {"estimator": None, "rule": "the reference irradiance is zero everywhere (a black map): nothing to rank",
+                "ranking": [], "close_to_best": [], "excluded_for_bias": []}
     candidates = [(n, e) for n, e in entries.items() if e.get("bias_consistent_with_zero")]
     fallback = not candidates
     pool = candidates if candidates else list(entries.items())
@@ -605,20 +606,11 @@ def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
 
 
 def _write_json(path: Path, doc: dict) -> None:
-    """Write JSON atomically (temporary file in the folder, then os.replace) with ordinary file permissions."""
+    """Write JSON atomically (temporary file beside it, then rename; tableio's writer)."""
+    from .tableio import atomic_write
+
     text = json.dumps(doc, indent=2, allow_nan=False) + "\n"
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(text.encode("utf-8"))
-        mask = os.umask(0o022)
-        os.umask(mask)
-        # mkstemp makes 0600 files; a report is meant to be shared like any new file.
-        os.chmod(tmp, 0o666 & ~mask)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    atomic_write(path, lambda f: f.write(text.encode("utf-8")))
 
 
 def _error_pictures(outdir: Path, panels: list, rotate_deg: float) -> list[str]:
@@ -772,11 +764,15 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     tick("convergence")
     conv = _convergence(table, names, n, weights, ref32, grid_wh, spp, seed)
     conv["plotted"] = _plotted(conv["relative_rmse"], entries, recommended["estimator"])
-    convergence_plot(conv["spp"], {k: conv["relative_rmse"][k] for k in conv["plotted"]},
-                     path=outdir / "convergence.png",
-                     xlabel="samples per normal", ylabel="relative RMSE of irradiance (luminance)",
-                     title=f"convergence on {conv['normals'][0]}x{conv['normals'][1]} normals")
-    files["convergence"] = "convergence.png"
+    shown = {k: conv["relative_rmse"][k] for k in conv["plotted"]}
+    if any(v is not None and v > 0 for vals in shown.values() for v in vals):
+        convergence_plot(conv["spp"], shown, path=outdir / "convergence.png",
+                         xlabel="samples per normal", ylabel="relative RMSE of irradiance (luminance)",
+                         title=f"convergence on {conv['normals'][0]}x{conv['normals'][1]} normals")
+        files["convergence"] = "convergence.png"
+    else:
+        # A black map (or exact estimates everywhere) leaves nothing to draw on log axes.
+        notes.append("no positive relative error to plot: convergence.png not written")
     if sphere and recommended["estimator"] is not None:
         write_png(outdir / "sphere.png", _sphere_picture(ref32, grids[recommended["estimator"]], grid_wh, table))
         files["sphere"] = "sphere.png"

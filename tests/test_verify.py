@@ -321,6 +321,19 @@ def test_bad_arguments_are_refused_with_the_remedy(tmp_path):
     assert not (tmp_path / "metrics.json").exists()
 
 
+def test_black_map_reports_nothing_to_rank(tmp_path):
+    """An all-black map is legal (warned at build); its report says there is nothing to compare."""
+    from envsample.errors import EnvsampleWarning
+
+    with pytest.warns(EnvsampleWarning, match="black"):
+        doc = verify_map(np.zeros((16, 32, 3), np.float32), tmp_path, spp=4, normals=(8, 4),
+                         estimators=("cosine", "table"))
+    assert doc["recommended"]["estimator"] is None
+    assert doc["estimators"]["table"]["relative_rmse"] is None
+    assert np.all(_read_exr(tmp_path / "reference.exr") == 0.0)
+    assert json.loads((tmp_path / "metrics.json").read_text())["notes"]
+
+
 def test_compensated_table_is_used_only_inside_mis(tmp_path):
     """Karlik et al. 2019: a compensated table is valid only inside MIS, so the lone table is left out."""
     table = build_table(skies.make_sky("rooftop", width=64), compensate=True)
