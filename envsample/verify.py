@@ -5,6 +5,7 @@ Public objects
 :func:`verify_map`       render, compare, write EXR images, PNG pictures and ``metrics.json``.
 :func:`load_source`      a map file, a table prefix, an array, a MapImage or an EnvTable -> EnvTable.
 :func:`normal_grid`      the lat-long grid of normals (pixel centres) and the solid angle of each cell.
+:func:`sphere_normals`   normals of a sphere as an orthographic camera sees it (for ``sphere.png``).
 :func:`error_metrics`    relative RMSE and mean bias of an estimate against the reference (luminance).
 :func:`tune_one_sample`  pilot search of one-sample MIS selection probabilities.
 :func:`recommend`        the tuned choice as a JSON-ready dict for ``table.metadata["recommendation"]``.
@@ -101,6 +102,7 @@ __all__ = [
     "METRICS_SCHEMA",
     "load_source",
     "normal_grid",
+    "sphere_normals",
     "error_metrics",
     "verify_map",
     "tune_one_sample",
@@ -487,8 +489,8 @@ def _plotted(series: dict, entries: dict, recommended: str | None) -> list[str]:
 def sphere_normals(size: int, *, up: str = "y") -> tuple[np.ndarray, np.ndarray]:
     """Normals of a unit sphere seen by an orthographic camera, and the mask of pixels on it.
 
-    The camera looks along the convention's forward axis (towards the image centre,
-    azimuth 0) with the up axis up, so screen right is the convention's right and the
+    The camera looks along the world forward axis of the convention (the image centre
+    when the map is not rotated) with the up axis up, so screen right is the convention's right and the
     visible half of the sphere faces back towards the camera: it is lit by the half of
     the map behind the camera.  Returns float64 ``(size, size, 3)`` normals (zero off
     the sphere) and a bool ``(size, size)`` mask.

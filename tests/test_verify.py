@@ -161,6 +161,26 @@ def test_convergence_follows_the_ladder(rooftop_report):
     assert table[-1] < table[0] / 2.0
 
 
+@pytest.mark.parametrize("up", ["y", "z"])
+def test_sphere_picture_faces_the_camera(up):
+    """Convention of envsample.sphere (forward, right, up per up axis, right = forward x up):
+
+    the camera looks along forward, so the centre of the picture shows the normal -forward,
+    the right edge +right and the top edge +up; every normal on the disk is a unit vector.
+    """
+    from envsample.sphere import UP_AXES
+    from envsample.verify import sphere_normals
+
+    f, r, a = (np.array(v) for v in UP_AXES[up])
+    n, mask = sphere_normals(65, up=up)
+    np.testing.assert_allclose(n[32, 32], -f, atol=1e-12)
+    np.testing.assert_allclose(n[32, 64], r, atol=0.2)
+    np.testing.assert_allclose(n[0, 32], a, atol=0.2)
+    np.testing.assert_allclose(np.linalg.norm(n[mask], axis=1), 1.0, atol=1e-12)
+    assert not mask[0, 0] and np.all(n[~mask] == 0.0)
+    assert mask.sum() == pytest.approx(math.pi / 4 * 65 ** 2, rel=0.02)  # disk area
+
+
 def test_uniform_map_reference_and_zero_variance_cosine(tmp_path):
     """Lambert's cosine law: E = pi L everywhere; cosine sampling of a constant map has zero variance."""
     L = 0.75
