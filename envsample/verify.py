@@ -720,7 +720,10 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     grid_wh = _check_normals(normals)
     seed = _check_seed(seed)
     if roughness is not None:
-        roughness = float(roughness)
+        try:
+            roughness = float(roughness)
+        except (TypeError, ValueError):
+            raise ValueError(f"roughness (GGX alpha) must be a number in [1e-4, 1], got {roughness!r}") from None
         if not (1e-4 <= roughness <= 1.0):
             raise ValueError(f"roughness (GGX alpha) must lie in [1e-4, 1], got {roughness}")
     tick("load")
