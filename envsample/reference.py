@@ -67,12 +67,15 @@ temporaries per batch of normals.
 
 Accuracy: the result is the exact integral of the piecewise-constant map up to
 floating-point rounding; no quadrature or subdivision is involved.  Coincidences
-(the horizon running along the equator or along a meridian, for axis-aligned
-normals) are resolved by assigning a horizon arc that lies on a cell edge to the
-lit side.  The tests agree with adaptive quadrature (``scipy.integrate.dblquad``,
-cell by cell) to 1e-11 relative, axis-aligned normals included.  Where the horizon
-is almost tangent to a latitude circle the rounding of ``arccos`` (error ~ sqrt of
-the machine epsilon) can in principle cost up to ~1e-8 of the local radiance.
+(the horizon running along the equator or along a meridian edge, as for axis-aligned
+normals) are resolved exactly: a horizon arc lying on a cell edge goes to the lit side,
+and a normal within :data:`SNAP_RADIANS` (1e-9 rad) of such a direction is first moved
+onto it, because at distances of the order of the rounding error the edge tests and the
+arc tests could disagree; the move changes E by at most 1e-9 x the integral of L.  The
+tests agree with adaptive quadrature (``scipy.integrate``, cell by cell) to 1e-11
+relative, and near-degenerate normals to the 1e-9 bound.  Where the horizon is almost
+tangent to a latitude circle the rounding of ``arccos`` (error ~ sqrt of the machine
+epsilon) can in principle cost up to ~1e-8 of the local radiance.
 :func:`reference_accuracy` reports a self-consistency residual based on
 the exact identity ``E(n) - E(-n) = n . integral of L(w) w dw`` (the right-hand side
 from the unclamped closed form), and, if the map was reduced with ``size``, the
@@ -130,6 +133,7 @@ __all__ = [
     "sh9_project",
     "sh9_irradiance",
     "SH9_BAND_FACTORS",
+    "SNAP_RADIANS",
 ]
 
 TWO_PI = 2.0 * math.pi
@@ -139,6 +143,11 @@ SH9_BAND_FACTORS = (math.pi, 2.0 * math.pi / 3.0, math.pi / 4.0)
 
 #: Normal length tolerated before renormalisation (larger deviations are an input error).
 _UNIT_TOLERANCE = 1e-6
+
+#: Normals closer than this (radians) to a direction whose horizon runs along a cell edge
+#: (the up axis, the horizontal plane, a meridian plane of a column edge) are moved onto
+#: it, so the coincidence is resolved exactly; E moves by at most this x integral of L.
+SNAP_RADIANS = 1e-9
 
 #: Work per chunk of normals, in (normals x (H + W)) elements; bounds temporaries to tens of MB.
 _CHUNK_ELEMENTS = 1_000_000
@@ -253,6 +262,10 @@ class _Grid:
         qi = (4 * (m % width)) // width
         c = np.where(quarter, np.array([1.0, 0.0, -1.0, 0.0, 1.0])[np.minimum(qi, 4)], c)
         sn = np.where(quarter, np.array([0.0, 1.0, 0.0, -1.0, 0.0])[np.minimum(qi, 4)], sn)
+        if width % 2 == 0:  # exact antipodes: the two halves of one meridian plane
+            half = width // 2
+            c[half:width], sn[half:width] = -c[:half], -sn[:half]
+            c[width], sn[width] = c[0], sn[0]
         # phi = -pi + 2 pi m / W, so cos(phi) = -cos(ang), sin(phi) = -sin(ang).
         self.cph, self.sph = -c, -sn
         self.phi = -math.pi + TWO_PI * m / width
@@ -450,6 +463,17 @@ def _horizon_term(T: _IrradianceTables, n, nh, thc):
     wz = cm * e1[:, 2:3] + sm * e2[:, 2:3]
     row = _classify_rows(g, wx, wy, wz, nz[:, None])
     col = _classify_cols(g, wx, wy, nx[:, None], ny[:, None])
+    # A horizontal normal's horizon is two half-meridians, at +-a with a = (-n_y, n_x, 0);
+    # classify those two directions once (ties to the lit side) rather than each midpoint,
+    # which may sit within rounding of a meridian edge the horizon runs along.
+    flat = nz == 0.0
+    if np.any(flat):
+        ax, ay = -ny[flat], nx[flat]  # not normalised: keeps the exact zero of a . m_j when n = m_j
+        nxf, nyf = nx[flat][:, None], ny[flat][:, None]
+        col_a = _classify_cols(g, ax[:, None], ay[:, None], nxf, nyf)
+        col_b = _classify_cols(g, -ax[:, None], -ay[:, None], nxf, nyf)
+        side = wx[flat] * ax[:, None] + wy[flat] * ay[:, None]
+        col[flat] = np.where(side > 0, col_a, col_b)
     Lc = T.L_flat[np.where(valid, row * W + col, 0)]
     return 0.5 * np.einsum("mk,mkc->mc", length, Lc.astype(np.float64, copy=False))
 
@@ -490,10 +514,30 @@ def _chunk_size(chunk, grid_h: int, grid_w: int) -> int:
     return chunk
 
 
+def _snap_normals(g: _Grid, n: np.ndarray) -> np.ndarray:
+    """Move map-frame normals within SNAP_RADIANS of a degenerate direction exactly onto it."""
+    n = n.copy()
+    nh = np.hypot(n[:, 0], n[:, 1])
+    polar = nh < SNAP_RADIANS
+    n[polar] = np.stack([np.zeros(polar.sum()), np.zeros(polar.sum()), np.sign(n[polar, 2])], axis=1)
+    level = ~polar & (np.abs(n[:, 2]) < SNAP_RADIANS)
+    if np.any(level):
+        h = n[level, :2] / nh[level, None]
+        # |n . u_j| with u_j the horizontal direction of meridian j: zero when n is normal to its plane.
+        dots = h[:, 0:1] * g.cph[None, :-1] + h[:, 1:2] * g.sph[None, :-1]
+        j = np.argmin(np.abs(dots), axis=1)
+        near = np.abs(dots[np.arange(j.size), j]) < SNAP_RADIANS
+        m = np.stack([-g.sph[j], g.cph[j]], axis=1)  # unit normal of meridian plane j (exact table values)
+        sign = np.where(np.sum(h * m, axis=1) >= 0, 1.0, -1.0)[:, None]
+        h = np.where(near[:, None], sign * m, h)
+        n[level] = np.column_stack([h, np.zeros(h.shape[0])])
+    return n
+
+
 def _irradiance(L: np.ndarray, n_world: np.ndarray, frame: np.ndarray, chunk) -> np.ndarray:
     T = _IrradianceTables(L)
     g = T.grid
-    n = n_world @ frame.T
+    n = _snap_normals(g, n_world @ frame.T)
     nx, ny, nz = n[:, 0], n[:, 1], n[:, 2]
     nh = np.hypot(nx, ny)
     phin = np.arctan2(ny, nx)
