@@ -405,7 +405,7 @@ def _recommendation(entries: dict) -> dict:
 
     if all(e.get("relative_rmse") is None for e in entries.values()):
         return {"estimator": None, "rule": "the reference irradiance is zero everywhere (a black map): nothing to rank",
-                "ranking": [], "close_to_best": [], "excluded_for_bias": []}
+                "ranking": [], "close_to_best": [], "lowest_variance": None, "excluded_for_bias": []}
     candidates = [(n, e) for n, e in entries.items() if e.get("bias_consistent_with_zero")]
     fallback = not candidates
     pool = candidates if candidates else list(entries.items())
@@ -415,10 +415,15 @@ def _recommendation(entries: dict) -> dict:
             f"measured mean bias is within {BIAS_SIGMAS:g} standard errors (plus the reference accuracy) of zero")
     if fallback:
         rule += "; no estimator passed the bias check, so all were ranked (increase spp)"
+    with_var = [(n, e) for n, e in pool if e.get("variance_per_sample") is not None]
+    lowest = min(with_var, key=lambda item: item[1]["variance_per_sample"])[0] if with_var else None
     top = score(ranked[0])[1] if ranked else 0.0
     close = [n for n, e in ranked[1:] if score((n, e))[1] >= CLOSE_EFFICIENCY * top]
     return {"estimator": best, "rule": rule, "ranking": [n for n, _ in ranked],
             "close_to_best": close,
+            "lowest_variance": lowest,
+            "lowest_variance_means": "least variance per sample among the same estimators; unlike the "
+                                     "efficiency ranking it depends on the seed only, not on timings",
             "close_to_best_means": f"efficiency within {1 - CLOSE_EFFICIENCY:.0%} of the best: timing noise can swap them",
             "excluded_for_bias": sorted(n for n, e in entries.items() if e.get("bias_consistent_with_zero") is False)}
 

@@ -277,6 +277,7 @@ def test_same_seed_gives_identical_metrics_and_images(tmp_path):
     names = ("table", "mis-power", "one-sample-balance")
     a = verify_map(rgb, tmp_path / "a", spp=SPP, normals=GRID, estimators=names, seed=7, sphere=False)
     b = verify_map(rgb, tmp_path / "b", spp=SPP, normals=GRID, estimators=names, seed=7, sphere=False)
+    assert a["recommended"]["lowest_variance"] == b["recommended"]["lowest_variance"] is not None
     for doc in (a, b):
         doc.pop("outdir")
         # The ranking uses efficiency, which includes wall time.
