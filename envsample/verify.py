@@ -46,6 +46,9 @@ consistent with zero (``|mean_bias| <= 4 standard errors + the reference's accur
 All the estimators are unbiased in expectation; the measured bias fails that test
 when a bright light was missed (the sample variance then understates the error), so
 the rule discards estimators that were visibly unlucky at this sample count.
+Efficiency includes wall time, so near ties can swap between runs: the metrics list
+the estimators within 10% of the best (``close_to_best``) and, as a choice that
+depends on the seed alone, the one of least variance per sample (``lowest_variance``).
 
 The numbers are Monte Carlo estimates for preparing assets, not certified lighting
 calculations.
