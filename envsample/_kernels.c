@@ -17,40 +17,26 @@
 #include <stdint.h>
 
 /* alias_sweep(weights: float32 or float64 [h*ncol], is_double, row_scale: float64[h], ncol,
+ *             total: sum of the cell weights (float64, pairwise-summed by the caller),
  *             prob: float32[n] (out), alias: int32[n] (out))
- * Cell weight = weights[k] * row_scale[k / ncol]; p = n * weight / sum(weight) in double. */
+ * Cell weight = weights[k] * row_scale[k / ncol]; p = n * weight / sum(weight) in double.
+ *
+ * One branch-free pass lists the light cells (p < 1) from the front of a scratch
+ * buffer and the heavy ones (p >= 1) from its back, both in index order; the sweep
+ * then walks the two lists, so every memory access is sequential. */
 typedef struct {
     const void *w;
     int dbl;
     const double *scale;
-    Py_ssize_t ncol, n;
+    Py_ssize_t ncol;
     double c;
-    const int32_t *alias;
 } sweep_ctx;
 
-typedef struct {
-    Py_ssize_t k, row, col;
-} cursor;
-
-static inline double weight_at(const sweep_ctx *x, Py_ssize_t k, Py_ssize_t row) {
+/* p of cell k; *row tracks k's row for ascending k */
+static inline double p_at(const sweep_ctx *x, Py_ssize_t k, Py_ssize_t *row) {
+    while (k >= (*row + 1) * x->ncol) (*row)++;
     double v = x->dbl ? ((const double *)x->w)[k] : (double)((const float *)x->w)[k];
-    return v * x->scale[row];
-}
-
-static inline void cursor_step(const sweep_ctx *x, cursor *q) {
-    q->k++;
-    if (++q->col == x->ncol) { q->col = 0; q->row++; }
-}
-
-/* advance q (inclusive) to the next cell that is not final and is light (want_light) or heavy */
-static inline void cursor_seek(const sweep_ctx *x, cursor *q, int want_light) {
-    while (q->k < x->n) {
-        if (x->alias[q->k] == -1) {
-            int light = weight_at(x, q->k, q->row) * x->c < 1.0;
-            if (light == want_light) return;
-        }
-        cursor_step(x, q);
-    }
+    return v * x->scale[*row] * x->c;
 }
 
 /* float32 neighbour of p (p in [0, 1]) that moves a running error err = sum(s - p)
@@ -66,7 +52,8 @@ static PyObject *alias_sweep(PyObject *self, PyObject *args) {
     Py_buffer wb, sb, pb, ab;
     int dbl;
     Py_ssize_t ncol;
-    if (!PyArg_ParseTuple(args, "y*iy*nw*w*", &wb, &dbl, &sb, &ncol, &pb, &ab)) return NULL;
+    double total;
+    if (!PyArg_ParseTuple(args, "y*iy*ndw*w*", &wb, &dbl, &sb, &ncol, &total, &pb, &ab)) return NULL;
     Py_ssize_t n = pb.len / (Py_ssize_t)sizeof(float);
     Py_ssize_t esize = dbl ? (Py_ssize_t)sizeof(double) : (Py_ssize_t)sizeof(float);
     if (n <= 0 || ncol <= 0 || n % ncol != 0 || ab.len != n * (Py_ssize_t)sizeof(int32_t) || wb.len != n * esize ||
@@ -75,75 +62,66 @@ static PyObject *alias_sweep(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "alias_sweep: buffer sizes do not match");
         return NULL;
     }
+    int32_t *list = (int32_t *)PyMem_RawMalloc((size_t)n * sizeof(int32_t));
+    if (list == NULL) {
+        PyBuffer_Release(&wb); PyBuffer_Release(&sb); PyBuffer_Release(&pb); PyBuffer_Release(&ab);
+        return PyErr_NoMemory();
+    }
     float *prob = (float *)pb.buf;
     int32_t *alias = (int32_t *)ab.buf;
-    sweep_ctx x = {wb.buf, dbl, (const double *)sb.buf, ncol, n, 1.0, alias};
-    int all_zero = 0;
+    sweep_ctx x = {wb.buf, dbl, (const double *)sb.buf, ncol, 1.0};
     Py_BEGIN_ALLOW_THREADS
-    /* Kahan-Neumaier sum: a naive sum of 33 M cells drifts by ~1e-12 relative, which
-       the sweep would hand, times n, to the last heavy cell. */
-    double total = 0.0, comp = 0.0;
-    {
-        cursor q = {0, 0, 0};
-        for (; q.k < n; cursor_step(&x, &q)) {
-            double v = weight_at(&x, q.k, q.row), t = total + v;
-            comp += fabs(total) >= fabs(v) ? (total - t) + v : (v - t) + total;
-            total = t;
-        }
-        total += comp;
-    }
-    for (Py_ssize_t k = 0; k < n; k++) alias[k] = -1; /* -1: not yet final */
-    if (!(total > 0.0) || !isfinite(total)) {
-        all_zero = 1;
-    } else {
+    if (total > 0.0 && isfinite(total)) {
         x.c = (double)n / total;
-        cursor li = {0, 0, 0}, hj = {0, 0, 0};
-        cursor_seek(&x, &li, 1);
-        cursor_seek(&x, &hj, 0);
-        if (hj.k < n) {
-            /* w: exact residual of the current heavy.  err: mass the current heavy has
-               gained from float32 rounding of the probabilities stored so far in its run.
-               Each stored value is the float32 neighbour that keeps |err| smallest, so a
-               heavy serving many lights stays exact to about one float32 ulp. */
-            double w = weight_at(&x, hj.k, hj.row) * x.c, err = 0.0;
+        Py_ssize_t nl = 0, nh = 0, row = 0;
+        for (Py_ssize_t k = 0; k < n; k++) {
+            int light = p_at(&x, k, &row) < 1.0;
+            list[nl] = (int32_t)k;
+            list[n - 1 - nh] = (int32_t)k;
+            nl += light;
+            nh += !light;
+        }
+        Py_ssize_t i = 0, j = 0;
+        if (nh > 0) {
+            /* w: exact residual of the current heavy.  err = sum(s - p) over the float32
+               probabilities stored in its run: each is the float32 neighbour that keeps
+               |err| smallest, so a heavy serving many lights stays exact to ~1 ulp. */
+            Py_ssize_t lrow = 0, hrow = 0;
+            Py_ssize_t hk = list[n - 1];
+            double w = p_at(&x, hk, &hrow), err = 0.0;
             for (;;) {
                 if (w >= 1.0) {
-                    if (li.k >= n) break; /* no light left: the current heavy keeps the rest */
-                    double p = weight_at(&x, li.k, li.row) * x.c;
+                    if (i >= nl) break; /* no light left: the current heavy keeps the rest */
+                    Py_ssize_t lk = list[i++];
+                    double p = p_at(&x, lk, &lrow);
                     float s = round_toward(p, err);
                     err += (double)s - p; /* the heavy receives 1 - s instead of 1 - p */
-                    prob[li.k] = s;
-                    alias[li.k] = (int32_t)hj.k;
+                    prob[lk] = s;
+                    alias[lk] = (int32_t)hk;
                     w -= 1.0 - p;
-                    cursor_step(&x, &li);
-                    cursor_seek(&x, &li, 1);
                 } else {
-                    cursor nx = hj;
-                    cursor_step(&x, &nx);
-                    cursor_seek(&x, &nx, 0);
-                    if (nx.k >= n) break; /* rounding: no heavy left */
+                    if (j + 1 >= nh) break; /* rounding: no heavy left */
+                    Py_ssize_t nk = list[n - 2 - j];
                     double keep = w < 0.0 ? 0.0 : w;
                     /* the heavy's own bucket: keep + err would make its mass exact */
                     float s = round_toward(keep, -err);
-                    prob[hj.k] = s < 0.0f ? 0.0f : s;
-                    alias[hj.k] = (int32_t)nx.k;
-                    w = weight_at(&x, nx.k, nx.row) * x.c - (1.0 - keep);
-                    /* the next heavy receives 1 - s instead of 1 - keep */
-                    err = (double)s - keep;
-                    hj = nx;
+                    prob[hk] = s;
+                    alias[hk] = (int32_t)nk;
+                    w = p_at(&x, nk, &hrow) - (1.0 - keep);
+                    err = (double)s - keep; /* the next heavy receives 1 - s, not 1 - keep */
+                    hk = nk;
+                    j++;
                 }
             }
         }
-    }
-    /* whatever is not final keeps itself (all cells when the weights are all zero) */
-    for (Py_ssize_t k = 0; k < n; k++) {
-        if (alias[k] == -1) {
-            prob[k] = 1.0f;
-            alias[k] = (int32_t)k;
-        }
+        /* what the sweep did not reach keeps itself: lights left by rounding, the last heavies */
+        for (Py_ssize_t t = i; t < nl; t++) { prob[list[t]] = 1.0f; alias[list[t]] = list[t]; }
+        for (Py_ssize_t t = j; t < nh; t++) { Py_ssize_t k = list[n - 1 - t]; prob[k] = 1.0f; alias[k] = (int32_t)k; }
+    } else {
+        for (Py_ssize_t k = 0; k < n; k++) { prob[k] = 1.0f; alias[k] = (int32_t)k; }
     }
     Py_END_ALLOW_THREADS
-    (void)all_zero;
+    PyMem_RawFree(list);
     PyBuffer_Release(&wb); PyBuffer_Release(&sb); PyBuffer_Release(&pb); PyBuffer_Release(&ab);
     Py_RETURN_NONE;
 }
@@ -198,73 +176,104 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
     const double two_pi_w = 2.0 * M_PI / (double)w, pi_h = M_PI / (double)h;
     const double uvscale = (double)(h * w) / (2.0 * M_PI * M_PI);
     const Py_ssize_t n = h * w;
+    /* Samples go in blocks: each stage issues the block's independent memory reads
+       (prefetches, or one bisection step for every lane) before any of them is needed,
+       so cache misses overlap instead of queueing one sample at a time. */
+    enum { B = 32 };
     Py_BEGIN_ALLOW_THREADS
-    for (Py_ssize_t s = 0; s < N; s++) {
-        Py_ssize_t row, col;
-        double fu, fv;
+    const Py_ssize_t steps_h = (Py_ssize_t)ceil(log2((double)h)), steps_w = (Py_ssize_t)ceil(log2((double)w));
+    for (Py_ssize_t s0 = 0; s0 < N; s0 += B) {
+        const int m = (int)(N - s0 < B ? N - s0 : B);
+        Py_ssize_t rowv[B], colv[B];
+        double fuv[B], fvv[B];
         if (method == 0) {
-            double u0 = clamp_unit(u[2 * s]), u1 = clamp_unit(u[2 * s + 1]);
-            /* largest row with marg[row] <= u0 */
-            Py_ssize_t lo = 0, hi = h;
-            while (hi - lo > 1) {
-                Py_ssize_t mid = (lo + hi) >> 1;
-                if ((double)marg[mid] <= u0) lo = mid; else hi = mid;
+            double u0[B], u1[B];
+            Py_ssize_t lo[B], hi[B];
+            for (int t = 0; t < m; t++) {
+                u0[t] = clamp_unit(u[2 * (s0 + t)]);
+                u1[t] = clamp_unit(u[2 * (s0 + t) + 1]);
+                lo[t] = 0; hi[t] = h;
             }
-            row = lo;
-            double a = marg[row], b = marg[row + 1];
-            fv = b - a > 0.0 ? (u0 - a) / (b - a) : 0.0;
-            const float *cr = cond + row * (w + 1);
-            lo = 0; hi = w;
-            while (hi - lo > 1) {
-                Py_ssize_t mid = (lo + hi) >> 1;
-                if ((double)cr[mid] <= u1) lo = mid; else hi = mid;
+            /* largest row with marg[row] <= u0 (lanes with hi - lo == 1 are fixed points) */
+            for (Py_ssize_t st = 0; st < steps_h; st++)
+                for (int t = 0; t < m; t++) {
+                    Py_ssize_t mid = (lo[t] + hi[t]) >> 1;
+                    if ((double)marg[mid] <= u0[t]) lo[t] = mid; else hi[t] = mid;
+                }
+            for (int t = 0; t < m; t++) {
+                Py_ssize_t row = lo[t];
+                double a = marg[row], b2 = marg[row + 1];
+                double fv = b2 - a > 0.0 ? (u0[t] - a) / (b2 - a) : 0.0;
+                fvv[t] = fv < 0.0 ? 0.0 : (fv > 1.0 ? 1.0 : fv);
+                rowv[t] = row;
+                lo[t] = 0; hi[t] = w;
             }
-            col = lo;
-            a = cr[col]; b = cr[col + 1];
-            fu = b - a > 0.0 ? (u1 - a) / (b - a) : 0.0;
-            if (fu > 1.0) fu = 1.0;
-            if (fv > 1.0) fv = 1.0;
-            if (fu < 0.0) fu = 0.0;
-            if (fv < 0.0) fv = 0.0;
+            for (Py_ssize_t st = 0; st < steps_w; st++)
+                for (int t = 0; t < m; t++) {
+                    Py_ssize_t mid = (lo[t] + hi[t]) >> 1;
+                    if ((double)cond[rowv[t] * (w + 1) + mid] <= u1[t]) lo[t] = mid; else hi[t] = mid;
+                }
+            for (int t = 0; t < m; t++) {
+                const float *cr = cond + rowv[t] * (w + 1);
+                Py_ssize_t col = lo[t];
+                double a = cr[col], b2 = cr[col + 1];
+                double fu = b2 - a > 0.0 ? (u1[t] - a) / (b2 - a) : 0.0;
+                fuv[t] = fu < 0.0 ? 0.0 : (fu > 1.0 ? 1.0 : fu);
+                colv[t] = col;
+                __builtin_prefetch(cpdf + rowv[t] * w + col);
+            }
         } else {
-            double x = clamp_unit(u[2 * s]) * (double)n;
-            Py_ssize_t k = (Py_ssize_t)x;
-            if (k > n - 1) k = n - 1;
-            double frac = x - (double)k, p = (double)prob[k];
-            Py_ssize_t cell;
-            double q, rest;
-            if (frac < p) { cell = k; q = p; rest = frac; }
-            else { cell = alias[k]; q = 1.0 - p; rest = frac - p; }
-            fu = q > 0.0 ? rest / q : 0.0;
-            if (fu > 0x1.fffffffffffffp-1) fu = 0x1.fffffffffffffp-1;
-            double v1 = u[2 * s + 1];
-            fv = v1 < 0.0 ? 0.0 : (v1 > 1.0 ? 1.0 : v1);
-            row = cell / w;
-            col = cell - row * w;
+            Py_ssize_t kv[B];
+            double frac[B];
+            for (int t = 0; t < m; t++) {
+                double x = clamp_unit(u[2 * (s0 + t)]) * (double)n;
+                Py_ssize_t k = (Py_ssize_t)x;
+                if (k > n - 1) k = n - 1;
+                kv[t] = k;
+                frac[t] = x - (double)k;
+                __builtin_prefetch(prob + k);
+                __builtin_prefetch(alias + k);
+            }
+            for (int t = 0; t < m; t++) {
+                Py_ssize_t k = kv[t], cell;
+                double p = (double)prob[k], q, rest;
+                if (frac[t] < p) { cell = k; q = p; rest = frac[t]; }
+                else { cell = alias[k]; q = 1.0 - p; rest = frac[t] - p; }
+                double fu = q > 0.0 ? rest / q : 0.0;
+                if (fu > 0x1.fffffffffffffp-1) fu = 0x1.fffffffffffffp-1;
+                fuv[t] = fu;
+                double v1 = u[2 * (s0 + t) + 1];
+                fvv[t] = v1 < 0.0 ? 0.0 : (v1 > 1.0 ? 1.0 : v1);
+                rowv[t] = cell / w;
+                colv[t] = cell - rowv[t] * w;
+                __builtin_prefetch(cpdf + cell);
+            }
         }
-        fu = clamp_edge(fu, edge);
-        fv = clamp_edge(fv, edge);
-        Py_ssize_t cell = row * w + col;
-        double phi = ((double)col + fu) * two_pi_w + (rot - M_PI);
-        double pdf = (double)cpdf[cell], cos_t, sin_t;
-        if (mapping == 0) {
-            double c0 = cosE[row];
-            cos_t = (cosE[row + 1] - c0) * fv + c0;
-            double t = (1.0 - cos_t) * (1.0 + cos_t);
-            sin_t = sqrt(t > 0.0 ? t : 0.0);
-        } else {
-            double theta = pi_h * ((double)row + fv);
-            cos_t = cos(theta);
-            sin_t = sin(theta);
-            pdf = pdf * (rowsa[row] * uvscale) / sin_t;
+        for (int t = 0; t < m; t++) {
+            const Py_ssize_t s = s0 + t, row = rowv[t], col = colv[t];
+            const double fu = clamp_edge(fuv[t], edge), fv = clamp_edge(fvv[t], edge);
+            Py_ssize_t cell = row * w + col;
+            double phi = ((double)col + fu) * two_pi_w + (rot - M_PI);
+            double pdf = (double)cpdf[cell], cos_t, sin_t;
+            if (mapping == 0) {
+                double c0 = cosE[row];
+                cos_t = (cosE[row + 1] - c0) * fv + c0;
+                double tt = (1.0 - cos_t) * (1.0 + cos_t);
+                sin_t = sqrt(tt > 0.0 ? tt : 0.0);
+            } else {
+                double theta = pi_h * ((double)row + fv);
+                cos_t = cos(theta);
+                sin_t = sin(theta);
+                pdf = pdf * (rowsa[row] * uvscale) / sin_t;
+            }
+            double comp[3] = {sin_t * cos(phi), sin_t * sin(phi), cos_t};
+            double *d = dirs + 3 * s;
+            d[0] = sgn[0] * comp[idx[0]];
+            d[1] = sgn[1] * comp[idx[1]];
+            d[2] = sgn[2] * comp[idx[2]];
+            opdf[s] = pdf;
+            cells[s] = (int64_t)cell;
         }
-        double comp[3] = {sin_t * cos(phi), sin_t * sin(phi), cos_t};
-        double *d = dirs + 3 * s;
-        d[0] = sgn[0] * comp[idx[0]];
-        d[1] = sgn[1] * comp[idx[1]];
-        d[2] = sgn[2] * comp[idx[2]];
-        opdf[s] = pdf;
-        cells[s] = (int64_t)cell;
     }
     Py_END_ALLOW_THREADS
     Py_buffer *all[] = {&ub, &mb, &cb, &pb, &ab, &fb, &eb, &sb, &db, &ob, &kb};

@@ -389,6 +389,21 @@ def _directions(cf, cr, ca, axes) -> np.ndarray:
     return out
 
 
+def _row_channel_sums(image: np.ndarray) -> np.ndarray:
+    """Per-row, per-channel float64 sums of an (H, W, 3) image.
+
+    Rows are transposed in small blocks so numpy sums along a contiguous axis, where it
+    uses pairwise summation (about 7x faster than reducing over the middle axis).
+    """
+    H, W = image.shape[:2]
+    out = np.empty((H, 3), dtype=np.float64)
+    step = max(1, (1 << 18) // max(1, W))
+    for r0 in range(0, H, step):
+        block = np.ascontiguousarray(image[r0 : r0 + step].transpose(0, 2, 1))
+        out[r0 : r0 + step] = block.sum(axis=2, dtype=np.float64)
+    return out
+
+
 def _as_image(rgb):
     """Accept a MapImage-like object (with ``.rgb``) or an array; return (float32 (H,W,3), source dict)."""
     source = None
@@ -449,7 +464,7 @@ def build_table(
     # One float64 pass gives the per-channel integrals and detects NaN/Inf (they
     # poison their row's sum); float32 data cannot overflow a float64 sum.
     row_sa_full = row_solid_angles(H, W)
-    row_sums = image.sum(axis=1, dtype=np.float64)
+    row_sums = _row_channel_sums(image)
     if not np.isfinite(row_sums).all():
         raise MapValidationError("map has NaN or Inf pixels; repair them first (read with validate_map(repair=True))")
     if image.min() < 0:
