@@ -73,9 +73,10 @@ and a normal within :data:`SNAP_RADIANS` (1e-9 rad) of such a direction is first
 onto it, because at distances of the order of the rounding error the edge tests and the
 arc tests could disagree; the move changes E by at most 2e-9 x the integral of L.  The
 tests agree with adaptive quadrature (``scipy.integrate``, cell by cell) to 1e-11
-relative, and near-degenerate normals to the 1e-9 bound.  Where the horizon is almost
-tangent to a latitude circle the rounding of ``arccos`` (error ~ sqrt of the machine
-epsilon) can in principle cost up to ~1e-8 of the local radiance.
+relative, and near-degenerate normals to the 1e-9 bound.  The row of each horizon arc
+is found by counting latitude crossings from the horizon's highest point (each crossing
+moves it up or down one row, a direction known exactly), so a horizon tangent to a
+latitude circle is handled exactly as well.
 :func:`reference_accuracy` reports a self-consistency residual based on
 the exact identity ``E(n) - E(-n) = n . integral of L(w) w dw`` (the right-hand side
 from the unclamped closed form), and, if the map was reduced with ``size``, the

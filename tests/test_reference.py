@@ -275,6 +275,24 @@ def test_near_degenerate_normals_match_quadrature():
                                            atol=2 * SNAP_RADIANS * power + 1e-11)
 
 
+def test_horizon_tangent_to_a_latitude_edge():
+    """Normals whose horizon just touches a row edge (n_h = |mu_k|, and 1e-16 either side).
+
+    A grid of normals at pixel-centre polar angles hits this whenever the map height is a
+    multiple of twice the grid height.  Reference: scipy.integrate.dblquad cell by cell.
+    """
+    H, W = 6, 12
+    img = np.random.default_rng(27).random((H, W, 3))
+    F = _map_frame("y", 0.0)
+    for k, d, phi in ((1, 0.0, 0.0), (1, 0.0, -1.5), (2, 1e-16, -2.0), (5, 0.0, 2.5), (4, -1e-16, 2.9)):
+        mu_k = math.cos(math.pi * k / H)
+        nh = abs(mu_k) + d
+        nz = math.copysign(math.sqrt(1.0 - nh * nh), mu_k)
+        n = np.array([nh * math.cos(phi), nh * math.sin(phi), nz]) @ F
+        np.testing.assert_allclose(reference_irradiance(img, n), _dblquad_irradiance(img, n, "y", 0.0),
+                                   rtol=1e-11, atol=1e-12)
+
+
 def test_cell_cosine_integrals_closed_form():
     """Unclamped int_cell n.w dw against scipy.integrate.dblquad; sums over the sphere are exact.
 
