@@ -250,6 +250,9 @@ def _nested_quad_irradiance(img, normal, up, rotate_deg):
     return total
 
 
+# The outer quad meets a kink where the horizon crosses a row near the equator and may warn
+# that it stopped subdividing; the comparison below is what decides.
+@pytest.mark.filterwarnings("ignore::scipy.integrate.IntegrationWarning")
 def test_near_degenerate_normals_match_quadrature():
     """Horizons within 1e-17..1e-6 rad of the equator or of a meridian edge (30-degree columns).
 
