@@ -7,6 +7,7 @@ build      :func:`envsample.workflow.build_from_file`
 inspect    :func:`envsample.workflow.map_facts` / :func:`envsample.workflow.table_facts`
 vectors    :func:`envsample.workflow.golden_vectors` + :func:`envsample.workflow.write_vectors`
 sky        :func:`envsample.skies.make_sky` + :func:`envsample.io.write_map`
+verify     :func:`envsample.verify.verify_map`
 check      :func:`envsample.qa.check_map` (+ :func:`envsample.html.check_page` for --html)
 batch      :func:`envsample.batch.run_batch`
 demo       :func:`envsample.demo.run_demo`
@@ -275,11 +276,13 @@ def main(debug):
               help="Rotation of the map about the up axis, degrees.")
 @click.option("--compensate", is_flag=True, help="MIS-compensated table (sphere-mean luminance subtracted); "
               "valid only inside an MIS combination.")
+@click.option("--tune", is_flag=True, help="Run a short pilot and store the best one-sample MIS selection "
+              "(heuristic, table fraction, measured variance ratio) in the table's metadata.")
 @click.option("--raw", is_flag=True, help="Also write PREFIX.bin: little-endian arrays at offsets listed in the JSON.")
 @click.option("--repair", is_flag=True, help="Replace NaN/Inf pixels with 0 (and say how many) instead of refusing.")
 @click.option("--allow-aspect", is_flag=True, help="Accept a map that is not 2:1.")
 @click.option("--layer", default=None, metavar="NAME", help="EXR layer to read when the file has several.")
-def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_deg, compensate, raw, repair,
+def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_deg, compensate, tune, raw, repair,
           allow_aspect, layer):
     """Build the sampling table of MAP (.exr or .hdr).
 
@@ -290,7 +293,7 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
     from .workflow import ESTIMATE_CAVEAT, build_from_file
 
     printed: list[str] = []
-    stages = ("read", "check", "build", "save")
+    stages = ("read", "check", "build", "tune", "save") if tune else ("read", "check", "build", "save")
     with _warnings_as_lines(printed), _progress_bar(len(stages), "build") as bar:
         def progress(label):
             bar.n = stages.index(label) if label in stages else bar.n
@@ -299,7 +302,7 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
         result = build_from_file(
             map_path, prefix, raw=raw, repair=repair, allow_aspect=allow_aspect, layer=layer, progress=progress,
             size=size, primaries=primaries.lower(), mapping=mapping, uniform_mix=uniform_mix, up=up,
-            rotate_deg=rotate_deg, compensate=compensate,
+            rotate_deg=rotate_deg, compensate=compensate, tune=tune,
         )
         printed.extend(result.notes)
     t, img = result.table, result.image
@@ -314,6 +317,11 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
         ("integral", _rgb_line(t.integrals["rgb"], t.integrals["luminance"]) + "  (map units x sr)"),
         ("time", f"{result.seconds:.2f} s to build"),
     ]
+    rec = t.metadata.get("recommendation")
+    if rec:
+        rows.append(("tuned", f"one-sample MIS, {rec['heuristic']} heuristic, table fraction {rec['table_fraction']:g}: "
+                              f"variance {rec['variance_ratio']:.3g}x the default (balance, 0.5) "
+                              f"+- {rec['variance_ratio_se']:.2g}"))
     for k, note in enumerate(result.notes):
         rows.append(("note" if k == 0 else "", _flags(note)))
     for k, p in enumerate(result.paths):
@@ -596,6 +604,79 @@ def sky(kind, output, size, pixel_type, **given):
 
 
 sky.help = inspect.cleandoc(sky.help).replace("{kinds}", _sky_help())
+
+
+# --------------------------------------------------------------------------- verify
+
+
+@main.command()
+@click.argument("source", metavar="MAP_OR_TABLE", required=False, type=click.Path(path_type=Path))
+@click.option("-o", "--output", "outdir", type=click.Path(file_okay=False, path_type=Path),
+              help="Report folder (created if missing): metrics.json, EXR images, PNG pictures.")
+@click.option("--spp", type=click.IntRange(1, 1 << 16), default=64, show_default=True,
+              help="Samples per normal for each estimator.")
+@click.option("--normals", type=SIZE, default="128x64", show_default=True,
+              help="Grid of normals WIDTHxHEIGHT (a lat-long image of normals).")
+@click.option("--estimators", default=None, metavar="LIST",
+              help="Comma-separated estimator names (default: all irradiance estimators; see 'envsample verify --list').")
+@click.option("--roughness", type=click.FloatRange(1e-4, 1.0), default=None,
+              help="Also check glossy GGX reflection at this roughness (alpha).")
+@click.option("--seed", type=click.IntRange(0, None), default=0, show_default=True, help="Random seed (recorded).")
+@click.option("--table-size", type=SIZE, default=None, help="Table grid when SOURCE is a map (default: its size).")
+@click.option("--no-sphere", is_flag=True, help="Skip the picture of a shaded sphere.")
+@click.option("--list", "list_only", is_flag=True, is_eager=True, expose_value=True,
+              help="List the estimator names and exit.")
+def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size, no_sphere, list_only):
+    """Render irradiance over a sphere of normals with every sampling strategy and
+    MIS combination, compare with the exact reference, and say which is best.
+
+    Writes metrics.json (relative RMSE, bias with its standard error, variance,
+    firefly index, time per sample, efficiency, the recommended estimator), EXR
+    images of the reference and each estimate, error heat maps and a convergence plot.
+    """
+    from .mis import estimators as estimator_names
+    from .verify import verify_map
+
+    if list_only:
+        click.echo("\n".join(estimator_names("irradiance")))
+        return 0
+    if source is None or outdir is None:
+        raise click.UsageError("give MAP_OR_TABLE and -o OUTDIR (or --list)")
+    names = None if estimators is None else [e.strip() for e in estimators.split(",") if e.strip()]
+    with _progress_bar(0, "verify") as bar:
+        def progress(label):
+            bar.set_description(label)
+            bar.refresh()
+
+        m = verify_map(source, outdir, spp=spp, normals=normals, estimators=names, roughness=roughness, seed=seed,
+                       table_size=table_size, sphere=not no_sphere, progress=progress)
+    tab = m["table"]
+    ref = m["reference"]
+    _rows([
+        ("verify", f"{source}  (table {tab['cells'][0]}x{tab['cells'][1]}, {tab['mapping']})"),
+        ("normals", f"{m['normals']['width']}x{m['normals']['height']} x {m['spp']} spp, seed {m['seed']}"),
+        ("reference", f"exact, relative error bound {ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s)"),
+    ])
+    click.echo("")
+    head = f"{'estimator':<20} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}  {'ns/sample':>9}  {'efficiency':>10}"
+    click.echo(head)
+    rec = m["recommended"]
+    for name, e in m["estimators"].items():
+        bias = f"{e['mean_bias']:+.3f} +- {e['mean_bias_se']:.3f}"
+        # An unbiased estimator whose mean is many SE off has missed rare, bright samples (the sun).
+        mark = "  <- recommended" if name == rec["estimator"] else ("" if e["bias_consistent_with_zero"]
+                                                                   else "  (mean off: misses rare bright light)")
+        click.echo(f"{name:<20} {e['relative_rmse']:>9.4g}  {bias:>17}  {e['firefly_index']:>8.3g}  "
+                   f"{e['time_per_sample_s'] * 1e9:>9.0f}  {e['efficiency']:>10.3g}{mark}")
+    click.echo("")
+    _rows([
+        ("recommended", f"{rec['estimator']} (highest efficiency among estimators whose bias is within 4 SE; "
+                        f"least variance: {rec['lowest_variance']})"),
+        ("wrote", f"{outdir}/ (metrics.json and {len(list(Path(outdir).glob('*.exr')))} EXR, "
+                  f"{len(list(Path(outdir).glob('*.png')))} PNG files)"),
+    ])
+    click.echo(f"({m['caution']})")
+    return 0
 
 
 # --------------------------------------------------------------------------- check

@@ -152,6 +152,7 @@ def build_from_file(
     allow_aspect: bool = False,
     layer: str | None = None,
     make_dirs: bool = True,
+    tune: bool = False,
     progress: Progress | None = None,
     **build_options,
 ) -> BuildResult:
@@ -167,6 +168,8 @@ def build_from_file(
     make_dirs : create the prefix's folder if it is missing.  It is created only
         after the map was read, validated and its table built, so bad input
         writes nothing at all.
+    tune : also run the one-sample MIS tuning pilot (:func:`envsample.verify.recommend`)
+        and store its result in the table's metadata under ``"recommendation"``.
     progress : called with a short label before each stage.
     build_options : passed to :func:`envsample.table.build_table` (size,
         primaries, mapping, uniform_mix, up, rotate_deg, compensate).
@@ -185,6 +188,11 @@ def build_from_file(
     table = build_table(image, **build_options)
     seconds = time.perf_counter() - start
     notes = list(notes) + [n for n in table.metadata.get("notes", []) if n not in notes]
+    if tune:
+        from .verify import recommend
+
+        _tick(progress, "tune")
+        table.metadata["recommendation"] = recommend(table)
     _tick(progress, "save")
     if make_dirs and not out.parent.exists():
         out.parent.mkdir(parents=True)
