@@ -121,7 +121,8 @@ import math
 import numpy as np
 
 from .errors import MapValidationError
-from .sphere import UP_AXES, orthonormal_basis
+from .sphere import UP_AXES, orthonormal_basis, row_solid_angles
+from .strategies import MIN_ROUGHNESS, Frame, GGXReflection
 from .table import parse_size, reduce_power
 
 __all__ = [
@@ -150,7 +151,7 @@ _UNIT_TOLERANCE = 1e-6
 #: it, so the coincidence is resolved exactly; E moves by at most twice this x integral of L.
 SNAP_RADIANS = 1e-9
 
-#: Work per chunk of normals, in (normals x (H + W)) elements; bounds temporaries to tens of MB.
+#: Work per chunk of normals, in (normals x (2H + W)) elements; bounds temporaries to ~150 MB.
 _CHUNK_ELEMENTS = 1_000_000
 
 
@@ -264,8 +265,8 @@ class _Grid:
         c = np.where(quarter, np.array([1.0, 0.0, -1.0, 0.0, 1.0])[np.minimum(qi, 4)], c)
         sn = np.where(quarter, np.array([0.0, 1.0, 0.0, -1.0, 0.0])[np.minimum(qi, 4)], sn)
         if width % 2 == 0:  # exact antipodes: the two halves of one meridian plane
-            half = width // 2
-            c[half:width], sn[half:width] = -c[:half], -sn[:half]
+            hw = width // 2
+            c[hw:width], sn[hw:width] = -c[:hw], -sn[:hw]
             c[width], sn[width] = c[0], sn[0]
         # phi = -pi + 2 pi m / W, so cos(phi) = -cos(ang), sin(phi) = -sin(ang).
         self.cph, self.sph = -c, -sn
@@ -639,7 +640,9 @@ def reference_accuracy(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0, 
     the identity is exact, so this measures the rounding of the clipping machinery.
     ``resolution_change``: when ``size`` reduces the map, max ``|E_size - E_full| / scale``
     over the same normals (the error caused by the reduction), else ``None``.
-    ``relative_error_bound``: the larger of the two (a conservative statement for the report).
+    ``snap_bound``: ``2 * SNAP_RADIANS * integral of |L| dw / scale``, a bound on what moving
+    near-degenerate normals onto their degenerate direction can change.
+    ``relative_error_bound``: the largest of the three (a conservative statement for the report).
     """
     full = _map_array(rgb)
     L = _prepare_map(full, size)
@@ -656,12 +659,15 @@ def reference_accuracy(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0, 
     if L.shape != full.shape:
         e_full = _irradiance(full, n, frame, chunk)
         change = float(np.max(np.abs(e_pos - e_full))) / scale if n.size else 0.0
+    power = float(np.max(np.einsum("i,ijc->c", row_solid_angles(L.shape[0], L.shape[1]), np.abs(L))))
+    snap = 2.0 * SNAP_RADIANS * power / scale
     return {
         "method": "exact integral of the piecewise-constant map (boundary form of Stokes' theorem)",
         "resolution": [int(L.shape[1]), int(L.shape[0])],
         "identity_residual": resid,
         "resolution_change": change,
-        "relative_error_bound": max(resid, change or 0.0),
+        "snap_bound": snap,
+        "relative_error_bound": max(resid, change or 0.0, snap),
     }
 
 
@@ -690,8 +696,6 @@ def _pair_vectors(normals, wo, roughness):
     n = np.broadcast_to(n.reshape(lead + (3,)), shape + (3,)).reshape(count, 3)
     w = np.broadcast_to(w.reshape(lead_w + (3,)), shape + (3,)).reshape(count, 3)
     r = np.broadcast_to(r, shape).reshape(count)
-    from .strategies import MIN_ROUGHNESS
-
     if not np.all(np.isfinite(r)) or np.any(r < MIN_ROUGHNESS) or np.any(r > 1.0):
         raise ValueError(f"roughness (GGX alpha) must lie in [{MIN_ROUGHNESS}, 1]; got {r.min()}..{r.max()}")
     return n, w, r, shape
@@ -699,8 +703,6 @@ def _pair_vectors(normals, wo, roughness):
 
 def _glossy_kernel(d_world, n, wo, alpha):
     """f(d, wo) max(0, n.d) of the strategies' GGX reflection for one (n, wo, alpha), 1/sr."""
-    from .strategies import Frame, GGXReflection
-
     m = d_world.shape[0]
     frame = Frame(np.broadcast_to(n, (m, 3)), np.broadcast_to(wo, (m, 3)), np.full(m, alpha))
     f = GGXReflection().eval(d_world, frame)

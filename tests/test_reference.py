@@ -477,9 +477,10 @@ def test_size_reduces_with_the_table_filter_and_accuracy_reports_it():
     assert acc["resolution"] == [32, 16]
     assert acc["identity_residual"] < 1e-12
     assert 1e-6 < acc["resolution_change"] < 0.2
-    assert acc["relative_error_bound"] == max(acc["identity_residual"], acc["resolution_change"])
+    assert acc["relative_error_bound"] == max(acc["identity_residual"], acc["resolution_change"], acc["snap_bound"])
     full = reference_accuracy(img, n)
     assert full["resolution_change"] is None and full["identity_residual"] < 1e-12
+    assert 0 < full["snap_bound"] < 1e-7 and full["relative_error_bound"] == full["snap_bound"]
 
 
 def test_chunking_and_repetition_do_not_change_results():
