@@ -561,6 +561,18 @@ def test_glossy_white_map_gives_ggx_albedo(alpha):
         assert 0.0 < value[0] <= 1.0 + ALBEDO_ATOL  # energy conservation with F = 1
 
 
+def test_glossy_follows_the_map_convention():
+    """Up axis and rotation move the glossy reference like the map (convention of envsample.sphere)."""
+    img = np.random.default_rng(29).random((16, 32, 3))
+    n = _unit([0.2, 0.7, -0.4])
+    wo = _unit(n + np.array([0.5, 0.0, 0.3]))
+    base = reference_glossy(img, n, wo, 0.3)
+    for up, rot in (("z", 0.0), ("z", 70.0), ("y", -120.0)):
+        move = _map_frame(up, rot).T @ _map_frame("y", 0.0)  # world(y, 0) -> world(up, rot)
+        np.testing.assert_allclose(reference_glossy(img, move @ n, move @ wo, 0.3, up=up, rotate_deg=rot),
+                                   base, rtol=1e-6)
+
+
 def test_glossy_view_below_surface_gives_zero():
     """A view direction below the surface receives no reflection (common practice)."""
     img = np.ones((16, 32, 3))
