@@ -847,12 +847,15 @@ def demo(outdir, width, as_json):
 
 
 def _print_demo(s: dict) -> None:
-    header = ("map", "size", "integral Y", "brightest (az, el)", "table", "build")
+    header = ("map", "size", "integral Y", "brightest (az, el)", "table", "build", "check", "best sampling (rel. RMSE)")
+    checks = s.get("extra", {}).get("checks", {})
+    verified = s.get("extra", {}).get("verify", {})
     lines = []
     for m in s["maps"]:
         if "size" not in m:
             continue
         b = m["brightest"]
+        v = verified.get(m["name"])
         lines.append((
             m["name"],
             f"{m['size'][0]}x{m['size'][1]}",
@@ -860,6 +863,9 @@ def _print_demo(s: dict) -> None:
             f"{b['azimuth_deg']:.1f}, {b['elevation_deg']:.1f} deg",
             f"{m['table_size'][0]}x{m['table_size'][1]}",
             f"{m['build_seconds']:.2f} s",
+            checks.get(m["name"], {}).get("verdict", "-"),
+            (f"{v['recommended']} ({v['relative_rmse']:.3g}"
+             + (f"; cosine {v['cosine_relative_rmse']:.3g})" if v["recommended"] != "cosine" else ")")) if v else "-",
         ))
     widths = [max(len(r[i]) for r in [header] + lines) for i in range(len(header))]
     click.echo(f"demo in {s['outdir']}: invented scenes, generated here ({len(s['files'])} files, "
@@ -872,6 +878,8 @@ def _print_demo(s: dict) -> None:
         click.echo(f"{m['name']:<{widths[0]}}  {m['description']}")
     for v in s["vectors"]:
         click.echo(f"golden vectors: {v['path']} ({v['count']}, seed {v['seed']})")
+    if checks or verified:
+        click.echo(f"reports: {s['outdir']}/reports/<map>/check.html and verify/metrics.json")
     first = next((m for m in s["maps"] if "table_files" in m), None)
     if first is not None:
         json_file = next(p for p in first["table_files"] if p.endswith(".json"))

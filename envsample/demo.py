@@ -143,14 +143,62 @@ def _vectors_step(scene: DemoScene) -> DemoStep:
     return DemoStep(f"golden vectors for {scene.name}", run)
 
 
+#: Validation render settings of the demo: small enough to take seconds per map.
+DEMO_VERIFY_SPP = 32
+DEMO_VERIFY_SEED = 7
+
+
+def _check_step(scene: DemoScene) -> DemoStep:
+    def run(ctx: DemoContext) -> None:
+        from .html import check_page
+        from .qa import check_map
+
+        info = ctx.scenes[scene.name]
+        report = check_map(info["map"])
+        verified = ctx.extra.get("verify", {}).get(scene.name)
+        page = check_page([report], ctx.path("reports", scene.name, "check.html"),
+                          images=[ctx.tables[scene.name].image],
+                          verify_dirs=[verified["folder"]] if verified else None)
+        ctx.files.append(page)
+        ctx.extra.setdefault("checks", {})[scene.name] = {
+            "verdict": report.verdict, "page": str(page), "counts": report.counts(),
+        }
+
+    return DemoStep(f"check {scene.name}", run)
+
+
+def _verify_step(scene: DemoScene) -> DemoStep:
+    def run(ctx: DemoContext) -> None:
+        from .verify import verify_map
+
+        normals = (min(64, ctx.width // 2), min(32, ctx.width // 4))
+        out = ctx.path("reports", scene.name, "verify")
+        m = verify_map(ctx.tables[scene.name].table, out, spp=DEMO_VERIFY_SPP, normals=normals,
+                       seed=DEMO_VERIFY_SEED, sphere=False)
+        ctx.files.append(out / "metrics.json")
+        rec = m["recommended"]["estimator"]
+        ctx.extra.setdefault("verify", {})[scene.name] = {
+            "folder": str(out),
+            "recommended": rec,
+            "relative_rmse": m["estimators"][rec]["relative_rmse"],
+            "cosine_relative_rmse": m["estimators"].get("cosine", {}).get("relative_rmse"),
+        }
+
+    return DemoStep(f"verify {scene.name}", run)
+
+
 def demo_steps(scenes: Sequence[DemoScene] = DEMO_SCENES) -> list[DemoStep]:
-    """The demo's steps in order: make every map, build every table, then write golden vectors.
+    """The demo's steps in order: make every map, build every table, write golden vectors,
+    render every map's validation report, then check every map (an HTML page each,
+    with the validation pictures).
 
     Later features append steps to this list (a step sees every earlier result in the context).
     """
     steps = [_make_map_step(s) for s in scenes]
     steps += [_build_step(s) for s in scenes]
     steps += [_vectors_step(s) for s in scenes if s.vectors]
+    steps += [_verify_step(s) for s in scenes]
+    steps += [_check_step(s) for s in scenes]
     return steps
 
 

@@ -116,7 +116,9 @@ def test_demo_steps_can_be_extended_and_report_progress(tmp_path):
     steps = demo_steps() + [DemoStep("count tables", extra)]
     summary = run_demo(tmp_path / "d", width=32, steps=steps, progress=lambda *a: calls.append(a))
     assert seen["tables"] == sorted(s.name for s in DEMO_SCENES)
-    assert summary["extra"] == {"checked": len(DEMO_SCENES)}
+    assert summary["extra"]["checked"] == len(DEMO_SCENES)
+    # The built-in verify and check steps report one entry per scene.
+    assert set(summary["extra"]["verify"]) == set(summary["extra"]["checks"]) == {s.name for s in DEMO_SCENES}
     n = len(steps)
     assert calls == [(s.label, k, n) for k, s in enumerate(steps)] + [("done", n, n)]
 
@@ -138,7 +140,8 @@ def test_demo_command(tmp_path):
     lines = result.stdout.splitlines()
     assert lines[0].startswith(f"demo in {out}: invented scenes")
     header = next(k for k, line in enumerate(lines) if line.startswith("map "))
-    assert lines[header].split() == ["map", "size", "integral", "Y", "brightest", "(az,", "el)", "table", "build"]
+    assert lines[header].split() == ["map", "size", "integral", "Y", "brightest", "(az,", "el)", "table", "build",
+                                     "check", "best", "sampling", "(rel.", "RMSE)"]
     rows = [line.split()[0] for line in lines[header + 1 : header + 1 + len(DEMO_SCENES)]]
     assert rows == [s.name for s in DEMO_SCENES]
     assert f"next: envsample inspect {out}/tables/rooftop.json" in result.stdout
