@@ -81,6 +81,21 @@ _EXPORTS = {
     "ProfileError": "qa",
     "format_report": "qa",
     "report_to_json": "qa",
+    # reference and verify
+    "reference_irradiance": "reference",
+    "reference_accuracy": "reference",
+    "reference_glossy": "reference",
+    "sh9_project": "reference",
+    "sh9_irradiance": "reference",
+    "verify_map": "verify",
+    "tune_one_sample": "verify",
+    "recommend": "verify",
+    # reports and batch
+    "check_page": "html",
+    "index_page": "html",
+    "run_batch": "batch",
+    "BatchResult": "batch",
+    "BatchInterrupted": "batch",
     # workflow and demo
     "build_from_file": "workflow",
     "golden_vectors": "workflow",
