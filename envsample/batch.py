@@ -155,7 +155,7 @@ ROW_FIELDS = (
     "sun_share",
     "irradiance_up",
     "sampling_relative_rmse",
-    "firefly_index",
+    "peak_sample_share",
     "luminance_integral",
     "table_width",
     "table_height",
@@ -469,7 +469,7 @@ def _report_figures(report) -> dict:
 
     The same figures as a row of the HTML index (:func:`envsample.html.report_row`):
     dynamic range in stops, the sun-like emitter (degrees, share of the light), the
-    sampling check's relative RMSE and firefly index, the irradiance on an up-facing
+    sampling check's relative RMSE and peak sample share, the irradiance on an up-facing
     surface (map units x sr).
     """
     from .html import report_row

@@ -104,7 +104,7 @@ INDEX_ROW_KEYS = {
     "sun_azimuth_deg": "float: azimuth of the sun-like emitter, deg",
     "sun_elevation_deg": "float: elevation of the sun-like emitter, deg",
     "sun_share": "float: the sun's share of the light (fraction, shown in %)",
-    "firefly_index": "float: sampling check, graded estimator: largest single-sample term / mean irradiance",
+    "peak_sample_share": "float: sampling check, graded estimator: largest single-sample term / mean irradiance",
     "sampling_relative_rmse": "float: relative RMSE of the graded estimator in the sampling check",
     "irradiance_up": "float: irradiance on an up-facing surface, map units x sr (lx when calibrated)",
     "failed_checks": "list of str: ids of failed checks",
@@ -660,7 +660,7 @@ def _figure_items(rep: dict) -> list[tuple[str, str]]:
                       if row.get("sun_share") is not None else "\u2014"))
     else:
         items.append(("sun", "none detected"))
-    items.append(("firefly index (largest sample / mean E)", _num(row.get("firefly_index"), 3)))
+    items.append(("peak sample share (largest sample / mean E)", _num(row.get("peak_sample_share"), 3)))
     items.append(("sampling relative RMSE", _num(row.get("sampling_relative_rmse"), 3)))
     ll = _check(rep, "light-level")
     unit = "lx" if ll and (ll.get("details") or {}).get("unit") == "lx" else "map units \u00d7 sr"
@@ -807,7 +807,7 @@ def report_row(report, *, name: str | None = None, thumbnail=None, page: str | N
 
     The key figures come from the checks: ``dynamic_range`` (stops) from
     ``dynamic-range``; the first sun-like emitter of ``sun`` (azimuth and elevation in
-    degrees, share as a fraction); ``firefly_index`` and ``sampling_relative_rmse`` of
+    degrees, share as a fraction); ``peak_sample_share`` and ``sampling_relative_rmse`` of
     the graded estimator of ``sampling``; ``irradiance_up`` from ``light-level``.
     Missing checks give None.
     """
@@ -838,7 +838,7 @@ def report_row(report, *, name: str | None = None, thumbnail=None, page: str | N
     sampling = _check(rep, "sampling") or {}
     det = sampling.get("details") or {}
     graded = (det.get("estimators") or {}).get(det.get("estimator")) or {}
-    row["firefly_index"] = _number(graded.get("firefly_index"))
+    row["peak_sample_share"] = _number(graded.get("peak_sample_share"))
     row["sampling_relative_rmse"] = _number(sampling.get("value"))
     ll = _check(rep, "light-level")
     row["irradiance_up"] = _number((ll or {}).get("value"))
@@ -922,7 +922,7 @@ def _index_row(row: Mapping, k: int, base: Path) -> str:
         f'<td class="num">{_esc(_num(_number(row.get("dynamic_range")), 3))}</td>',
         f'<td class="num">{sun}</td>',
         f'<td class="num">{_esc(_num(100.0 * share, 3)) if share is not None else _num(None)}</td>',
-        f'<td class="num">{_esc(_num(_number(row.get("firefly_index")), 3))}</td>',
+        f'<td class="num">{_esc(_num(_number(row.get("peak_sample_share")), 3))}</td>',
         f'<td class="num">{_esc(_num(_number(row.get("irradiance_up")), 4))}</td>',
     ]
     return f'<tr class="r-{verdict}">' + "".join(cells) + "</tr>"
@@ -950,7 +950,7 @@ def index_page(rows: Sequence[Mapping], path, *, title: str | None = None) -> Pa
     summary = f"{_maps(len(rows))}: {counts}" + (f" \u00b7 {skipped} up to date, not redone" if skipped else "")
     heads = ["picture", "map", "verdict", "problems", "size <small>(px)</small>",
              "dynamic range <small>(stops)</small>", "sun elevation <small>(deg)</small>",
-             "sun share <small>(% of light)</small>", "firefly index <small>(largest sample / mean E)</small>",
+             "sun share <small>(% of light)</small>", "peak sample share <small>(largest sample / mean E)</small>",
              "irradiance up <small>(map units \u00d7 sr, estimate)</small>"]
     table = ("<table class=\"index\"><thead><tr>" + "".join(f"<th>{h}</th>" for h in heads) + "</tr></thead>"
              f"<tbody>{''.join(body_rows)}</tbody></table>")

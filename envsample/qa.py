@@ -1157,13 +1157,13 @@ def _fibonacci_normals(n: int) -> np.ndarray:
 
 
 def _estimate_errors(table, normals, ref, *, estimator, spp, repeats, seed, primaries) -> dict:
-    """Relative RMSE and firefly index of one estimator over ``repeats`` independent estimates per normal.
+    """Relative RMSE and peak sample share of one estimator over ``repeats`` independent estimates per normal.
 
     Both are pooled over the normals and scaled by the mean reference irradiance, so a
     normal facing black ground (E ~ 0) does not make them meaningless:
 
     * relative RMSE = sqrt(mean over normals and repeats of (E_est - E_ref)^2) / mean(E_ref);
-    * firefly index = largest single-sample term of one estimate (contribution / spp)
+    * peak sample share = largest single-sample term of one estimate (contribution / spp)
       divided by mean(E_ref): above 1, one sample alone outshines a typical pixel.
     """
     from .mis import estimate_irradiance
@@ -1176,7 +1176,7 @@ def _estimate_errors(table, normals, ref, *, estimator, spp, repeats, seed, prim
     scale = float(ref.mean())
     return {
         "relative_rmse": float(math.sqrt(mse.mean()) / scale),
-        "firefly_index": float(np.max(samples.contributions) / spp / scale),
+        "peak_sample_share": float(np.max(samples.contributions) / spp / scale),
         "worst_normal": int(np.argmax(mse)),
     }
 
@@ -1239,15 +1239,15 @@ def _check_sampling(ctx: CheckContext) -> CheckResult:
                "table_size": list(size), "estimator": graded,
                "mean_reference": float(ref.mean()), "estimators": errors, "advice": advice}
     summary = ", ".join(f"{k} {_fmt(v['relative_rmse'])}" for k, v in errors.items())
-    ff = ", ".join(f"{k} {_fmt(v['firefly_index'])}" for k, v in errors.items())
-    msg = f"{s['spp']} spp on the map reduced to {size[0]}x{size[1]}: relative RMSE {summary}; firefly index {ff}"
+    ff = ", ".join(f"{k} {_fmt(v['peak_sample_share'])}" for k, v in errors.items())
+    msg = f"{s['spp']} spp on the map reduced to {size[0]}x{size[1]}: relative RMSE {summary}; peak sample share {ff}"
     value = rec["relative_rmse"]
     if value > s["fail_rmse"]:
         sev, limit = "fail", s["fail_rmse"]
     elif value > s["warn_rmse"]:
         sev, limit = "warn", s["warn_rmse"]
-    elif rec["firefly_index"] > s["warn_firefly"]:
-        sev, limit = "warn", s["warn_firefly"]
+    elif rec["peak_sample_share"] > s["warn_peak_share"]:
+        sev, limit = "warn", s["warn_peak_share"]
         msg += f" ({graded} has fireflies)"
     else:
         sev, limit = "pass", s["warn_rmse"]

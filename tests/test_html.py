@@ -416,7 +416,7 @@ def test_report_row_takes_the_key_figures_from_the_checks(maps):
     assert (row["width"], row["height"]) == (WIDTH, WIDTH // 2)
     assert row["sampling_relative_rmse"] == r["sampling"].value
     d = r["sampling"].details
-    assert row["firefly_index"] == d["estimators"][d["estimator"]]["firefly_index"]
+    assert row["peak_sample_share"] == d["estimators"][d["estimator"]]["peak_sample_share"]
     assert row["irradiance_up"] == r["light-level"].value
     sun = [e for e in r["sun"].details["emitters"] if e["sun_like"]][0]
     assert (row["sun_azimuth_deg"], row["sun_elevation_deg"], row["sun_share"]) == (

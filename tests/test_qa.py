@@ -399,7 +399,7 @@ def test_sampling_table_only_rmse_on_a_uniform_map_matches_theory():
 
 def test_sampling_mis_terms_stay_under_the_balance_heuristic_bound():
     """Veach 1997 (eq. 9.4, balance heuristic), half the samples from the table: every term is
-    at most 2 L cos / p_table <= 2 integral(L dw), so firefly index <= 2 integral / (spp mean E).
+    at most 2 L cos / p_table <= 2 integral(L dw), so peak sample share <= 2 integral / (spp mean E).
     At 64 px the sun pixel is large enough for cosine samples to hit it (about 10 hits
     expected), and those terms break the bound by far."""
     img = sunny(64)
@@ -408,8 +408,8 @@ def test_sampling_mis_terms_stay_under_the_balance_heuristic_bound():
     y = img.astype(np.float64) @ np.array([0.212639, 0.715169, 0.072192])
     total = float((y * row_solid_angles(32, 64)[:, None]).sum())
     bound = 2.0 * total / (d["spp"] * d["mean_reference"])
-    assert d["estimators"]["mis-balance"]["firefly_index"] <= bound * (1 + 1e-4)
-    assert d["estimators"]["cosine"]["firefly_index"] > bound  # cosine sampling hits the sun rarely and hard
+    assert d["estimators"]["mis-balance"]["peak_sample_share"] <= bound * (1 + 1e-4)
+    assert d["estimators"]["cosine"]["peak_sample_share"] > bound  # cosine sampling hits the sun rarely and hard
 
 
 def test_sampling_fails_when_the_graded_estimator_is_cosine_only():
