@@ -1164,9 +1164,11 @@ def _estimate_errors(table, normals, ref, *, estimator, spp, repeats, seed, prim
 
     * relative RMSE = sqrt(mean over normals and repeats of (E_est - E_ref)^2) / mean(E_ref);
     * peak sample share = largest single-sample term of one estimate (contribution / spp)
-      divided by mean(E_ref): above 1, one sample alone outshines a typical pixel.
+      divided by mean(E_ref): above 1, one sample alone outshines a typical pixel;
+    * firefly index = largest sample / mean sample, pooled (:func:`envsample.mis.firefly_index`,
+      the same figure ``envsample verify`` reports).
     """
-    from .mis import estimate_irradiance
+    from .mis import estimate_irradiance, firefly_index
 
     n = normals.shape[0]
     est, samples = estimate_irradiance(table, np.repeat(normals, repeats, axis=0), estimator=estimator, spp=spp,
@@ -1177,6 +1179,7 @@ def _estimate_errors(table, normals, ref, *, estimator, spp, repeats, seed, prim
     return {
         "relative_rmse": float(math.sqrt(mse.mean()) / scale),
         "peak_sample_share": float(np.max(samples.contributions) / spp / scale),
+        "firefly_index": float(firefly_index(samples.contributions)),
         "worst_normal": int(np.argmax(mse)),
     }
 
@@ -1239,8 +1242,10 @@ def _check_sampling(ctx: CheckContext) -> CheckResult:
                "table_size": list(size), "estimator": graded,
                "mean_reference": float(ref.mean()), "estimators": errors, "advice": advice}
     summary = ", ".join(f"{k} {_fmt(v['relative_rmse'])}" for k, v in errors.items())
-    ff = ", ".join(f"{k} {_fmt(v['peak_sample_share'])}" for k, v in errors.items())
-    msg = f"{s['spp']} spp on the map reduced to {size[0]}x{size[1]}: relative RMSE {summary}; peak sample share {ff}"
+    ff = ", ".join(f"{k} {_fmt(v['firefly_index'])}" for k, v in errors.items())
+    ps = ", ".join(f"{k} {_fmt(v['peak_sample_share'])}" for k, v in errors.items())
+    msg = (f"{s['spp']} spp on the map reduced to {size[0]}x{size[1]}: relative RMSE {summary}; "
+           f"firefly index (largest / mean sample) {ff}; peak sample share (largest sample / mean E) {ps}")
     value = rec["relative_rmse"]
     if value > s["fail_rmse"]:
         sev, limit = "fail", s["fail_rmse"]
