@@ -735,6 +735,8 @@ def _deg(x: float) -> str:
 
 def _pct(fraction: float) -> str:
     p = 100.0 * fraction
+    if 0.0 < p < 1e-3:
+        return "<0.001%"  # rounding residue of a black region; more digits would only mislead
     return f"{p:.2g}%" if p < 1 else f"{p:.3g}%"
 
 
@@ -850,7 +852,7 @@ def _count_check(ctx: CheckContext, check_id: str, bad: np.ndarray, what: str) -
         check_id, "fail", value=count, threshold=s["max_pixels"],
         message=(f"{count} pixel{'s' if count > 1 else ''} ({_pct(frac)}) "
                  f"{'have' if count > 1 else 'has'} a {what} channel, first at row {r}, column {c}"),
-        remedy="fix them at the source, or read with validate_map(repair=True), which sets them to 0",
+        remedy="fix them at the source, or repair them to 0 (envsample build --repair; validate_map(repair=True) in Python)",
         details={"first_row": int(r), "first_column": int(c), "fraction": frac},
     )
 
