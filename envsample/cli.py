@@ -799,8 +799,9 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
     for m in result.maps:
         if m.verdict == "pass":
             continue
-        detail = m.error or ", ".join(
-            f"{k}" for k in (m.figures.get("failed_checks") or []) + (m.figures.get("warned_checks") or [])) or ""
+        failed, warned = m.figures.get("failed_checks") or [], m.figures.get("warned_checks") or []
+        detail = m.error or "; ".join(
+            f"{label} {', '.join(ids)}" for label, ids in (("failed:", failed), ("warned:", warned)) if ids)
         click.echo(f"{m.verdict:<5}  {m.source}" + (f"  {detail}" if detail else ""))
     c = result.counts
     click.echo(f"{c['maps']} maps: {c['pass']} pass, {c['warn']} warn, {c['fail']} fail, {c['error']} error "
