@@ -1067,7 +1067,7 @@ def _csv_value(v) -> str:
 
 
 def _atomic_text(path: Path, text: str) -> None:
-    from .tableio import atomic_write
+    from ._files import atomic_write
 
     atomic_write(path, lambda f: f.write(text.encode("utf-8")))
 

@@ -683,7 +683,7 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
 
 
 def _write_text_atomic(path: Path, text: str) -> None:
-    from .tableio import atomic_write
+    from ._files import atomic_write
 
     atomic_write(path, lambda f: f.write(text.encode("utf-8")))
 

@@ -66,6 +66,8 @@ from urllib.parse import quote, urlsplit
 
 import numpy as np
 
+from ._files import atomic_write_bytes
+
 from .errors import EnvsampleError
 from .qa import SEVERITIES, Report
 
@@ -281,29 +283,11 @@ def _img(data: bytes, alt: str, cls: str | None = None) -> str:
     return f'<img{c} src="{uri}" width="{w}" height="{h}" alt="{_esc(alt)}">'
 
 
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
-
-
 def _write_atomic(path, text: str) -> Path:
-    """Write UTF-8 text by a temporary file in the same folder and :func:`os.replace`."""
+    """Write UTF-8 text atomically (temporary file in the same folder, then :func:`os.replace`)."""
     path = Path(path)
     _check_folder(path)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(text.encode("utf-8"))
-            fh.flush()
-            os.fsync(fh.fileno())
-        # mkstemp makes 0600 files; a report is shared like any ordinary new file.
-        os.chmod(tmp, 0o666 & ~_umask())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
+    return atomic_write_bytes(path, text.encode("utf-8"))
 
 
 def _check_folder(path) -> None:

@@ -58,6 +58,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ._files import file_mode
 from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, MapWriteError
 
 __all__ = [
@@ -867,18 +868,4 @@ def _atomic_write(p: Path, ext: str, write) -> None:
 
 def _target_mode(p: Path) -> int:
     """Permissions for the new file: those of the file it replaces, else what the umask gives (mkstemp uses 0600)."""
-    with contextlib.suppress(OSError):
-        if p.is_file():
-            return p.stat().st_mode & 0o777
-    return _umask_mode()
-
-
-def _umask_mode() -> int:
-    with contextlib.suppress(OSError, ValueError):
-        with open("/proc/self/status") as fh:  # Linux: read the umask without changing it
-            for line in fh:
-                if line.startswith("Umask:"):
-                    return 0o666 & ~int(line.split()[1], 8)
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return 0o666 & ~mask
+    return file_mode(p)

@@ -39,12 +39,12 @@ from __future__ import annotations
 import base64
 import io
 import math
-import os
-import tempfile
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 
 import numpy as np
+
+from ._files import atomic_write_bytes
 
 from .color import luminance
 
@@ -220,26 +220,10 @@ def encode_png(image) -> bytes:
     return iio.imwrite("<bytes>", _as_picture(image), extension=".png")
 
 
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
-
-
 def _atomic_write(path, data: bytes) -> Path:
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        # mkstemp creates 0600 files; give the picture the permissions of an ordinary new file.
-        os.chmod(tmp, 0o666 & ~_umask())
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
+    return atomic_write_bytes(path, data, fsync=False)
 
 
 def write_png(path, image) -> Path:

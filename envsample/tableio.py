@@ -21,8 +21,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import os
-import tempfile
 import zipfile
 from pathlib import Path
 
@@ -30,7 +28,7 @@ import numpy as np
 
 from . import distribution as dist
 from .errors import TableFormatError
-from .io import _target_mode
+from ._files import atomic_write
 
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "save_table", "load_table", "table_paths", "atomic_write", "read_table_json"]
 
@@ -75,28 +73,6 @@ def table_paths(prefix_or_path) -> dict[str, Path]:
     if p.suffix.lower() in (".json", ".npz", ".bin"):
         p = p.with_suffix("")
     return {"json": p.with_name(p.name + ".json"), "npz": p.with_name(p.name + ".npz"), "bin": p.with_name(p.name + ".bin")}
-
-
-def atomic_write(path: Path, write) -> None:
-    """Call ``write(fileobj)`` on a temporary file beside ``path``, then rename it into place."""
-    path = Path(path)
-    if not path.parent.exists():
-        raise FileNotFoundError(f"{path.parent}: output folder does not exist; create it first")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            write(f)
-            f.flush()
-            os.fsync(f.fileno())
-        # mkstemp creates 0600 files; give the result the permissions a plain open() would.
-        os.chmod(tmp, _target_mode(path))
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
 
 
 def _le(a: np.ndarray, dtype: str) -> np.ndarray:

@@ -617,7 +617,7 @@ def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
 
 def _write_json(path: Path, doc: dict) -> None:
     """Write JSON atomically (temporary file beside it, then rename; tableio's writer)."""
-    from .tableio import atomic_write
+    from ._files import atomic_write
 
     text = json.dumps(doc, indent=2, allow_nan=False) + "\n"
     atomic_write(path, lambda f: f.write(text.encode("utf-8")))

@@ -306,7 +306,7 @@ def vectors_text(doc: dict) -> str:
 
 def write_vectors(path, doc: dict, *, make_dirs: bool = True) -> Path:
     """Write a golden-vector document atomically (temporary file, then rename); return the path."""
-    from .tableio import atomic_write
+    from ._files import atomic_write
 
     p = Path(path)
     check_output_folder(p)

@@ -1,0 +1,71 @@
+"""Atomic file writes shared by every module that writes (tables, pictures, reports).
+
+A file is written to a temporary name in its target folder and renamed into place
+with :func:`os.replace`, so readers see either the old file or the complete new
+one, never a half-written one.  ``mkstemp`` creates 0600 files; the result gets
+the permissions of the file it replaces, else those a plain ``open()`` would give.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from pathlib import Path
+
+__all__ = ["atomic_write", "atomic_write_bytes", "file_mode", "temporary_path"]
+
+
+def file_mode(path) -> int:
+    """Permissions for a new file at ``path``: those of the file it replaces, else what the umask gives."""
+    p = Path(path)
+    with contextlib.suppress(OSError):
+        if p.is_file():
+            return p.stat().st_mode & 0o777
+    with contextlib.suppress(OSError, ValueError):
+        with open("/proc/self/status") as fh:  # Linux: read the umask without changing it
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return 0o666 & ~int(line.split()[1], 8)
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+def temporary_path(path, *, suffix: str = ".tmp") -> str:
+    """Create and return an empty temporary file beside ``path`` (the caller renames or removes it)."""
+    p = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=suffix, dir=p.parent)
+    os.close(fd)
+    return tmp
+
+
+def atomic_write(path, write, *, fsync: bool = True) -> Path:
+    """Call ``write(fileobj)`` on a temporary file beside ``path``, then rename it into place.
+
+    The folder must exist (FileNotFoundError names it otherwise).  On any failure the
+    temporary file is removed and an existing file at ``path`` is left untouched.
+    """
+    path = Path(path)
+    if not path.parent.exists():
+        raise FileNotFoundError(f"{path.parent}: output folder does not exist; create it first")
+    mode = file_mode(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            write(f)
+            f.flush()
+            if fsync:
+                os.fsync(f.fileno())
+        os.chmod(tmp, mode)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise
+    return path
+
+
+def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:
+    """Write ``data`` to ``path`` atomically (see :func:`atomic_write`)."""
+    return atomic_write(path, lambda f: f.write(data), fsync=fsync)
