@@ -247,7 +247,8 @@ PRIMARY_CHOICES = ("bt709", "srgb", "bt2020", "acescg", "aces2065-1", "max", "me
 @click.option("--debug", is_flag=True, help="Show the traceback of an error (may also follow the command).")
 def main(debug):
     """Check equirectangular HDR environment maps, build their importance-sampling
-    tables, and write golden vectors for checking a renderer's loader.
+    tables, prove them with MIS validation renders, and write golden vectors for
+    checking a renderer's loader; one map at a time or a whole library.
 
     Angles are given in degrees. Errors print one line and exit with status 2.
     Start with 'envsample demo' to see the whole flow on invented maps.
