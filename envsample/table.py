@@ -108,6 +108,8 @@ def reduce_power(values: np.ndarray, size: tuple[int, int]) -> np.ndarray:
     """
     H, W = values.shape[:2]
     w, h = size
+    if H % h == 0 and W % w == 0:
+        return _reduce_by_blocks(values, H // h, W // w)
     # Row overlaps measured in -cos(theta) (increasing), column overlaps in u.
     rows = _overlap_matrix(-row_cos_edges(H), -row_cos_edges(h))
     cols = _overlap_matrix(np.arange(W + 1) / W, np.arange(w + 1) / w)
@@ -119,6 +121,21 @@ def reduce_power(values: np.ndarray, size: tuple[int, int]) -> np.ndarray:
     out /= (np.diff(-row_cos_edges(h))[:, None, None] * (1.0 / w))
     out = out.astype(np.float32)
     return out.reshape((h, w) + values.shape[2:])
+
+
+def _reduce_by_blocks(values: np.ndarray, fy: int, fx: int) -> np.ndarray:
+    """:func:`reduce_power` when the sizes divide: sums of L x dOmega over fy x fx blocks / cell dOmega."""
+    H, W = values.shape[:2]
+    h, w = H // fy, W // fx
+    flat = values.reshape(H, W, -1)
+    row_sa = row_solid_angles(H, W)
+    out = np.empty((h, w, flat.shape[2]), dtype=np.float64)
+    for c in range(flat.shape[2]):
+        # Columns first (same solid angle within a row), then rows weighted by their solid angle.
+        cols = flat[:, :, c].reshape(H, w, fx).sum(axis=2, dtype=np.float64)
+        out[:, :, c] = (cols * row_sa[:, None]).reshape(h, fy, w).sum(axis=1)
+    out /= row_solid_angles(h, w)[:, None, None]
+    return out.astype(np.float32).reshape((h, w) + values.shape[2:])
 
 
 @dataclass
