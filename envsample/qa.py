@@ -982,23 +982,28 @@ def _plateau(ctx: CheckContext, region: np.ndarray | None, s: dict) -> dict | No
     if not mask.any():
         return None
     labels, n = label_wrapped(mask)
-    rows, _ = np.nonzero(labels)
-    omega = np.bincount(labels[labels > 0], weights=ctx.row_solid_angles[rows], minlength=n + 1)[1:]
+    # Work in the band of rows that holds the mask (plus the shoulder's margin): plateaus
+    # are small, and full-size passes would dominate the check on big maps.
+    hit = np.nonzero(mask.any(axis=1))[0]
+    lo, hi = max(0, int(hit[0]) - 3), min(ctx.height, int(hit[-1]) + 4)
+    lab = labels[lo:hi]
+    rows, _ = np.nonzero(lab)
+    omega = np.bincount(lab[lab > 0], weights=ctx.row_solid_angles[rows + lo], minlength=n + 1)[1:]
     k = int(np.argmax(omega)) + 1
-    comp = labels == k
+    comp = lab == k
     # The shoulder: pixels two steps out from the plateau.  A clipped smooth source
     # (sun with glare, a blown-out sky) still rises towards the plateau there; a
     # sharp-edged uniform emitter (a synthetic area light) is back to its background.
     inner = comp | _ring(comp)
     ring2 = _ring(inner)
-    lum = ctx.luminance
+    lum = ctx.luminance[lo:hi]
     top = float(lum[comp].mean())
     bg = ctx.median_luminance
     if ring2.any() and top > bg:
         shoulder = float(np.median(np.clip((lum[ring2] - bg) / (top - bg), 0.0, 1.0)))
     else:
         shoulder = 0.0
-    row_idx = np.nonzero(comp.any(axis=1))[0]
+    row_idx = np.nonzero(comp.any(axis=1))[0] + lo
     return {
         "level": level,
         "pixels": int(comp.sum()),
