@@ -432,6 +432,31 @@ def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path,
         return _save_figure(fig, path)
 
 
+def image_panels(panels: Sequence, *, path, title: str | None = None) -> Path:
+    """Pictures side by side, each with its title above it (no axes); returns the path.
+
+    ``panels`` is a list of ``(title, uint8 image (H, W, 3))``.  Used for renders a
+    person compares by eye (reference beside estimate) so each is named on the page.
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    if not panels:
+        raise ValueError("image_panels needs at least one (title, image) pair")
+    h = max(int(np.asarray(img).shape[0]) for _, img in panels)
+    w = sum(int(np.asarray(img).shape[1]) for _, img in panels)
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(max(3.0, w / _DPI * 1.1), h / _DPI + (0.9 if title else 0.6)), layout="constrained")
+        axes = fig.subplots(1, len(panels), squeeze=False)[0]
+        for ax, (name, img) in zip(axes, panels):
+            ax.imshow(_as_picture(img), interpolation="nearest")
+            ax.set_title(str(name))
+            ax.set_axis_off()
+        if title:
+            fig.suptitle(title)
+        return _save_figure(fig, path)
+
+
 # ---------------------------------------------------------------------------
 # markers
 # ---------------------------------------------------------------------------

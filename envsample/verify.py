@@ -513,8 +513,8 @@ def sphere_normals(size: int, *, up: str = "y") -> tuple[np.ndarray, np.ndarray]
     return np.where(mask[..., None], n, 0.0), mask
 
 
-def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> np.ndarray:
-    """Reference and estimate on a white Lambertian sphere (radiance E/pi), side by side, one exposure."""
+def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> list[np.ndarray]:
+    """Reference and estimate on a white Lambertian sphere (radiance E/pi): two uint8 pictures, one exposure."""
     from .pictures import log_average_luminance, tonemap
 
     n, mask = sphere_normals(size, up=table.up)
@@ -527,8 +527,7 @@ def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> np.n
         panels.append(img)
     avg = log_average_luminance(panels[0])
     exposure = math.log2(0.18 / avg) if avg > 0 else 0.0
-    gap = np.full((size, 6, 3), 255, dtype=np.uint8)
-    return np.concatenate([tonemap(panels[0], exposure=exposure), gap, tonemap(panels[1], exposure=exposure)], axis=1)
+    return [tonemap(panels[0], exposure=exposure), tonemap(panels[1], exposure=exposure)]
 
 
 def _view_directions(normals: np.ndarray, angle_deg: float) -> np.ndarray:
@@ -717,7 +716,7 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     one colour scale); ``convergence.png``; ``sphere.png``; ``metrics.json``.
     """
     from .io import write_map
-    from .pictures import convergence_plot, thumbnail, write_png
+    from .pictures import convergence_plot, image_panels, thumbnail, write_png
     from .reference import reference_accuracy, reference_irradiance
 
     def tick(label):
@@ -787,7 +786,9 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
         # A black map (or exact estimates everywhere) leaves nothing to draw on log axes.
         notes.append("no positive relative error to plot: convergence.png not written")
     if sphere and recommended["estimator"] is not None:
-        write_png(outdir / "sphere.png", _sphere_picture(ref32, grids[recommended["estimator"]], grid_wh, table))
+        ref_pic, est_pic = _sphere_picture(ref32, grids[recommended["estimator"]], grid_wh, table)
+        image_panels([("exact reference", ref_pic), (f"{recommended['estimator']}, {spp} spp", est_pic)],
+                     path=outdir / "sphere.png", title="white diffuse sphere lit by the map (one exposure)")
         files["sphere"] = "sphere.png"
 
     glossy = None

@@ -279,3 +279,18 @@ def test_large_heatmap_panels_are_block_averaged_over_valid_values(monkeypatch):
     assert out[0, 0] == np.mean([1.0, 8.0, 9.0])
     assert np.isnan(out[1, 3])
     assert P._reduce_panel(a, log=True)[0, 0] == np.mean([1.0, 8.0, 9.0])
+
+
+def test_image_panels_names_each_picture(tmp_path):
+    # Two pictures side by side in one PNG that imageio reads back; the figure is wider than one panel.
+    import imageio.v3 as iio
+
+    from envsample.pictures import image_panels
+
+    a = np.zeros((40, 40, 3), np.uint8)
+    b = np.full((40, 40, 3), 255, np.uint8)
+    path = image_panels([("reference", a), ("estimate", b)], path=tmp_path / "p.png", title="t")
+    img = iio.imread(path)
+    assert img.ndim == 3 and img.shape[1] > 80
+    with pytest.raises(ValueError, match="at least one"):
+        image_panels([], path=tmp_path / "q.png")
