@@ -34,6 +34,7 @@ References
 
 from __future__ import annotations
 
+
 import numpy as np
 
 from ._accel import kernels
@@ -285,14 +286,17 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
 
     # Pass 2: lights (p < 1) in index order with their cumulative deficit D_i.
     d_before = 0.0
+    drift = [0.0]
     for r0, r1 in chunks:
         p = scaled(r0, r1)
         k = np.flatnonzero(p < 1.0)
         if k.size == 0:
             continue
-        # Book the deficit of the float32 probability actually stored, so a heavy
-        # that serves many lights does not gather their rounding errors.
-        pl = (p[k] * c).astype(np.float32).astype(np.float64)
+        # Book the deficit of the float32 probability actually stored, so a heavy that
+        # serves many lights does not gather their rounding errors; the stored values
+        # are rounded so that the global drift the last heavy absorbs stays within
+        # about one float32 ulp.
+        pl = _stored_float32(p[k] * c, drift)
         d_end = np.cumsum(np.maximum(1.0 - pl, 0.0))
         d_end += d_before
         # Heavies j < jlo have E_j < D before this chunk; j >= jhi are not reached in it.
@@ -320,6 +324,34 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
             alias[hj] = heavy[jlo + 1 : min(nh, jhi + 1)] if jhi < nh else np.append(heavy[jlo + 1 : nh], heavy[nh - 1])
         d_before = float(d_end[-1])
     return prob, alias
+
+
+def _stored_float32(p: np.ndarray, drift: list) -> np.ndarray:
+    """float32-representable values (as float64) for light probabilities ``p`` in [0, 1), drift-limited.
+
+    Each value is rounded to float32; the running sum of the rounding errors
+    (``drift[0]``, carried across chunks) is then worked off in steps of one ulp of
+    [0.5, 1) (2**-24) on values in that range whose own rounding went the same way, so
+    every value stays within about one ulp of ``p`` and the total drift, which the sweep
+    would hand to its last heavy cell, stays below half an ulp.
+    """
+    s = p.astype(np.float32).astype(np.float64)
+    err = s - p
+    d = drift[0] + float(err.sum())
+    q = 2.0**-24
+    m = int(round(d / q))
+    if m:
+        sign = 1.0 if m > 0 else -1.0
+        movable = (s >= 0.5) & (s < 1.0 - q)
+        first = np.flatnonzero(movable & (err * sign > 0))
+        pick = first[: abs(m)]
+        if pick.size < abs(m):
+            rest = np.flatnonzero(movable & ~(err * sign > 0))
+            pick = np.concatenate([pick, rest[: abs(m) - pick.size]])
+        s[pick] -= sign * q
+        d -= sign * q * pick.size
+    drift[0] = d
+    return s
 
 
 def sample_alias(prob, alias, u) -> tuple[np.ndarray, np.ndarray]:
