@@ -34,7 +34,6 @@ References
 
 from __future__ import annotations
 
-
 import numpy as np
 
 from ._accel import kernels
