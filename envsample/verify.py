@@ -829,8 +829,30 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     }
     tick("metrics")
     _write_json(outdir / "metrics.json", doc)
+    _remove_stale_outputs(outdir, files)
     doc["outdir"] = str(outdir)
     return doc
+
+
+def _remove_stale_outputs(outdir: Path, files: dict) -> None:
+    """Remove our own images from an earlier run in the same folder that this run did not write.
+
+    Only names this module writes (``estimate_*.exr``, ``errors_*.png``, and the
+    optional ``convergence.png``/``sphere.png``) are touched, after the new
+    ``metrics.json`` is in place, so the folder always matches its metrics.
+    """
+    keep = set()
+    for v in files.values():
+        if isinstance(v, str):
+            keep.add(v)
+        elif isinstance(v, dict):
+            keep.update(x for x in v.values() if isinstance(x, str))
+        elif isinstance(v, (list, tuple)):
+            keep.update(x for x in v if isinstance(x, str))
+    for pattern in ("estimate_*.exr", "errors_*.png", "convergence.png", "sphere.png"):
+        for p in outdir.glob(pattern):
+            if p.name not in keep:
+                p.unlink(missing_ok=True)
 
 
 # --------------------------------------------------------------------------- tuned selection

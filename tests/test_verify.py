@@ -408,3 +408,20 @@ def test_tune_rejects_bad_fractions():
         tune_one_sample(table, fractions=(0.0, 0.5))
     with pytest.raises(ValueError, match="heuristic"):
         tune_one_sample(table, heuristics=("nope",))
+
+
+def test_rerun_in_the_same_folder_leaves_only_this_runs_files(tmp_path):
+    # A report folder reused with fewer estimators must not keep images metrics.json no longer lists.
+    import json
+
+    from envsample.skies import make_sky
+    from envsample.verify import verify_map
+
+    rgb = make_sky("overcast", width=32)
+    out = tmp_path / "r"
+    verify_map(rgb, out, spp=4, normals=(8, 4), estimators=["cosine", "table", "mis-balance"], sphere=False)
+    assert (out / "estimate_mis-balance.exr").exists()
+    verify_map(rgb, out, spp=4, normals=(8, 4), estimators=["table"], sphere=False)
+    doc = json.loads((out / "metrics.json").read_text())
+    listed = set(doc["files"]["estimates"].values())
+    assert {p.name for p in out.glob("estimate_*.exr")} == listed == {"estimate_table.exr"}
