@@ -68,7 +68,7 @@ from .constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_
 from .errors import EnvsampleError, MapReadError
 from .io import MapImage, read_map
 from .sphere import row_cos_edges, row_solid_angles
-from .table import _row_channel_sums
+from .table import row_channel_sums
 
 __all__ = [
     "SEVERITIES",
@@ -1324,7 +1324,7 @@ def _check_light_level(ctx: CheckContext) -> CheckResult:
     s = ctx.settings("light-level")
     cw = _cos_weights(ctx.height, ctx.width)
     e = float(ctx.luminance.sum(axis=1, dtype=np.float64) @ cw) * s["scale"]
-    e_rgb = (_row_channel_sums(ctx.rgb) * cw[:, None]).sum(axis=0) * s["scale"]
+    e_rgb = (row_channel_sums(ctx.rgb) * cw[:, None]).sum(axis=0) * s["scale"]
     details = {"irradiance_up": e, "irradiance_up_rgb": e_rgb.tolist(), "calibrated": s["calibrated"],
                "note": PHOTOMETRY_NOTE}
     if not e > 0.0:

@@ -52,9 +52,10 @@ from . import distribution as dist
 from ._accel import kernels
 from .color import canonical_primaries, luminance
 from .errors import EnvsampleWarning, MapValidationError
-from .sphere import convention, direction_to_uv, row_cos_edges, row_solid_angles, _frame
+from .sphere import _frame, convention, direction_to_pixel, direction_to_uv, row_cos_edges, row_solid_angles
 
-__all__ = ["MAPPINGS", "SAMPLE_METHODS", "EnvTable", "Samples", "build_table", "load_table", "parse_size"]
+__all__ = ["MAPPINGS", "SAMPLE_METHODS", "EnvTable", "Samples", "build_table", "load_table", "parse_size",
+           "reduce_power", "row_channel_sums"]
 
 #: In-cell mappings a table can use.
 MAPPINGS = ("equal-area", "uv-linear")
@@ -270,12 +271,10 @@ class EnvTable:
         if method == "inverse":
             row, fv = dist.sample_cdf(self.marginal_cdf, u[:, 0])
             col, fu = dist.sample_row_cdfs(self.conditional_cdf, row, u[:, 1])
-        elif method == "alias":
+        else:
             cell, fu = dist.sample_alias(self.alias_probability, self.alias_index, u[:, 0])
             row, col = np.divmod(cell, self.table_width)
             fv = np.clip(u[:, 1], 0.0, 1.0)
-        else:
-            raise ValueError(f"unknown sampling method {method!r}; valid: {', '.join(SAMPLE_METHODS)}")
         np.clip(fu, _EDGE, 1.0 - _EDGE, out=fu)
         fv = np.clip(fv, _EDGE, 1.0 - _EDGE)
         h, w = self.table_height, self.table_width
@@ -347,9 +346,7 @@ class EnvTable:
     def eval(self, directions) -> np.ndarray:
         """Radiance of the full-resolution map in ``directions`` (N, 3): float32 (N, 3), nearest pixel."""
         d = _finite_directions(directions)
-        u, v = direction_to_uv(d, up=self.up, rotate_deg=self.rotate_deg)
-        col = np.minimum((u * self.width).astype(np.int64), self.width - 1)
-        row = np.minimum((v * self.height).astype(np.int64), self.height - 1)
+        row, col = direction_to_pixel(d, self.height, self.width, up=self.up, rotate_deg=self.rotate_deg)
         return self.image[row, col]
 
     # ------------------------------------------------------------------- disk
@@ -406,7 +403,7 @@ def _directions(cf, cr, ca, axes) -> np.ndarray:
     return out
 
 
-def _row_channel_sums(image: np.ndarray) -> np.ndarray:
+def row_channel_sums(image: np.ndarray) -> np.ndarray:
     """Per-row, per-channel float64 sums of an (H, W, 3) image.
 
     Rows are transposed in small blocks so numpy sums along a contiguous axis, where it
@@ -419,6 +416,11 @@ def _row_channel_sums(image: np.ndarray) -> np.ndarray:
         block = np.ascontiguousarray(image[r0 : r0 + step].transpose(0, 2, 1))
         out[r0 : r0 + step] = block.sum(axis=2, dtype=np.float64)
     return out
+
+
+def _integral(values: np.ndarray, row_sa: np.ndarray) -> float:
+    """Integral over the sphere of a per-cell function (h, w): float64 row sums times row solid angles."""
+    return float(np.dot(values.sum(axis=1, dtype=np.float64), row_sa))
 
 
 def _as_image(rgb):
@@ -481,7 +483,7 @@ def build_table(
     # One float64 pass gives the per-channel integrals and detects NaN/Inf (they
     # poison their row's sum); float32 data cannot overflow a float64 sum.
     row_sa_full = row_solid_angles(H, W)
-    row_sums = _row_channel_sums(image)
+    row_sums = row_channel_sums(image)
     if not np.isfinite(row_sums).all():
         raise MapValidationError("map has NaN or Inf pixels; repair them first (read with validate_map(repair=True))")
     if image.min() < 0:
@@ -497,7 +499,7 @@ def build_table(
     conv = convention(up, rotate_deg)
 
     lum = luminance(image, primaries)
-    lum_integral_full = float(np.dot(lum.sum(axis=1, dtype=np.float64), row_sa_full))
+    lum_integral_full = _integral(lum, row_sa_full)
     if size is not None and size != (W, H):
         lum = reduce_power(lum, size)
     h, w = lum.shape
@@ -508,9 +510,11 @@ def build_table(
         mean = lum_integral_full / (4.0 * math.pi)
         np.subtract(lum, np.float32(mean), out=lum)
         np.maximum(lum, 0.0, out=lum)
-    # Rows' weighted sums give the marginal; built together with the conditional CDFs.
-    conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
-    total = float(row_totals.sum())
+    # The sampled function's integral decides the black-map and mixture cases before the
+    # CDFs are built, so they are built once.  For the plain full-size table it is the
+    # luminance integral already at hand.
+    plain = not compensate and lum.shape == (H, W)
+    total = lum_integral_full if plain else _integral(lum, row_sa)
     if not total > 0.0:
         if compensate:
             notes.append("compensation removed every cell (a constant map): the table is uniform")
@@ -520,14 +524,13 @@ def build_table(
             )
             notes.append("map is entirely black: uniform table")
         lum = np.ones((h, w), dtype=np.float32)
-        conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
-        total = float(row_totals.sum())
+        total = _integral(lum, row_sa)
     if uniform_mix > 0.0:
         # Mixture density (1 - m) Y / total + m / (4 pi), still constant within a cell.
         lum *= np.float32((1.0 - uniform_mix) / total)
         lum += np.float32(uniform_mix / (4.0 * math.pi))
-        conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
-        total = float(row_totals.sum())
+    conditional, row_totals = dist.build_row_cdfs(lum, row_scale=row_sa)
+    total = float(row_totals.sum())
     marginal, _ = dist.build_cdf(row_totals)
     a_prob, a_index = dist.build_alias(lum, row_scale=row_sa)
     # lum becomes the cell pdf in place: pdf = f / integral(f) per steradian.
