@@ -51,14 +51,13 @@ import dataclasses
 import hashlib
 import os
 import re
-import tempfile
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from ._files import file_mode
+from ._files import file_mode, temporary_path
 from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, MapWriteError
 
 __all__ = [
@@ -848,13 +847,14 @@ def _insert_radiance_primaries(tmp: str, chroma: dict) -> None:
 
 
 def _atomic_write(p: Path, ext: str, write) -> None:
+    # The codecs write by file name, so this is envsample._files.atomic_write with a path
+    # instead of a file object (and the extension kept, for OpenCV's format choice).
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=f".tmp{ext}", dir=p.parent)
+        tmp = temporary_path(p, suffix=f".tmp{ext}")
     except OSError as e:
         raise MapWriteError(f"{p}: cannot create a file in {p.parent} ({e.strerror}); check the directory's permissions") from e
-    os.close(fd)
     try:
-        mode = _target_mode(p)
+        mode = file_mode(p)
         write(tmp)
         os.chmod(tmp, mode)
         os.replace(tmp, p)
@@ -865,7 +865,3 @@ def _atomic_write(p: Path, ext: str, write) -> None:
             raise
         raise MapWriteError(f"{p}: writing failed ({_one_line(e)}); nothing was written, check the path and disk space") from e
 
-
-def _target_mode(p: Path) -> int:
-    """Permissions for the new file: those of the file it replaces, else what the umask gives (mkstemp uses 0600)."""
-    return file_mode(p)

@@ -121,9 +121,8 @@ def save_table(table, prefix, *, raw: bool = False) -> list[Path]:
         "files": {"npz": paths["npz"].name, "raw": paths["bin"].name if raw else None},
         "arrays": entries,
     }
-    for key in ("recommendation",):
-        if key in meta:
-            doc[key] = meta[key]
+    if "recommendation" in meta:
+        doc["recommendation"] = meta["recommendation"]
 
     def write_npz(f):
         np.savez(f, **arrays)
