@@ -41,7 +41,8 @@ def luminance(rgb, primaries: str = "bt709", *, out=None) -> np.ndarray:
         raise ValueError(f"rgb must have shape (..., 3), got {rgb.shape}")
     key = canonical_primaries(primaries)
     if key == "max":
-        y = np.max(rgb, axis=-1, out=out)
+        # Chained np.maximum on channel views: much faster than a reduction over a length-3 axis.
+        y = np.maximum(np.maximum(rgb[..., 0], rgb[..., 1], out=out), rgb[..., 2], out=out)
     elif key == "mean":
         y = np.mean(rgb, axis=-1, dtype=np.float32, out=out)
     else:

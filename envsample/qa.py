@@ -643,8 +643,7 @@ class CheckContext:
     @functools.cached_property
     def max_channel(self) -> np.ndarray:
         """float32 (H, W): the largest channel of ``rgb`` (clipping happens per channel)."""
-        rgb = self.rgb  # np.maximum on channel views beats a reduction over a length-3 axis
-        return np.maximum(np.maximum(rgb[..., 0], rgb[..., 1]), rgb[..., 2])
+        return luminance(self.rgb, "max")
 
     @functools.cached_property
     def emitter_labels(self) -> tuple[np.ndarray, int]:
