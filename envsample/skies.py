@@ -259,12 +259,18 @@ def _check_rect(az, el, name: str) -> tuple[tuple[float, float], tuple[float, fl
     return (a0, a1), (e0, e1)
 
 
-def _add_rect(img: np.ndarray, az, el, excess: np.ndarray) -> None:
-    """Add ``excess`` radiance times the exact coverage of a lat-long rectangle, in place."""
+def _paint_rect(img: np.ndarray, az, el, radiance, under) -> None:
+    """Cover a lat-long rectangle with ``radiance`` over ``under``, by each pixel's exact coverage, in place.
+
+    ``under`` is what the rectangle hides: an rgb (a uniform background) or an
+    (H, W, 3) image; each touched pixel gains ``coverage * (radiance - under)``.
+    """
     height, width = img.shape[:2]
     rows, rf, cols, cf = _rect_fractions(height, width, az, el)
     if rows.size and cols.size:
-        img[np.ix_(rows, cols)] += (rf[:, None] * cf[None, :])[..., None] * excess
+        block = np.ix_(rows, cols)
+        hidden = under[block] if np.ndim(under) == 3 else under
+        img[block] += (rf[:, None] * cf[None, :])[..., None] * (radiance - hidden)
 
 
 # ---------------------------------------------------------------------------
@@ -558,7 +564,7 @@ def studio_sky(width: int, height: int | None = None, *, lights: Sequence | None
         except (TypeError, ValueError):
             raise ValueError(f"lights[{k}] must be (azimuth_range_deg, elevation_range_deg, radiance), got {light!r}") from None
         az, el = _check_rect(az, el, f"lights[{k}]")
-        _add_rect(img, az, el, _rgb(radiance, f"lights[{k}] radiance") - bg)
+        _paint_rect(img, az, el, _rgb(radiance, f"lights[{k}] radiance"), bg)
     return img.astype(np.float32)
 
 
@@ -630,12 +636,10 @@ def rooftop_scene(width: int = 1024, height: int | None = None) -> np.ndarray:
     buildings, windows = _rooftop_skyline()
     for az, el, radiance in buildings:
         # Buildings replace the sky (and the top of the parapet) by their coverage.
-        rows, rf, cols, cf = _rect_fractions(height, width, az, el)
-        cover = (rf[:, None] * cf[None, :])[..., None]
-        img[np.ix_(rows, cols)] += cover * (radiance - sky_only[np.ix_(rows, cols)])
+        _paint_rect(img, az, el, radiance, sky_only)
     for az, el, radiance, host in windows:
         # A window lies inside its building's box, so replacing the building is exact.
-        _add_rect(img, az, el, radiance - host)
+        _paint_rect(img, az, el, radiance, host)
     _add_sun(img, el_s, az_s, 2.5, _SUN_DIAMETER_DEG, _unit_luminance((1.0, 0.72, 0.45), "sun"))
     return img.astype(np.float32)
 
@@ -662,10 +666,9 @@ def studio_scene(width: int = 1024, height: int | None = None) -> np.ndarray:
         ((28.0, 66.0), (4.0, 30.0), np.array([1.4, 1.55, 1.8])),
         ((172.0, -172.0), (15.0, 70.0), np.array([3.5, 3.5, 3.5])),
     ]
+    background = img.copy()
     for az, el, radiance in lights:
-        rows, rf, cols, cf = _rect_fractions(height, width, az, el)
-        cover = (rf[:, None] * cf[None, :])[..., None]
-        img[np.ix_(rows, cols)] += cover * (radiance - bg_rows[rows][:, None, :])
+        _paint_rect(img, az, el, radiance, background)
     return img.astype(np.float32)
 
 
