@@ -365,9 +365,13 @@ class GGXReflection:
     compensated = False
 
     @staticmethod
-    def _local(directions, frame: Frame):
+    def _require_view(frame: Frame) -> None:
         if frame.wo is None or frame.roughness is None:
             raise ValueError("the ggx strategy needs frame.wo and frame.roughness; build the frame with make_frame(normals, wo, roughness)")
+
+    @staticmethod
+    def _local(directions, frame: Frame):
+        GGXReflection._require_view(frame)
         wi = to_local(np.asarray(directions, dtype=np.float64), frame.normals)
         wo = to_local(frame.wo, frame.normals)
         return wi, wo, frame.roughness
@@ -382,8 +386,7 @@ class GGXReflection:
 
     def sample(self, u, frame: Frame):
         u = _check_u(u, frame)
-        if frame.wo is None or frame.roughness is None:
-            raise ValueError("the ggx strategy needs frame.wo and frame.roughness; build the frame with make_frame(normals, wo, roughness)")
+        self._require_view(frame)
         wo = to_local(frame.wo, frame.normals)
         alpha = frame.roughness
         above = wo[:, 2] > 0.0
