@@ -360,6 +360,28 @@ def _safe_ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
     return np.divide(num, den, out=np.zeros_like(num), where=den > 0.0)
 
 
+def _weight_and_radiance(strategies, i, d, p_own, fr, table, shares, heuristic, params):
+    """MIS weight of strategy ``i`` for its samples ``d``, and the map radiance there.
+
+    The table's pdf and the radiance share one direction-to-(u, v) conversion
+    (:meth:`EnvTable.lookup`) when the table is one of the other strategies.
+    """
+    rad = None
+    pdfs = []
+    for k, other in enumerate(strategies):
+        if k == i:
+            pdfs.append(p_own)
+        elif rad is None and isinstance(other, TableStrategy) and other.table is table and hasattr(table, "lookup"):
+            p, rad = table.lookup(d)
+            pdfs.append(np.asarray(p, dtype=np.float64))
+        else:
+            pdfs.append(other.pdf(d, fr))
+    if rad is None:
+        rad = table.eval(d)
+    w = mis_weights(np.stack(pdfs), shares, method=heuristic, **params)[i]
+    return w, np.asarray(rad, dtype=np.float64)
+
+
 def _multi_chunk(strategies, counts, heuristic, params, factor, table, frame, u, contrib_y, primaries):
     m, spp = u.shape[0], u.shape[1]
     est = np.zeros((m, 3))
@@ -367,10 +389,8 @@ def _multi_chunk(strategies, counts, heuristic, params, factor, table, frame, u,
     for i, (s, n) in enumerate(zip(strategies, counts)):
         fr = frame.repeat(n)
         d, p_own = s.sample(u[:, start:start + n, :2].reshape(-1, 2), fr)
-        pdfs = np.stack([p_own if k == i else other.pdf(d, fr) for k, other in enumerate(strategies)])
-        w = mis_weights(pdfs, counts, method=heuristic, **params)[i]
+        w, rad = _weight_and_radiance(strategies, i, d, p_own, fr, table, counts, heuristic, params)
         scale = _safe_ratio(w * factor(d, fr), p_own) * (spp / n)
-        rad = np.asarray(table.eval(d), dtype=np.float64)
         est += (scale[:, None] * rad).reshape(m, n, 3).sum(axis=1)
         if contrib_y is not None:
             contrib_y[:, start:start + n] = (scale * luminance(rad, primaries)).reshape(m, n)
@@ -391,10 +411,8 @@ def _one_sample_chunk(strategies, fractions, heuristic, params, factor, table, f
             continue
         fr = fr_all.take(idx)
         d, p_own = s.sample(flat_u[idx, :2], fr)
-        pdfs = np.stack([p_own if k == i else other.pdf(d, fr) for k, other in enumerate(strategies)])
-        w = mis_weights(pdfs, fractions, method=heuristic, **params)[i]
+        w, rad[idx] = _weight_and_radiance(strategies, i, d, p_own, fr, table, fractions, heuristic, params)
         scale[idx] = _safe_ratio(w * factor(d, fr), fractions[i] * p_own)
-        rad[idx] = np.asarray(table.eval(d), dtype=np.float64)
     if contrib_y is not None:
         contrib_y[:] = (scale * luminance(rad, primaries)).reshape(m, spp)
         strat[:] = sel.reshape(m, spp)

@@ -52,7 +52,7 @@ from . import distribution as dist
 from ._accel import kernels
 from .color import canonical_primaries, luminance
 from .errors import EnvsampleWarning, MapValidationError
-from .sphere import _frame, convention, direction_to_pixel, direction_to_uv, row_cos_edges, row_solid_angles
+from .sphere import _frame, convention, direction_to_uv, row_cos_edges, row_solid_angles
 
 __all__ = ["MAPPINGS", "SAMPLE_METHODS", "EnvTable", "Samples", "build_table", "load_table", "parse_size",
            "reduce_power", "row_channel_sums"]
@@ -325,28 +325,48 @@ class EnvTable:
 
     def cells_of(self, directions) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Row, column (int64) of the table cell containing each direction, and sin(theta)."""
-        d = _finite_directions(directions)
-        u, v = direction_to_uv(d, up=self.up, rotate_deg=self.rotate_deg)
-        h, w = self.table_height, self.table_width
-        col = np.minimum((u * w).astype(np.int64), w - 1)
-        row = np.minimum((v * h).astype(np.int64), h - 1)
+        u, v = self._uv(directions)
+        row, col = self._cell(u, v)
         return row, col, np.sin(math.pi * v)
 
     def pdf(self, directions) -> np.ndarray:
         """Solid-angle pdf (per steradian, float64 (N,)) of drawing ``directions`` (N, 3) from this table."""
-        row, col, sin_t = self.cells_of(directions)
-        if self.mapping == "equal-area":
-            return self.cell_pdf[row, col].astype(np.float64)
-        h, w = self.table_height, self.table_width
-        p = self.cell_pdf[row, col].astype(np.float64) * self._row_sa[row]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out = p * (h * w) / (2.0 * math.pi**2 * sin_t)
-        return np.where(sin_t > 0, out, 0.0)
+        return self._pdf_at(*self._uv(directions))
 
     def eval(self, directions) -> np.ndarray:
         """Radiance of the full-resolution map in ``directions`` (N, 3): float32 (N, 3), nearest pixel."""
-        d = _finite_directions(directions)
-        row, col = direction_to_pixel(d, self.height, self.width, up=self.up, rotate_deg=self.rotate_deg)
+        return self._radiance_at(*self._uv(directions))
+
+    def lookup(self, directions) -> tuple[np.ndarray, np.ndarray]:
+        """``(pdf(directions), eval(directions))`` with one direction-to-(u, v) conversion for both.
+
+        MIS evaluates both for every sample drawn by another strategy; the
+        conversion (two arctangents) is the expensive part.
+        """
+        u, v = self._uv(directions)
+        return self._pdf_at(u, v), self._radiance_at(u, v)
+
+    def _uv(self, directions) -> tuple[np.ndarray, np.ndarray]:
+        return direction_to_uv(_finite_directions(directions), up=self.up, rotate_deg=self.rotate_deg)
+
+    def _cell(self, u, v) -> tuple[np.ndarray, np.ndarray]:
+        h, w = self.table_height, self.table_width
+        return np.minimum((v * h).astype(np.int64), h - 1), np.minimum((u * w).astype(np.int64), w - 1)
+
+    def _pdf_at(self, u, v) -> np.ndarray:
+        row, col = self._cell(u, v)
+        pdf = self.cell_pdf[row, col].astype(np.float64)
+        if self.mapping == "equal-area":
+            return pdf
+        h, w = self.table_height, self.table_width
+        sin_t = np.sin(math.pi * v)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = pdf * self._row_sa[row] * (h * w) / (2.0 * math.pi**2 * sin_t)
+        return np.where(sin_t > 0, out, 0.0)
+
+    def _radiance_at(self, u, v) -> np.ndarray:
+        row = np.minimum((v * self.height).astype(np.int64), self.height - 1)
+        col = np.minimum((u * self.width).astype(np.int64), self.width - 1)
         return self.image[row, col]
 
     # ------------------------------------------------------------------- disk
