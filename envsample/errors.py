@@ -25,8 +25,11 @@ class MapReadError(EnvsampleError):
     """A map file could not be read: missing, empty, truncated, corrupt or of an unknown type."""
 
 
-class MapValidationError(EnvsampleError):
-    """A map was read but its pixels or shape are not acceptable (NaN/Inf, aspect, size, LDR)."""
+class MapValidationError(EnvsampleError, ValueError):
+    """A map's pixels or shape are not acceptable (NaN/Inf, aspect, size, LDR, not (H, W, 3)).
+
+    Also a ValueError: it is raised for bad values passed to functions too.
+    """
 
 
 class MapWriteError(EnvsampleError):

@@ -67,6 +67,7 @@ __all__ = [
     "validate_map",
     "write_map",
     "supported_extensions",
+    "map_pixels",
     "LOSSLESS_COMPRESSIONS",
     "PIXEL_TYPES",
 ]
@@ -145,7 +146,7 @@ class MapImage:
     @classmethod
     def from_array(cls, rgb, *, alpha=None, chromaticities=None) -> "MapImage":
         """Wrap an in-memory ``(H, W, 3)`` array (converted to float32, not copied if already float32)."""
-        arr = _as_rgb(rgb, "rgb")
+        arr = map_pixels(rgb)
         a = None if alpha is None else _as_alpha(alpha, arr.shape[:2])
         chroma = None if chromaticities is None else _check_chromaticities(chromaticities)
         return cls(rgb=arr, alpha=a, chromaticities=chroma)
@@ -739,7 +740,7 @@ def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", 
         raise ValueError(f"unknown pixel_type {pixel_type!r}; valid names: {', '.join(PIXEL_TYPES)}")
     if compression not in LOSSLESS_COMPRESSIONS:
         raise ValueError(f"unknown or lossy compression {compression!r}; valid names: {', '.join(LOSSLESS_COMPRESSIONS)}")
-    arr = _as_rgb(rgb, "rgb")
+    arr = map_pixels(rgb)
     a = None if alpha is None else _as_alpha(alpha, arr.shape[:2])
     chroma = None if chromaticities is None else _check_chromaticities(chromaticities)
     if ext in _EXR_EXTENSIONS:
@@ -753,12 +754,21 @@ def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", 
     return p
 
 
-def _as_rgb(rgb, name: str) -> np.ndarray:
-    arr = np.asarray(rgb)
+def map_pixels(rgb, *, name: str = "rgb", keep_float64: bool = False) -> np.ndarray:
+    """The pixels of a map given as an array or as a :class:`MapImage` (anything with ``.rgb``).
+
+    The one boundary check of in-memory maps: shape ``(H, W, 3)`` with H, W >= 1 and
+    real numbers.  Returns float32 (no copy when the input already is float32), or
+    float64 input unchanged with ``keep_float64``.  Pixel values are not judged here
+    (see :func:`validate_map`).  Raises :class:`MapValidationError` naming ``name``.
+    """
+    arr = np.asarray(rgb.rgb if hasattr(rgb, "rgb") else rgb)
     if arr.ndim != 3 or arr.shape[2] != 3 or arr.shape[0] < 1 or arr.shape[1] < 1:
-        raise ValueError(f"{name} must have shape (H, W, 3) with H, W >= 1, got {arr.shape}")
+        raise MapValidationError(f"{name} must be an (H, W, 3) RGB array, of shape (H, W, 3) with H, W >= 1; got {arr.shape}")
     if not (np.issubdtype(arr.dtype, np.floating) or np.issubdtype(arr.dtype, np.integer)):
-        raise ValueError(f"{name} must hold real numbers, got dtype {arr.dtype}")
+        raise MapValidationError(f"{name} must hold real numbers, got dtype {arr.dtype}")
+    if keep_float64 and arr.dtype == np.float64:
+        return arr
     return arr.astype(np.float32, copy=False)
 
 

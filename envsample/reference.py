@@ -121,6 +121,7 @@ import math
 import numpy as np
 
 from .errors import MapValidationError
+from .io import map_pixels
 from .sphere import UP_AXES, orthonormal_basis, row_solid_angles
 from .strategies import MIN_ROUGHNESS, Frame, GGXReflection
 from .table import parse_size, reduce_power
@@ -160,20 +161,14 @@ _CHUNK_ELEMENTS = 1_000_000
 # ---------------------------------------------------------------------------
 
 def _map_array(rgb, name: str = "rgb") -> np.ndarray:
-    """(H, W, 3) float32/float64 radiance from an array or a MapImage-like object (``.rgb``).
+    """(H, W, 3) float32/float64 radiance from an array or a MapImage (:func:`envsample.io.map_pixels`).
 
-    float32 maps are kept as they are (not copied): every sum is accumulated in float64.
+    float32 and float64 maps are kept as they are (not copied): every sum is accumulated
+    in float64.  The map must be finite and have at least 2 columns.
     """
-    if hasattr(rgb, "rgb"):
-        rgb = rgb.rgb
-    arr = np.asarray(rgb)
-    if arr.ndim != 3 or arr.shape[2] != 3:
-        raise MapValidationError(f"{name} must be an (H, W, 3) RGB array, got shape {arr.shape}")
-    if arr.shape[0] < 1 or arr.shape[1] < 2:
+    arr = np.ascontiguousarray(map_pixels(rgb, name=name, keep_float64=True))
+    if arr.shape[1] < 2:
         raise MapValidationError(f"{name} must have at least 1 row and 2 columns, got shape {arr.shape}")
-    if arr.dtype not in (np.float32, np.float64):
-        arr = arr.astype(np.float64)
-    arr = np.ascontiguousarray(arr)
     bad = ~np.isfinite(arr)
     if bad.any():
         raise MapValidationError(

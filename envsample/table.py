@@ -52,6 +52,7 @@ from . import distribution as dist
 from ._accel import kernels
 from .color import canonical_primaries, luminance
 from .errors import EnvsampleWarning, MapValidationError
+from .io import map_pixels
 from .sphere import _frame, convention, direction_to_uv, row_cos_edges, row_solid_angles
 
 __all__ = ["MAPPINGS", "SAMPLE_METHODS", "EnvTable", "Samples", "build_table", "load_table", "parse_size",
@@ -445,17 +446,8 @@ def _integral(values: np.ndarray, row_sa: np.ndarray) -> float:
 
 def _as_image(rgb):
     """Accept a MapImage-like object (with ``.rgb``) or an array; return (float32 (H,W,3), source dict)."""
-    source = None
-    if hasattr(rgb, "rgb"):
-        source = rgb.describe() if hasattr(rgb, "describe") else None
-        rgb = rgb.rgb
-    arr = np.asarray(rgb)
-    if arr.ndim != 3 or arr.shape[2] != 3:
-        raise MapValidationError(f"map must be an (H, W, 3) RGB array, got shape {arr.shape}")
-    if arr.shape[0] < 1 or arr.shape[1] < 1:
-        raise MapValidationError(f"map is empty (shape {arr.shape})")
-    arr = arr.astype(np.float32, copy=False)
-    return arr, source
+    source = rgb.describe() if hasattr(rgb, "describe") else None
+    return map_pixels(rgb, name="map"), source
 
 
 def build_table(
