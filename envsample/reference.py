@@ -86,9 +86,9 @@ Glossy reference.  ``L_o(n, wo) = integral of L(w) f(w, wo) max(0, n.w) dw`` wit
 GGX reflection of :class:`envsample.strategies.GGXReflection` (Walter et al. 2007
 distribution, height-correlated Smith masking-shadowing of Heitz 2014, F = 1); the
 integrand is evaluated by that class, so reference and estimators share one BRDF.
-Each cell is integrated by the midpoint rule on an ``s x s`` grid of equal-area
-sub-cells in ``(mu, phi)``; ``s`` grows where the lobe is sharp relative to the cell
-(see :func:`reference_glossy`).  It is a quadrature, not a closed form:
+Each cell, a rectangle in ``(theta, phi)``, is split adaptively where the lobe is
+sharp relative to it and near the horizon of ``n``; the leaves get a 2x2
+Gauss-Legendre rule with the ``sin(theta)`` weight (see :func:`reference_glossy`).  It is a quadrature, not a closed form:
 :func:`reference_glossy_accuracy` states its resolution error.
 
 SH9.  Ramamoorthi & Hanrahan (2001) approximate irradiance with the 9 spherical
@@ -673,6 +673,8 @@ def reference_accuracy(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0, 
 #: Gauss-Legendre 2-point nodes on [-1, 1] (exact for cubics; Abramowitz & Stegun 25.4.29).
 _GL2 = (-1.0 / math.sqrt(3.0), 1.0 / math.sqrt(3.0))
 
+_GGX = GGXReflection()
+
 #: Rectangles evaluated per vectorised batch in the glossy quadrature.
 _GLOSSY_BATCH = 200_000
 
@@ -700,7 +702,7 @@ def _glossy_kernel(d_world, n, wo, alpha):
     """f(d, wo) max(0, n.d) of the strategies' GGX reflection for one (n, wo, alpha), 1/sr."""
     m = d_world.shape[0]
     frame = Frame(np.broadcast_to(n, (m, 3)), np.broadcast_to(wo, (m, 3)), np.full(m, alpha))
-    f = GGXReflection().eval(d_world, frame)
+    f = _GGX.eval(d_world, frame)
     return f * np.maximum(d_world @ n, 0.0)
 
 
