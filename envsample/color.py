@@ -27,11 +27,12 @@ def canonical_primaries(name: str) -> str:
     return key
 
 
-def luminance(rgb, primaries: str = "bt709", *, out=None) -> np.ndarray:
-    """Luminance of linear RGB ``(..., 3)`` as float32 ``(...)``, clamped at zero.
+def luminance(rgb, primaries: str = "bt709", *, dtype=np.float32, out=None) -> np.ndarray:
+    """Luminance of linear RGB ``(..., 3)`` as ``(...)``, clamped at zero; float32 unless ``dtype``.
 
     ``primaries``: ``bt709`` (default, alias ``srgb``), ``bt2020``, ``acescg``,
     ``aces2065-1``, ``max`` (largest channel) or ``mean`` (channel average).
+    ``dtype=np.float64`` computes in float64 (for error metrics that must not round).
     ACES2065-1 has a negative blue weight, so saturated blue can give negative
     luminance; it is clamped to zero (a pixel with no luminance is never sampled
     by the luminance table, which is why tables can mix in uniform sampling).
@@ -39,15 +40,16 @@ def luminance(rgb, primaries: str = "bt709", *, out=None) -> np.ndarray:
     rgb = np.asarray(rgb)
     if rgb.shape[-1:] != (3,):
         raise ValueError(f"rgb must have shape (..., 3), got {rgb.shape}")
+    dtype = np.dtype(dtype)
     key = canonical_primaries(primaries)
+    rgb = rgb.astype(dtype, copy=False)
     if key == "max":
         # Chained np.maximum on channel views: much faster than a reduction over a length-3 axis.
         y = np.maximum(np.maximum(rgb[..., 0], rgb[..., 1], out=out), rgb[..., 2], out=out)
     elif key == "mean":
-        y = np.mean(rgb, axis=-1, dtype=np.float32, out=out)
+        y = np.mean(rgb, axis=-1, dtype=dtype, out=out)
     else:
-        w = luminance_weights(key).astype(np.float32)
-        y = np.matmul(rgb.astype(np.float32, copy=False), w, out=out)
-    y = np.asarray(y, dtype=np.float32)
+        y = np.matmul(rgb, luminance_weights(key).astype(dtype), out=out)
+    y = np.asarray(y, dtype=dtype)
     np.maximum(y, 0.0, out=y)
     return y

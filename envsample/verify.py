@@ -18,8 +18,7 @@ convention (:mod:`envsample.sphere`: up axis and rotation of the table).  Every
 estimator of :func:`envsample.mis.estimate_irradiance` renders ``E(n)`` at ``spp``
 samples per normal; :func:`envsample.reference.reference_irradiance` gives the exact
 ``E(n)`` of the piecewise-constant map.  All error figures are on **luminance**
-(the table's primaries; weights of :func:`envsample.constants.luminance_weights`,
-computed in float64) of the float32 images that are written to disk, so they can be
+(the table's primaries, :func:`envsample.color.luminance` computed in float64) of the float32 images that are written to disk, so they can be
 recomputed from the EXR files.  Averages over normals are weighted by the solid
 angle of each normal's cell of the grid (a lat-long grid crowds its poles; this makes
 the averages independent of the parameterisation).  With ``Ebar`` the weighted mean
@@ -92,8 +91,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .constants import luminance_weights
-from .color import canonical_primaries
+from .color import luminance
 from .errors import EnvsampleError
 from .sphere import direction_to_pixel, orthonormal_basis, pixel_center_directions, row_solid_angles, _frame
 
@@ -278,19 +276,6 @@ def normal_grid(width: int, height: int, *, up: str = "y", rotate_deg: float = 0
     return n, w
 
 
-def _luminance64(rgb, primaries: str) -> np.ndarray:
-    """Luminance (float64, clamped at 0) of linear RGB ``(..., 3)``; the float64 twin of color.luminance."""
-    rgb = np.asarray(rgb, dtype=np.float64)
-    key = canonical_primaries(primaries)
-    if key == "max":
-        y = rgb.max(axis=-1)
-    elif key == "mean":
-        y = rgb.mean(axis=-1)
-    else:
-        y = rgb @ np.asarray(luminance_weights(key), dtype=np.float64)
-    return np.maximum(y, 0.0)
-
-
 def error_metrics(estimate, reference, weights, *, primaries: str = "bt709") -> dict:
     """Relative RMSE and mean bias of an estimate against the reference, on luminance.
 
@@ -300,8 +285,8 @@ def error_metrics(estimate, reference, weights, *, primaries: str = "bt709") -> 
     the weighted mean reference luminance ``Ebar`` (see the module docstring), and
     ``Ebar`` itself in map units x sr.
     """
-    y = _luminance64(np.asarray(estimate).reshape(-1, 3), primaries)
-    yr = _luminance64(np.asarray(reference).reshape(-1, 3), primaries)
+    y = luminance(np.asarray(estimate).reshape(-1, 3), primaries, dtype=np.float64)
+    yr = luminance(np.asarray(reference).reshape(-1, 3), primaries, dtype=np.float64)
     w = np.asarray(weights, dtype=np.float64).reshape(-1)
     if not (y.shape == yr.shape == w.shape):
         raise ValueError(f"estimate, reference and weights must describe the same normals, got {y.shape}, {yr.shape}, {w.shape}")
@@ -578,7 +563,7 @@ def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
         acc = reference_glossy_accuracy(gtable.image, normals[pick], wo[pick], roughness, **kw)
         ref32 = ref.astype(np.float32)
         ebar = error_metrics(ref32, ref32, weights, primaries=gtable.primaries)["reference_mean"]
-        top = float(_luminance64(ref32, gtable.primaries).max())
+        top = float(luminance(ref32, gtable.primaries, dtype=np.float64).max())
         # The accuracy statement is relative to the largest value; restate it relative to Ebar.
         rel_acc = acc["relative_change"] * top / ebar if ebar > 0 else 0.0
         accuracy = max(accuracy, rel_acc)
@@ -757,6 +742,7 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
 
     entries, panels, grids = {}, [], {}
     ref_acc = float(accuracy.get("relative_error_bound") or 0.0)
+    yr = luminance(ref32, table.primaries, dtype=np.float64)
     for name in names:
         tick(f"estimate {name}")
         est32, entry = _render_one(table, name, n, weights, grid_wh, spp, seed, ref32, ebar, ref_acc)
@@ -766,7 +752,7 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
         files["estimates"][name] = fname
         entries[name] = entry
         grids[name] = est32
-        y, yr = _luminance64(est32, table.primaries), _luminance64(ref32, table.primaries)
+        y = luminance(est32, table.primaries, dtype=np.float64)
         rel = np.abs(y - yr) / ebar if ebar > 0 else np.zeros_like(y)
         panels.append((name, rel.reshape(h, w)))
     recommended = _recommendation(entries)
