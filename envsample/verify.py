@@ -18,8 +18,8 @@ convention (:mod:`envsample.sphere`: up axis and rotation of the table).  Every
 estimator of :func:`envsample.mis.estimate_irradiance` renders ``E(n)`` at ``spp``
 samples per normal; :func:`envsample.reference.reference_irradiance` gives the exact
 ``E(n)`` of the piecewise-constant map.  All error figures are on **luminance**
-(the table's primaries, :func:`envsample.color.luminance` computed in float64) of the float32 images that are written to disk, so they can be
-recomputed from the EXR files.  Averages over normals are weighted by the solid
+(the table's primaries, :func:`envsample.color.luminance` in float64) of the
+float32 images that are written to disk, so they can be recomputed from the EXR files.  Averages over normals are weighted by the solid
 angle of each normal's cell of the grid (a lat-long grid crowds its poles; this makes
 the averages independent of the parameterisation).  With ``Ebar`` the weighted mean
 of the reference luminance:
