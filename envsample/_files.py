@@ -13,7 +13,7 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_write", "atomic_write_bytes", "file_mode", "temporary_path"]
+__all__ = ["atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode", "temporary_path"]
 
 
 def file_mode(path) -> int:
@@ -69,3 +69,8 @@ def atomic_write(path, write, *, fsync: bool = True) -> Path:
 def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:
     """Write ``data`` to ``path`` atomically (see :func:`atomic_write`)."""
     return atomic_write(path, lambda f: f.write(data), fsync=fsync)
+
+
+def atomic_write_text(path, text: str) -> Path:
+    """Write UTF-8 ``text`` to ``path`` atomically (see :func:`atomic_write`)."""
+    return atomic_write_bytes(path, text.encode("utf-8"))

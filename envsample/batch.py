@@ -95,6 +95,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ._files import atomic_write_text
 from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
 
 __all__ = [
@@ -1066,12 +1067,6 @@ def _csv_value(v) -> str:
     return str(v)
 
 
-def _atomic_text(path: Path, text: str) -> None:
-    from ._files import atomic_write
-
-    atomic_write(path, lambda f: f.write(text.encode("utf-8")))
-
-
 def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
     """summary.json, summary.csv and index.html in OUTDIR, each by temporary file and rename."""
     from . import __version__
@@ -1089,13 +1084,13 @@ def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
     }
     paths = {"json": result.outdir / "summary.json", "csv": result.outdir / "summary.csv",
              "html": result.outdir / "index.html"}
-    _atomic_text(paths["json"], json.dumps(doc, indent=2, allow_nan=False) + "\n")
+    atomic_write_text(paths["json"], json.dumps(doc, indent=2, allow_nan=False) + "\n")
     buf = _io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
     writer.writerow(ROW_FIELDS)
     for row in rows:
         writer.writerow([_csv_value(row[k]) for k in ROW_FIELDS])
-    _atomic_text(paths["csv"], buf.getvalue())
+    atomic_write_text(paths["csv"], buf.getvalue())
     from .html import index_page
 
     index_page(_index_rows(result, rows), paths["html"])

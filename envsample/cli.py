@@ -683,12 +683,6 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
 # --------------------------------------------------------------------------- check
 
 
-def _write_text_atomic(path: Path, text: str) -> None:
-    from ._files import atomic_write
-
-    atomic_write(path, lambda f: f.write(text.encode("utf-8")))
-
-
 @main.command()
 @click.argument("maps", metavar="MAP...", nargs=-1, required=True, type=click.Path(dir_okay=False, path_type=Path))
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
@@ -726,7 +720,9 @@ def check(maps, profile_path, json_path, html_path, strict, only):
         if str(json_path) == "-":
             click.echo(text, nl=False)
         else:
-            _write_text_atomic(json_path, text)
+            from ._files import atomic_write_text
+
+            atomic_write_text(json_path, text)
             click.echo(f"wrote {json_path}")
     if html_path is not None:
         from .html import check_page

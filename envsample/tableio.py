@@ -142,7 +142,7 @@ def save_table(table, prefix, *, raw: bool = False) -> list[Path]:
         atomic_write(paths["bin"], write_bin)
         written.append(paths["bin"])
     text = json.dumps(doc, indent=2, sort_keys=False) + "\n"
-    atomic_write(paths["json"], lambda f: f.write(text.encode("utf-8")))
+    atomic_write(paths["json"], lambda f: f.write(text.encode("utf-8")))  # through the module name: tests patch it
     written.append(paths["json"])
     if not raw and paths["bin"].exists():
         # A raw file from an earlier save no longer matches this table: remove it so a

@@ -600,11 +600,10 @@ def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
 
 
 def _write_json(path: Path, doc: dict) -> None:
-    """Write JSON atomically (temporary file beside it, then rename; tableio's writer)."""
-    from ._files import atomic_write
+    """Write JSON atomically (temporary file beside it, then rename)."""
+    from ._files import atomic_write_text
 
-    text = json.dumps(doc, indent=2, allow_nan=False) + "\n"
-    atomic_write(path, lambda f: f.write(text.encode("utf-8")))
+    atomic_write_text(path, json.dumps(doc, indent=2, allow_nan=False) + "\n")
 
 
 def _error_pictures(outdir: Path, panels: list, rotate_deg: float) -> list[str]:

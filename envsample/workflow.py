@@ -306,14 +306,14 @@ def vectors_text(doc: dict) -> str:
 
 def write_vectors(path, doc: dict, *, make_dirs: bool = True) -> Path:
     """Write a golden-vector document atomically (temporary file, then rename); return the path."""
-    from ._files import atomic_write
+    from ._files import atomic_write_text
 
     p = Path(path)
     check_output_folder(p)
-    data = vectors_text(doc).encode("utf-8")
+    text = vectors_text(doc)
     if make_dirs and not p.parent.exists():
         p.parent.mkdir(parents=True)
-    atomic_write(p, lambda f: f.write(data))
+    atomic_write_text(p, text)
     return p
 
 
