@@ -165,13 +165,10 @@ def _rows(pairs, *, out=None) -> None:
 
 
 def _num(x: float) -> str:
-    """A compact number: 4 significant digits, scientific only when needed."""
-    x = float(x)
-    if x == 0.0 or not math.isfinite(x):
-        return f"{x:g}"
-    if 1e-3 <= abs(x) < 1e6:
-        return f"{x:.4g}"
-    return f"{x:.3e}"
+    """A compact number (4 significant digits), written as in every report (:func:`envsample._text.number`)."""
+    from ._text import number
+
+    return number(x, 4)
 
 
 def _bytes(n: int) -> str:

@@ -67,6 +67,7 @@ from urllib.parse import quote, urlsplit
 import numpy as np
 
 from ._files import atomic_write_bytes
+from ._text import number
 
 from .errors import EnvsampleError
 from .qa import SEVERITIES, Report
@@ -241,12 +242,7 @@ def _num(x, digits: int = 4) -> str:
         x = float(x)
         if not math.isfinite(x):
             return "\u2014" if math.isnan(x) else ("\u221e" if x > 0 else "\u2212\u221e")
-        if x == 0.0:
-            return "0"
-        if 1e-3 <= abs(x) < 1e6:
-            # Large values keep their integer digits ("2104", not "2.1e+03").
-            return f"{x:.0f}" if abs(x) >= 10 ** digits else f"{x:.{digits}g}"
-        return f"{x:.{max(1, digits - 1)}e}"
+        return number(x, digits)
     if isinstance(x, (list, tuple)):
         return ", ".join(_num(v, digits) for v in x)
     return str(x)

@@ -63,6 +63,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ._text import number
 from .color import canonical_primaries, luminance
 from .constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
 from .errors import EnvsampleError, MapReadError
@@ -731,16 +732,9 @@ def _fmt(x, digits: int = 3) -> str:
     """A number for a message: ``digits`` significant digits, no exponent for ordinary sizes."""
     if x is None:
         return "-"
-    if isinstance(x, (int, np.integer)) and not isinstance(x, bool):
-        return str(int(x))
-    x = float(x)
-    if not math.isfinite(x):
-        return str(x)
-    if x != 0 and (abs(x) >= 1e6 or abs(x) < 1e-3):
-        return f"{x:.{digits - 1}e}"
-    if abs(x) >= 10 ** digits:
-        return f"{x:.0f}"
-    return f"{x:.{digits}g}"
+    if isinstance(x, np.integer):
+        x = int(x)
+    return number(x, digits)
 
 
 def _deg(x: float) -> str:

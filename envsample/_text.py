@@ -1,0 +1,27 @@
+"""How numbers are written for people, the same in terminal output, report messages and pages."""
+
+from __future__ import annotations
+
+import math
+
+__all__ = ["number"]
+
+
+def number(x, digits: int = 4) -> str:
+    """``x`` with ``digits`` significant digits; scientific notation only below 1e-3 or from 1e6 on.
+
+    Integers print as they are; values from ``10**digits`` to 1e6 keep their integer
+    digits ("61024", not "6.102e+04"); non-finite values print as ``inf``/``nan``.
+    """
+    if isinstance(x, int) and not isinstance(x, bool):
+        return str(x)
+    x = float(x)
+    if not math.isfinite(x):
+        return str(x)
+    if x == 0.0:
+        return "0"
+    if abs(x) >= 1e6 or abs(x) < 1e-3:
+        return f"{x:.{max(1, digits - 1)}e}"
+    if abs(x) >= 10**digits:
+        return f"{x:.0f}"
+    return f"{x:.{digits}g}"
