@@ -605,10 +605,23 @@ class CheckContext:
         return np.isfinite(self.raw)
 
     @functools.cached_property
+    def all_finite(self) -> bool:
+        """No NaN or Inf anywhere: one float64 sum, which any of them poisons (no boolean image)."""
+        with np.errstate(invalid="ignore", over="ignore"):
+            return bool(np.isfinite(np.sum(self.raw, dtype=np.float64)))
+
+    @functools.cached_property
+    def clean(self) -> bool:
+        """Finite and non-negative everywhere (the common case, decided in two passes)."""
+        return self.all_finite and float(self.raw.min()) >= 0.0
+
+    @functools.cached_property
     def rgb(self) -> np.ndarray:
         rgb = self.raw
         if not self.image.is_hdr:
             rgb = _srgb_decode(rgb)
+        elif self.clean:
+            return rgb
         bad = ~self.finite
         if bad.any() or (rgb < 0).any():
             rgb = np.where(bad | (rgb < 0), np.float32(0.0), rgb).astype(np.float32)
@@ -868,36 +881,26 @@ def _count_check(ctx: CheckContext, check_id: str, bad: np.ndarray, what: str) -
     )
 
 
-def _raw_is_finite(ctx: CheckContext) -> bool:
-    """True when no pixel is NaN or infinite: one float64 sum, which any of them poisons."""
-    cached = getattr(ctx, "_finite_sum", None)
-    if cached is None:
-        with np.errstate(invalid="ignore", over="ignore"):
-            cached = bool(np.isfinite(np.sum(ctx.raw, dtype=np.float64)))
-        ctx._finite_sum = cached
-    return cached
-
-
 def _no_bad_pixels(ctx: CheckContext, check_id: str, what: str) -> CheckResult:
     s = ctx.settings(check_id)
     return CheckResult(check_id, "pass", value=0, threshold=s["max_pixels"], message=f"no {what} pixels")
 
 
 def _check_nan(ctx: CheckContext) -> CheckResult:
-    if _raw_is_finite(ctx):  # the common case costs one pass instead of a full boolean image
+    if ctx.all_finite:  # the common case costs one pass instead of a full boolean image
         return _no_bad_pixels(ctx, "nan", "NaN")
     return _count_check(ctx, "nan", np.isnan(ctx.raw).any(axis=2), "NaN")
 
 
 def _check_inf(ctx: CheckContext) -> CheckResult:
-    if _raw_is_finite(ctx):
+    if ctx.all_finite:
         return _no_bad_pixels(ctx, "inf", "infinite")
     return _count_check(ctx, "inf", np.isinf(ctx.raw).any(axis=2), "infinite")
 
 
 def _check_negative(ctx: CheckContext) -> CheckResult:
     s = ctx.settings("negative")
-    if _raw_is_finite(ctx) and float(ctx.raw.min()) >= 0.0:
+    if ctx.clean:
         return CheckResult("negative", "pass", value=0.0, threshold=s["warn_above_fraction"],
                            message="no negative values")
     with np.errstate(invalid="ignore"):
