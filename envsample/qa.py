@@ -774,8 +774,11 @@ def _check_read(ctx: CheckContext) -> CheckResult:
 
 def _check_hdr(ctx: CheckContext) -> CheckResult:
     im = ctx.image
-    finite = ctx.raw[ctx.finite]
-    peak = float(finite.max()) if finite.size else None
+    if ctx.all_finite:
+        peak = float(ctx.raw.max()) if ctx.raw.size else None
+    else:
+        finite = ctx.raw[ctx.finite]
+        peak = float(finite.max()) if finite.size else None
     if im.is_hdr:
         return CheckResult("hdr", "pass", value=True, threshold=True,
                            message=f"high dynamic range data ({im.pixel_type}), brightest value {_fmt(peak)}")
