@@ -660,6 +660,12 @@ class CheckContext:
         return luminance(self.rgb, "max")
 
     @functools.cached_property
+    def constant_rows(self) -> np.ndarray:
+        """bool (H,): rows whose pixels all have the same largest channel."""
+        m = self.max_channel
+        return m.max(axis=1) == m.min(axis=1)
+
+    @functools.cached_property
     def emitter_labels(self) -> tuple[np.ndarray, int]:
         """Wrapped connected components of the emitter mask (see :func:`_emitter_level`)."""
         return label_wrapped(self.luminance > _emitter_level(self))
@@ -976,8 +982,7 @@ def _plateau(ctx: CheckContext, region: np.ndarray | None, s: dict) -> dict | No
     mask = values >= level * (1.0 - s["plateau_relative_tolerance"])
     # Rows of identical pixels are an azimuth-independent sky (and pole rows image one
     # direction): equal values there are not clipping.
-    constant_rows = m.max(axis=1) == m.min(axis=1)
-    mask &= ~constant_rows[:, None]
+    mask &= ~ctx.constant_rows[:, None]
     if not mask.any():
         return None
     labels, n = label_wrapped(mask)
@@ -1014,9 +1019,11 @@ def _plateau(ctx: CheckContext, region: np.ndarray | None, s: dict) -> dict | No
     }
 
 
-def _plateau_is_clipped(p: dict, s: dict) -> bool:
-    return (p["pixels"] >= s["plateau_min_pixels"] and p["sun_multiple"] >= s["plateau_min_sun_multiple"]
-            and p["contrast"] >= s["plateau_min_contrast"] and p["shoulder"] >= s["plateau_min_shoulder"])
+def _plateau_is_clipped(p: dict, s: dict, *, shoulder: bool = True) -> bool:
+    """Large, bright and (with ``shoulder``) still rising just outside: the signs of clipping."""
+    big = (p["pixels"] >= s["plateau_min_pixels"] and p["sun_multiple"] >= s["plateau_min_sun_multiple"]
+           and p["contrast"] >= s["plateau_min_contrast"])
+    return big and (not shoulder or p["shoulder"] >= s["plateau_min_shoulder"])
 
 
 def _check_clipping(ctx: CheckContext) -> CheckResult:
@@ -1057,8 +1064,7 @@ def _check_clipping(ctx: CheckContext) -> CheckResult:
         details["plateau"] = p
         note = (f"largest plateau at the maximum: {p['pixels']} px, {_fmt(p['sun_multiple'])}x the sun's solid angle "
                 "(not clipped)")
-        if (p["pixels"] >= s["plateau_min_pixels"] and p["sun_multiple"] >= s["plateau_min_sun_multiple"]
-                and p["contrast"] >= s["plateau_min_contrast"]):
+        if _plateau_is_clipped(p, s, shoulder=False):
             note = (f"{p['pixels']} pixels share the maximum inside a sharp-edged emitter "
                     "(a uniform area light; a capture would show noise)")
         break
