@@ -422,11 +422,11 @@ def _map_name(path: Path, sha256: str, width: int = 8) -> str:
 
 def _hash_all(paths: list[Path]) -> list[tuple[str | None, str | None]]:
     """(sha256, error) per path; hashing releases the GIL, so threads overlap the reads."""
-    from .io import _sha256
+    from .io import file_sha256
 
     def one(p: Path):
         try:
-            return _sha256(p), None
+            return file_sha256(p), None
         except MapReadError as e:
             return None, str(e)
 
@@ -480,12 +480,12 @@ def _report_figures(report) -> dict:
 
 
 def _files_of(folder: Path) -> dict:
-    from .io import _sha256
+    from .io import file_sha256
 
     files = {}
     for p in sorted(folder.rglob("*")):
         if p.is_file():
-            files[p.relative_to(folder).as_posix()] = {"size": p.stat().st_size, "sha256": _sha256(p)}
+            files[p.relative_to(folder).as_posix()] = {"size": p.stat().st_size, "sha256": file_sha256(p)}
     return files
 
 

@@ -68,6 +68,7 @@ __all__ = [
     "write_map",
     "supported_extensions",
     "map_pixels",
+    "file_sha256",
     "LOSSLESS_COMPRESSIONS",
     "PIXEL_TYPES",
 ]
@@ -225,7 +226,7 @@ def read_map(path, *, layer: str | None = None) -> MapImage:
     _check_readable(p)
     if layer is not None and ext not in _EXR_EXTENSIONS:
         raise MapReadError(f"{p}: layer={layer!r} applies to OpenEXR files only; omit it for {ext} files")
-    digest = _sha256(p)
+    digest = file_sha256(p)
     if ext in _EXR_EXTENSIONS:
         image = _read_exr(p, layer)
     elif ext in _HDR_EXTENSIONS:
@@ -248,7 +249,9 @@ def _check_readable(p: Path) -> None:
         raise MapReadError(f"{p}: file is empty (0 bytes); the export or copy probably failed, re-export it")
 
 
-def _sha256(p: Path) -> str:
+def file_sha256(path) -> str:
+    """Hex SHA-256 of a file's bytes, read in 1 MiB blocks; MapReadError names the file if it cannot be read."""
+    p = Path(path)
     h = hashlib.sha256()
     try:
         with open(p, "rb") as fh:

@@ -51,7 +51,6 @@ from __future__ import annotations
 
 import copy
 import functools
-import hashlib
 import json
 import math
 import os
@@ -67,7 +66,7 @@ from ._text import number
 from .color import canonical_primaries, luminance
 from .constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
 from .errors import EnvsampleError, MapReadError
-from .io import MapImage, read_map
+from .io import MapImage, file_sha256, read_map
 from .sphere import row_cos_edges, row_solid_angles
 from .table import row_channel_sums
 
@@ -1418,13 +1417,10 @@ CHECKS: dict[str, Callable[[CheckContext], CheckResult]] = {
 
 
 def _file_sha256(p: Path) -> str | None:
+    """The file's SHA-256, or None when it cannot be read (the report says why elsewhere)."""
     try:
-        h = hashlib.sha256()
-        with open(p, "rb") as f:
-            for block in iter(lambda: f.read(1 << 20), b""):
-                h.update(block)
-        return h.hexdigest()
-    except OSError:
+        return file_sha256(p)
+    except MapReadError:
         return None
 
 

@@ -30,7 +30,8 @@ from . import distribution as dist
 from .errors import TableFormatError
 from ._files import atomic_write
 
-__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "save_table", "load_table", "table_paths", "atomic_write", "read_table_json"]
+__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "save_table", "load_table", "table_paths", "atomic_write", "read_table_json",
+           "array_checksums"]
 
 SCHEMA_NAME = "envsample.sampling-table"
 SCHEMA_VERSION = 1
@@ -83,10 +84,20 @@ def _sha(a: np.ndarray) -> str:
     return hashlib.sha256(memoryview(np.ascontiguousarray(a)).cast("B")).hexdigest()
 
 
+def _stored_arrays(table) -> dict[str, np.ndarray]:
+    """The table's arrays as they are stored: little-endian, C order, the dtypes of ARRAY_DTYPES."""
+    return {name: _le(a, ARRAY_DTYPES[name]) for name, a in table.arrays().items()}
+
+
+def array_checksums(table) -> dict[str, str]:
+    """SHA-256 of every stored array's bytes, as written in ``PREFIX.json`` (``arrays.NAME.sha256``)."""
+    return {name: _sha(a) for name, a in _stored_arrays(table).items()}
+
+
 def save_table(table, prefix, *, raw: bool = False) -> list[Path]:
     """Write a table's files atomically; returns the paths written (JSON last)."""
     paths = table_paths(prefix)
-    arrays = {name: _le(a, ARRAY_DTYPES[name]) for name, a in table.arrays().items()}
+    arrays = _stored_arrays(table)
     entries = {}
     offset = 0
     for name, a in arrays.items():

@@ -25,7 +25,6 @@ References
 
 from __future__ import annotations
 
-import hashlib
 import json
 import time
 import warnings
@@ -217,16 +216,6 @@ _VECTOR_FIELDS = {
 }
 
 
-def _array_sha256(table) -> dict[str, str]:
-    from .tableio import ARRAY_DTYPES
-
-    out = {}
-    for name, a in table.arrays().items():
-        data = np.ascontiguousarray(a, dtype=np.dtype(ARRAY_DTYPES[name]))
-        out[name] = hashlib.sha256(memoryview(data).cast("B")).hexdigest()
-    return out
-
-
 def _methods(method) -> tuple[str, ...]:
     if isinstance(method, str):
         if method == "both":
@@ -267,6 +256,8 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
             rec[m] = {"direction": d[k], "pdf": p[k], "cell": c[k], "radiance": r[k]}
         records.append(rec)
     from . import __version__
+    from .io import file_sha256
+    from .tableio import array_checksums
 
     info = {
         "image": {"width": table.width, "height": table.height},
@@ -276,11 +267,11 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
         "up_axis": table.up,
         "rotation_deg": table.rotate_deg,
         "uniform_mix": table.uniform_mix,
-        "array_sha256": _array_sha256(table),
+        "array_sha256": array_checksums(table),
     }
     if table_json is not None:
         path = Path(table_json)
-        info = {"json": path.name, "json_sha256": hashlib.sha256(path.read_bytes()).hexdigest(), **info}
+        info = {"json": path.name, "json_sha256": file_sha256(path), **info}
     return {
         "schema": VECTORS_SCHEMA,
         "schema_version": VECTORS_SCHEMA_VERSION,
