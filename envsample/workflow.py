@@ -317,9 +317,11 @@ def map_integrals(rgb: np.ndarray, primaries: str = "bt709") -> tuple[list[float
     Each pixel weighs its exact solid angle (:func:`envsample.sphere.row_solid_angles`).
     Returns ``([R, G, B], Y, luminance float32 (H, W))``.
     """
+    from .table import row_channel_sums
+
     h, w = rgb.shape[:2]
     sa = row_solid_angles(h, w)
-    per_rgb = (rgb.sum(axis=1, dtype=np.float64) * sa[:, None]).sum(axis=0)
+    per_rgb = (row_channel_sums(rgb) * sa[:, None]).sum(axis=0)
     lum = luminance(rgb, primaries)
     return [float(x) for x in per_rgb], float(np.dot(lum.sum(axis=1, dtype=np.float64), sa)), lum
 
