@@ -236,6 +236,26 @@ DEGREES = _FiniteFloat(-360.0, 360.0, "DEG")
 PRIMARY_CHOICES = ("bt709", "srgb", "bt2020", "acescg", "aces2065-1", "max", "mean")
 
 
+def _table_options(command):
+    """The table options shared by ``build`` and ``batch`` (the keywords of build_table)."""
+    options = (
+        click.option("--size", type=SIZE, default=None, help="Table grid WIDTHxHEIGHT (area-weighted, "
+                     "power-preserving reduction); default: the map's own size."),
+        click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
+                     show_default=True, help="Luminance weights the table follows."),
+        click.option("--mapping", type=click.Choice(["equal-area", "uv-linear"]), default="equal-area",
+                     show_default=True, help="Placement within a cell: equal-area (pdf constant per cell) or uv-linear."),
+        click.option("--uniform-mix", type=click.FloatRange(0.0, 1.0, max_open=True), default=0.0, show_default=True,
+                     metavar="F", help="Weight of uniform sphere sampling mixed in, so the pdf is never zero."),
+        click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True, help="World up axis."),
+        click.option("--rotate", "rotate_deg", type=DEGREES, default=0.0, show_default=True,
+                     help="Rotation of the map about the up axis, degrees."),
+    )
+    for option in reversed(options):
+        command = option(command)
+    return command
+
+
 # --------------------------------------------------------------------------- the group
 
 
@@ -261,17 +281,7 @@ def main(debug):
               help="Table prefix: writes PREFIX.npz and PREFIX.json (and PREFIX.bin with --raw). "
                    "An existing folder (or a path ending in '/') gets the map's name. "
                    "Missing folders are created, but only once the map has passed every check.")
-@click.option("--size", type=SIZE, default=None, help="Table grid WIDTHxHEIGHT (area-weighted, power-preserving "
-              "reduction); default: the map's own size.")
-@click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
-              show_default=True, help="Luminance weights the table follows.")
-@click.option("--mapping", type=click.Choice(["equal-area", "uv-linear"]), default="equal-area", show_default=True,
-              help="Placement within a cell: equal-area (pdf constant per cell) or uv-linear.")
-@click.option("--uniform-mix", type=click.FloatRange(0.0, 1.0, max_open=True), default=0.0, show_default=True,
-              metavar="F", help="Weight of uniform sphere sampling mixed in, so the pdf is never zero.")
-@click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True, help="World up axis.")
-@click.option("--rotate", "rotate_deg", type=DEGREES, default=0.0, show_default=True,
-              help="Rotation of the map about the up axis, degrees.")
+@_table_options
 @click.option("--compensate", is_flag=True, help="MIS-compensated table (sphere-mean luminance subtracted); "
               "valid only inside an MIS combination.")
 @click.option("--tune", is_flag=True, help="Run a short pilot and store the best one-sample MIS selection "
@@ -745,16 +755,7 @@ def check(maps, profile_path, json_path, html_path, strict, only):
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
               help="QA thresholds (TOML); default: the built-in profile.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
-@click.option("--size", type=SIZE, default=None, help="Table grid WIDTHxHEIGHT (default: each map's own size).")
-@click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
-              show_default=True, help="Luminance weights of the tables.")
-@click.option("--mapping", type=click.Choice(["equal-area", "uv-linear"]), default="equal-area", show_default=True,
-              help="In-cell mapping of the tables.")
-@click.option("--uniform-mix", type=click.FloatRange(0.0, 1.0, max_open=True), default=0.0, show_default=True,
-              help="Fraction of uniform sphere sampling mixed into the tables.")
-@click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True, help="World up axis.")
-@click.option("--rotate", "rotate_deg", type=DEGREES, default=0.0, show_default=True,
-              help="Rotation of the environments about the up axis, degrees.")
+@_table_options
 def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
           uniform_mix, up, rotate_deg):
     """Check, build tables for (and optionally verify) every map under SOURCE.
