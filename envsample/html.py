@@ -69,7 +69,7 @@ import numpy as np
 from ._files import atomic_write_bytes
 from ._text import number
 
-from .errors import EnvsampleError
+from .errors import EnvsampleError, MapValidationError
 from .qa import SEVERITIES, Report
 
 __all__ = [
@@ -352,7 +352,7 @@ def _number(x) -> float | None:
 
 def _pixels(rep: dict, image):
     """Linear RGB float32 of the map (bad pixels zeroed) and a note; (None, why) when there are none."""
-    from .io import MapImage, read_map
+    from .io import map_pixels, read_map
 
     if image is None:
         if not rep.get("readable", True):
@@ -369,10 +369,10 @@ def _pixels(rep: dict, image):
             image = read_map(image)
         except EnvsampleError as e:
             return None, f"the file could not be read: {e}"
-    rgb = image.rgb if isinstance(image, MapImage) else np.asarray(image)
-    if rgb.ndim != 3 or rgb.shape[2] != 3 or rgb.shape[0] < 1 or rgb.shape[1] < 1:
-        return None, f"no picture: pixels of shape {rgb.shape} are not (H, W, 3)"
-    rgb = np.asarray(rgb, dtype=np.float32)
+    try:
+        rgb = map_pixels(image)
+    except MapValidationError:
+        return None, f"no picture: pixels of shape {np.shape(getattr(image, 'rgb', image))} are not (H, W, 3)"
     bad = ~np.isfinite(rgb)
     note = ""
     if bad.any() or (rgb < 0).any():
