@@ -457,9 +457,10 @@ def _pdf_png(rgb: np.ndarray, primaries: str) -> tuple[bytes, str]:
         caption += f"; this map is nearly flat (peak {_num(hi, 3)} /sr). "
     else:
         # Cell centres in the image frame of envsample.sphere (rotation 0), as the checks report them.
+        from .sphere import pixel_center_angles
+
         i, j = np.unravel_index(int(np.argmax(pdf)), pdf.shape)
-        az = (j + 0.5) * 360.0 / pdf.shape[1] - 180.0
-        el = 90.0 - (i + 0.5) * 180.0 / pdf.shape[0]
+        az, el = pixel_center_angles(i, j, pdf.shape[0], pdf.shape[1])
         caption += (f"; this map peaks at {_num(hi, 3)} /sr ({_num(hi / uniform, 3)}\u00d7 uniform) in the cell at "
                     f"azimuth {_num(az, 4)}\u00b0, elevation {_num(el, 3)}\u00b0. ")
     if positive.size < pdf.size:

@@ -67,7 +67,7 @@ from .color import canonical_primaries, luminance
 from .constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
 from .errors import EnvsampleError, MapReadError
 from .io import MapImage, file_sha256, read_map
-from .sphere import row_cos_edges, row_solid_angles
+from .sphere import pixel_center_angles, row_cos_edges, row_solid_angles
 from .table import row_channel_sums
 
 __all__ = [
@@ -1157,8 +1157,8 @@ def _check_orientation(ctx: CheckContext) -> CheckResult:
                            message="the map is black: no orientation to check")
     upper = float(ctx.row_power @ _upper_fraction_rows(ctx.height))
     share = upper / total
-    brightest_row = int(np.unravel_index(np.argmax(ctx.luminance), ctx.luminance.shape)[0])
-    el = 90.0 - (brightest_row + 0.5) * 180.0 / ctx.height
+    brightest_row, brightest_col = np.unravel_index(np.argmax(ctx.luminance), ctx.luminance.shape)
+    _, el = pixel_center_angles(int(brightest_row), int(brightest_col), ctx.height, ctx.width)
     details = {"upper_share": share, "brightest_elevation_deg": el}
     msg = f"upper hemisphere holds {_pct(share)} of the light (brightest pixel at elevation {_deg(el)} deg)"
     # A relative margin keeps an exactly even split (a uniform map) on the passing side despite rounding.

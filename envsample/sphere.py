@@ -46,6 +46,7 @@ __all__ = [
     "pixel_solid_angles",
     "direction_to_pixel",
     "pixel_center_directions",
+    "pixel_center_angles",
     "orthonormal_basis",
     "to_local",
     "to_world",
@@ -176,6 +177,20 @@ def direction_to_pixel(d, height: int, width: int, *, up: str = "y", rotate_deg:
     col = np.minimum((u * width).astype(np.int64), width - 1)
     row = np.minimum((v * height).astype(np.int64), height - 1)
     return row, col
+
+
+def pixel_center_angles(row, col, height: int, width: int, *, rotate_deg: float = 0.0):
+    """Azimuth and elevation, **degrees**, of pixel centres (for reports and messages).
+
+    Azimuth is the convention's phi wrapped to (-180, 180] (0 = image centre, positive
+    to the right, plus the rotation); elevation is 90 deg minus the polar angle from
+    the up axis.  ``row`` and ``col`` may be arrays; returns float64 arrays (or floats).
+    """
+    az = 360.0 * ((np.asarray(col) + 0.5) / width - 0.5) + float(rotate_deg)
+    az = (az + 180.0) % 360.0 - 180.0
+    az = np.where(az == -180.0, 180.0, az)
+    el = 90.0 - 180.0 * (np.asarray(row) + 0.5) / height
+    return (float(az), float(el)) if np.ndim(az) == 0 and np.ndim(el) == 0 else (az, el)
 
 
 def pixel_center_directions(height: int, width: int, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:

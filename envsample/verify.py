@@ -93,7 +93,8 @@ import numpy as np
 
 from .color import luminance
 from .errors import EnvsampleError
-from .sphere import direction_to_pixel, orthonormal_basis, pixel_center_directions, row_solid_angles, _frame
+from .sphere import (_frame, direction_to_pixel, orthonormal_basis, pixel_center_angles, pixel_center_directions,
+                     row_solid_angles)
 
 __all__ = [
     "CAUTION",
@@ -336,9 +337,9 @@ def _largest_sample(samples, height: int, width: int, rotate_deg: float) -> dict
     flat = int(np.argmax(c))
     normal, k = divmod(flat, c.shape[1])
     row, col = divmod(normal, width)
-    azimuth = (360.0 * ((col + 0.5) / width - 0.5) + rotate_deg + 180.0) % 360.0 - 180.0
+    azimuth, elevation = pixel_center_angles(row, col, height, width, rotate_deg=rotate_deg)
     strategy = samples.strategies[int(samples.strategy[normal, k])]
-    return {"normal_azimuth_deg": round(azimuth, 3), "normal_elevation_deg": round(90.0 - 180.0 * (row + 0.5) / height, 3),
+    return {"normal_azimuth_deg": round(azimuth, 3), "normal_elevation_deg": round(elevation, 3),
             "strategy": strategy}
 
 

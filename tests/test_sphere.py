@@ -265,3 +265,18 @@ def test_to_local_and_to_world_are_inverse(rng):
 def test_public_names_exist():
     for name in sphere.__all__:
         assert hasattr(sphere, name), name
+
+
+@pytest.mark.parametrize("rotate", [0.0, 30.0, -135.0])
+def test_pixel_center_angles_agree_with_the_directions(rotate):
+    """Degrees for reports read off the same convention as the directions (azimuth from phi, elevation 90 - theta)."""
+    from envsample.sphere import pixel_center_angles
+    from envsample.workflow import direction_angles
+
+    h, w = 6, 12
+    d = sphere.pixel_center_directions(h, w, up="z", rotate_deg=rotate)
+    az_ref, el_ref = direction_angles(d, up="z", rotate_deg=rotate)
+    rows, cols = np.meshgrid(np.arange(h), np.arange(w), indexing="ij")
+    az, el = pixel_center_angles(rows, cols, h, w, rotate_deg=rotate)
+    np.testing.assert_allclose(el, el_ref, atol=1e-9)
+    np.testing.assert_allclose(np.cos(np.radians(az - az_ref)), 1.0, atol=1e-12)  # equal modulo 360
