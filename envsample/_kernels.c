@@ -3,7 +3,7 @@
  * available; envsample falls back to its numpy code otherwise).
  *
  * alias_sweep    : alias table by the sequential sweep of Huebschle-Schneider &
- *                  Sanders (2022), in place and O(n), with the current heavy item's
+ *                  Sanders (2022), O(n) over index lists, with the current heavy item's
  *                  residual kept in double precision.
  * sample_table   : cell choice (inverse CDF or alias) + in-cell mapping + pdf, the
  *                  same arithmetic as envsample.table.EnvTable.sample.
@@ -321,7 +321,7 @@ static PyObject *row_cdfs(PyObject *self, PyObject *args) {
 }
 
 static PyMethodDef methods[] = {
-    {"alias_sweep", alias_sweep, METH_VARARGS, "In-place O(n) alias table construction (sweeping method)."},
+    {"alias_sweep", alias_sweep, METH_VARARGS, "O(n) alias table construction (sweeping method)."},
     {"sample_table", sample_table, METH_VARARGS, "Draw directions and pdfs from a table."},
     {"row_cdfs", row_cdfs, METH_VARARGS, "Conditional CDFs of every row, float64 accumulation."},
     {NULL, NULL, 0, NULL},

@@ -15,7 +15,8 @@ prefix sums and merges (``numpy.searchsorted`` on sorted keys), so it is fully
 vectorised: the current heavy item when light item *i* is processed is the first
 heavy *j* whose cumulative excess ``E_j`` reaches the cumulative deficit ``D_{i-1}``
 of the lights before it, and heavy *j* becomes a bucket of its own, aliased to
-heavy *j+1*, at the first light whose cumulative deficit passes ``E_j``.
+heavy *j+1*, at the first light whose cumulative deficit passes ``E_j``.  The optional
+compiled kernel (:mod:`envsample._accel`) runs the same sweep sequentially.
 
 Dtype rule: weights may be float32; prefix sums are accumulated in float64; the
 stored CDFs are float32, non-decreasing, with exact 0 and 1 at their ends.
@@ -222,7 +223,7 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
     probability ``prob[k]``, else returns ``alias[k]``.  An all-zero input gives the
     uniform table.  See the module docstring for the construction (Vose 1991;
     Hübschle-Schneider & Sanders 2022).  ``backend`` chooses the compiled sweep
-    (in place, O(n), no extra memory) or the vectorised numpy version
+    (O(n), over lists of light and heavy cells, 4 bytes of scratch per cell) or the vectorised numpy version
     (see :mod:`envsample._accel`); both encode the same probabilities to float32 rounding.
     """
     w = np.asarray(weights)
