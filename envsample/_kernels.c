@@ -328,6 +328,6 @@ static PyMethodDef methods[] = {
 };
 
 static struct PyModuleDef module = {PyModuleDef_HEAD_INIT, "_kernels", "Optional compiled kernels for envsample.", -1,
-                                    methods};
+                                    methods, NULL, NULL, NULL, NULL};
 
 PyMODINIT_FUNC PyInit__kernels(void) { return PyModule_Create(&module); }
