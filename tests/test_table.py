@@ -294,37 +294,24 @@ def _in_cell_coordinates(t, d):
 
 @pytest.mark.parametrize("backend", BACKENDS)
 @pytest.mark.parametrize("method", SAMPLE_METHODS)
-def test_equal_area_is_uniform_in_cos_theta_and_phi_within_cells(method, backend, rng):
-    """Equal-area mapping: cos(theta) uniform in the row band and phi uniform in the column
-    (scipy.stats.kstest against U(0, 1)), independent of each other (chi-square on an 8 x 8 grid).
-    Power check: theta itself is *not* uniform within the polar rows, and KS sees it."""
-    rgb = np.ones((8, 16, 3), dtype=np.float32)  # polar rows hold 4 % of the samples each
-    rgb[2:4] *= 3.0
-    t = build_table(rgb, mapping="equal-area")
-    s = _sample(t, rng.random((100_000, 2)), method, backend)
-    s_cos, s_theta, t_u = _in_cell_coordinates(t, s.directions)
-    assert stats.kstest(s_cos, "uniform").pvalue > P_REJECT
-    assert stats.kstest(t_u, "uniform").pvalue > P_REJECT
-    grid = np.histogram2d(s_cos, t_u, bins=8, range=[[0, 1], [0, 1]])[0].ravel()
-    assert stats.chisquare(grid).pvalue > P_REJECT
-    assert stats.kstest(s_theta, "uniform").pvalue < P_REJECT
-
-
-@pytest.mark.parametrize("backend", BACKENDS)
-@pytest.mark.parametrize("method", SAMPLE_METHODS)
-def test_uv_linear_is_uniform_in_theta_and_phi_within_cells(method, backend, rng):
-    """uv-linear mapping (PBR 3rd ed. 14.2.4): theta (i.e. v) uniform within the row and phi within the
-    column (KS); power check: cos(theta) is then *not* uniform within the polar rows."""
+@pytest.mark.parametrize("mapping", MAPPINGS)
+def test_in_cell_placement_is_uniform_in_the_mapping_coordinate(mapping, method, backend, rng):
+    """Within a cell, phi is uniform in the column and the mapping's polar coordinate is uniform in
+    the row band (scipy.stats.kstest against U(0, 1)), independently (chi-square on an 8 x 8 grid):
+    cos(theta) for equal-area, theta (i.e. v) for uv-linear (PBR 3rd ed. 14.2.4).  Power check: the
+    other polar coordinate is *not* uniform within the polar rows (which hold ~4 % of the samples
+    each), and KS sees it."""
     rgb = np.ones((8, 16, 3), dtype=np.float32)
     rgb[2:4] *= 3.0
-    t = build_table(rgb, mapping="uv-linear")
+    t = build_table(rgb, mapping=mapping)
     s = _sample(t, rng.random((100_000, 2)), method, backend)
     s_cos, s_theta, t_u = _in_cell_coordinates(t, s.directions)
-    assert stats.kstest(s_theta, "uniform").pvalue > P_REJECT
+    uniform, other = (s_cos, s_theta) if mapping == "equal-area" else (s_theta, s_cos)
+    assert stats.kstest(uniform, "uniform").pvalue > P_REJECT
     assert stats.kstest(t_u, "uniform").pvalue > P_REJECT
-    grid = np.histogram2d(s_theta, t_u, bins=8, range=[[0, 1], [0, 1]])[0].ravel()
+    grid = np.histogram2d(uniform, t_u, bins=8, range=[[0, 1], [0, 1]])[0].ravel()
     assert stats.chisquare(grid).pvalue > P_REJECT
-    assert stats.kstest(s_cos, "uniform").pvalue < P_REJECT
+    assert stats.kstest(other, "uniform").pvalue < P_REJECT
 
 
 # ------------------------------------------------------------------ pdf
