@@ -1,7 +1,7 @@
 """Build the optional compiled kernels; everything else is in pyproject.toml.
 
 ``optional=True``: where no C compiler is available the install still succeeds and
-envsample uses its numpy code paths (see envsample/_accel.py).
+envsample uses its numpy code paths (see envsample/sampling/kernels.py).
 """
 
 from setuptools import Extension, setup
@@ -9,8 +9,8 @@ from setuptools import Extension, setup
 setup(
     ext_modules=[
         Extension(
-            "envsample._kernels",
-            ["envsample/_kernels.c"],
+            "envsample.sampling._kernels",
+            ["envsample/sampling/_kernels.c"],
             optional=True,
             extra_compile_args=["-O2", "-fno-fast-math"],
         )

@@ -29,9 +29,9 @@ import tempfile
 import time
 from pathlib import Path
 
-from envsample.batch import run_batch
-from envsample.io import write_map
-from envsample.skies import make_sky
+from envsample.io.maps import write_map
+from envsample.pipeline.batch import run_batch
+from envsample.synth.skies import make_sky
 
 
 def make_folder(folder: Path, n: int, width: int) -> None:

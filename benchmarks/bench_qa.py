@@ -16,9 +16,9 @@ import time
 
 import numpy as np
 
-from envsample.qa import CHECKS, check_map
-from envsample.skies import make_sky
-from envsample.table import build_table
+from envsample.qa.checks import CHECKS, check_map
+from envsample.sampling.table import build_table
+from envsample.synth.skies import make_sky
 
 
 def best(fn, repeats=2):

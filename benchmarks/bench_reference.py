@@ -24,8 +24,8 @@ import time
 
 import numpy as np
 
-from envsample.reference import reference_accuracy, reference_irradiance
-from envsample.sphere import pixel_center_directions
+from envsample.core.sphere import pixel_center_directions
+from envsample.reference.irradiance import reference_accuracy, reference_irradiance
 
 
 def analytic_map(width: int, height: int) -> np.ndarray:

@@ -26,11 +26,11 @@ import time
 
 import numpy as np
 
-from envsample import skies
-from envsample.mis import estimate_irradiance
-from envsample.reference import reference_irradiance
-from envsample.table import build_table
-from envsample.verify import normal_grid, verify_map
+from envsample.estimation.estimators import estimate_irradiance
+from envsample.reference.irradiance import reference_irradiance
+from envsample.sampling.table import build_table
+from envsample.synth import skies
+from envsample.validation.verify import normal_grid, verify_map
 
 ESTIMATORS = ("cosine", "table", "mis-balance", "mis-power", "one-sample-balance", "one-sample-power")
 NORMALS = (128, 64)

@@ -22,12 +22,12 @@ import tracemalloc
 
 import numpy as np
 
-from envsample._accel import backend_name, kernels
-from envsample.color import luminance
-from envsample.constants import luminance_weights
-from envsample.table import build_table
-from envsample.distribution import build_alias, build_row_cdfs
-from envsample.sphere import row_solid_angles
+from envsample.core.color import luminance
+from envsample.core.constants import luminance_weights
+from envsample.core.sphere import row_solid_angles
+from envsample.sampling.distribution import build_alias, build_row_cdfs
+from envsample.sampling.kernels import backend_name, kernels
+from envsample.sampling.table import build_table
 
 
 def best(fn, repeats=3):

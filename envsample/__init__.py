@@ -3,7 +3,7 @@
 The public surface is declared here; names are imported lazily from the module
 that holds them, so ``import envsample`` is cheap and the CLI starts fast.
 
-Conventions (see :mod:`envsample.sphere`): radians inside, degrees only at the
+Conventions (see :mod:`envsample.core.sphere`): radians inside, degrees only at the
 boundary; solid angles in steradians; pdfs per steradian; images float32
 ``(H, W, 3)`` linear RGB with row 0 at the zenith; directions float64 ``(N, 3)``.
 """
@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import importlib
 
-__version__ = "0.1.0"
+from envsample._version import __version__
 
 _EXPORTS = {
     # errors
@@ -22,87 +22,87 @@ _EXPORTS = {
     "TableFormatError": "errors",
     "EnvsampleWarning": "errors",
     # constants
-    "luminance_weights": "constants",
+    "luminance_weights": "core.constants",
     # io
-    "MapImage": "io",
-    "read_map": "io",
-    "write_map": "io",
-    "validate_map": "io",
-    "supported_extensions": "io",
+    "MapImage": "io.maps",
+    "read_map": "io.maps",
+    "write_map": "io.maps",
+    "validate_map": "io.maps",
+    "supported_extensions": "io.maps",
     "MapWriteError": "errors",
     # sphere
-    "uv_to_direction": "sphere",
-    "direction_to_uv": "sphere",
-    "pixel_solid_angles": "sphere",
-    "row_solid_angles": "sphere",
-    "pixel_center_directions": "sphere",
+    "uv_to_direction": "core.sphere",
+    "direction_to_uv": "core.sphere",
+    "pixel_solid_angles": "core.sphere",
+    "row_solid_angles": "core.sphere",
+    "pixel_center_directions": "core.sphere",
     # distribution
-    "build_alias": "distribution",
+    "build_alias": "sampling.distribution",
     # table
-    "EnvTable": "table",
-    "Samples": "table",
-    "build_table": "table",
-    "load_table": "table",
-    "parse_size": "table",
-    "SCHEMA_VERSION": "tableio",
-    "read_table_json": "tableio",
+    "EnvTable": "sampling.table",
+    "Samples": "sampling.table",
+    "build_table": "sampling.table",
+    "load_table": "sampling.table",
+    "parse_size": "sampling.table",
+    "SCHEMA_VERSION": "io.tables",
+    "read_table_json": "io.tables",
     # color
-    "luminance": "color",
+    "luminance": "core.color",
     # skies
-    "make_sky": "skies",
-    "sky_kinds": "skies",
-    "sun_sky": "skies",
-    "cie_overcast_sky": "skies",
-    "uniform_sky": "skies",
-    "studio_sky": "skies",
-    "rooftop_scene": "skies",
-    "studio_scene": "skies",
-    "sun_direction": "skies",
+    "make_sky": "synth.skies",
+    "sky_kinds": "synth.skies",
+    "sun_sky": "synth.skies",
+    "cie_overcast_sky": "synth.skies",
+    "uniform_sky": "synth.skies",
+    "studio_sky": "synth.skies",
+    "rooftop_scene": "synth.skies",
+    "studio_scene": "synth.skies",
+    "sun_direction": "synth.skies",
     # pictures
-    "tonemap": "pictures",
-    "thumbnail": "pictures",
-    "write_png": "pictures",
+    "tonemap": "reports.pictures",
+    "thumbnail": "reports.pictures",
+    "write_png": "reports.pictures",
     # strategies and MIS
-    "make_strategy": "strategies",
-    "make_frame": "strategies",
-    "TableStrategy": "strategies",
-    "estimate_irradiance": "mis",
-    "estimate_glossy": "mis",
-    "estimators": "mis",
-    "mis_weights": "mis",
-    "firefly_index": "mis",
-    "EstimatorSamples": "mis",
+    "make_strategy": "sampling.strategies",
+    "make_frame": "sampling.strategies",
+    "TableStrategy": "sampling.strategies",
+    "estimate_irradiance": "estimation.estimators",
+    "estimate_glossy": "estimation.estimators",
+    "estimators": "estimation.estimators",
+    "mis_weights": "estimation.estimators",
+    "firefly_index": "estimation.estimators",
+    "EstimatorSamples": "estimation.estimators",
     # QA
-    "check_map": "qa",
-    "load_profile": "qa",
-    "Report": "qa",
-    "CheckResult": "qa",
-    "Profile": "qa",
-    "ProfileError": "qa",
-    "format_report": "qa",
-    "report_to_json": "qa",
+    "check_map": "qa.checks",
+    "load_profile": "qa.checks",
+    "Report": "qa.checks",
+    "CheckResult": "qa.checks",
+    "Profile": "qa.checks",
+    "ProfileError": "qa.checks",
+    "format_report": "qa.checks",
+    "report_to_json": "qa.checks",
     # reference and verify
-    "reference_irradiance": "reference",
-    "reference_accuracy": "reference",
-    "reference_glossy": "reference",
-    "sh9_project": "reference",
-    "sh9_irradiance": "reference",
-    "verify_map": "verify",
-    "tune_one_sample": "verify",
-    "recommend": "verify",
+    "reference_irradiance": "reference.irradiance",
+    "reference_accuracy": "reference.irradiance",
+    "reference_glossy": "reference.irradiance",
+    "sh9_project": "reference.irradiance",
+    "sh9_irradiance": "reference.irradiance",
+    "verify_map": "validation.verify",
+    "tune_one_sample": "validation.verify",
+    "recommend": "validation.verify",
     # reports and batch
-    "check_page": "html",
-    "index_page": "html",
-    "run_batch": "batch",
-    "BatchResult": "batch",
-    "BatchInterrupted": "batch",
+    "check_page": "reports.pages",
+    "index_page": "reports.pages",
+    "run_batch": "pipeline.batch",
+    "BatchResult": "pipeline.batch",
+    "BatchInterrupted": "pipeline.batch",
     # workflow and demo
-    "build_from_file": "workflow",
-    "golden_vectors": "workflow",
-    "write_vectors": "workflow",
-    "map_facts": "workflow",
-    "table_facts": "workflow",
-    "run_demo": "demo",
+    "build_from_file": "pipeline.workflow",
+    "golden_vectors": "pipeline.workflow",
+    "write_vectors": "pipeline.workflow",
+    "map_facts": "pipeline.workflow",
+    "table_facts": "pipeline.workflow",
+    "run_demo": "synth.demo",
 }
 
 __all__ = sorted(_EXPORTS) + ["__version__"]

@@ -32,18 +32,18 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from envsample import batch
-from envsample.batch import (
+from envsample.errors import EnvsampleError
+from envsample.io.maps import write_map
+from envsample.pipeline import batch
+from envsample.pipeline.batch import (
     ROW_FIELDS,
     BatchInterrupted,
     expand_sources,
     normalize_options,
     run_batch,
 )
-from envsample.errors import EnvsampleError
-from envsample.io import write_map
-from envsample.skies import make_sky
-from envsample.table import load_table
+from envsample.sampling.table import load_table
+from envsample.synth.skies import make_sky
 
 WIDTH = 64
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948:2004, sec. 5.2
@@ -320,7 +320,7 @@ def test_a_crashing_worker_costs_only_its_map(tmp_path, monkeypatch):
 
 
 def test_clamped_pixels_are_noted_and_the_source_keeps_them(tmp_path):
-    from envsample.io import read_map
+    from envsample.io.maps import read_map
 
     lib = tmp_path / "lib"
     lib.mkdir()
@@ -399,7 +399,7 @@ def test_simulated_ctrl_c_cancels_cleans_up_and_a_rerun_completes(tmp_path, monk
 _SCRIPT = textwrap.dedent(
     """
     import sys
-    from envsample.batch import run_batch, BatchInterrupted
+    from envsample.pipeline.batch import run_batch, BatchInterrupted
     try:
         result = run_batch([sys.argv[1]], sys.argv[2], workers=1)
     except BatchInterrupted as e:

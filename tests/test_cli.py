@@ -26,9 +26,10 @@ import pytest
 from click.testing import CliRunner
 
 import envsample
-from envsample.cli import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR, main
-from envsample.io import read_map, write_map
-from envsample.tableio import load_table
+from envsample.cli import main
+from envsample.cli.main import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR
+from envsample.io.maps import read_map, write_map
+from envsample.io.tables import load_table
 
 H, W = 32, 64
 
@@ -105,12 +106,12 @@ def test_debug_shows_the_traceback(run, tmp_path, where):
 
 def test_unexpected_failure_is_reported_as_a_bug(run, tmp_path, monkeypatch):
     """A non-user error gets exit status 3 and one line asking for --debug."""
-    import envsample.workflow
+    import envsample.pipeline.workflow
 
     def broken(*args, **kwargs):
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(envsample.workflow, "build_from_file", broken)
+    monkeypatch.setattr(envsample.pipeline.workflow, "build_from_file", broken)
     result = run("build", _map(tmp_path / "m.exr", _gradient()), "-o", tmp_path / "t")
     assert result.exit_code == EXIT_INTERNAL_ERROR
     assert result.stderr.strip() == (

@@ -7,8 +7,8 @@ import pytest
 from click.testing import CliRunner
 
 from envsample.cli import main
-from envsample.io import write_map
-from envsample.skies import make_sky
+from envsample.io.maps import write_map
+from envsample.synth.skies import make_sky
 
 
 @pytest.fixture(scope="module")

@@ -5,9 +5,9 @@ import json
 from click.testing import CliRunner
 
 from envsample.cli import main
-from envsample.io import write_map
-from envsample.skies import make_sky
-from envsample.tableio import load_table
+from envsample.io.maps import write_map
+from envsample.io.tables import load_table
+from envsample.synth.skies import make_sky
 
 
 def _run(*args):

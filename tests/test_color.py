@@ -20,8 +20,8 @@ import colour
 import numpy as np
 import pytest
 
-from envsample.color import PRIMARY_NAMES, canonical_primaries, luminance
-from envsample.constants import PRIMARIES, luminance_weights
+from envsample.core.color import PRIMARY_NAMES, canonical_primaries, luminance
+from envsample.core.constants import PRIMARIES, luminance_weights
 
 #: envsample primaries name -> colour-science colourspace name.
 COLOUR_SPACES = {

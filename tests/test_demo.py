@@ -20,11 +20,11 @@ import pytest
 from click.testing import CliRunner
 
 from envsample.cli import main
-from envsample.demo import DEMO_SCENES, DEMO_VECTOR_SEED, DemoStep, demo_steps, run_demo
 from envsample.errors import EnvsampleError
-from envsample.io import read_map
-from envsample.skies import ROOFTOP_SUN
-from envsample.tableio import load_table
+from envsample.io.maps import read_map
+from envsample.io.tables import load_table
+from envsample.synth.demo import DEMO_SCENES, DEMO_VECTOR_SEED, DemoStep, demo_steps, run_demo
+from envsample.synth.skies import ROOFTOP_SUN
 
 WIDTH = 64
 HALF_REL_ERROR = 2.0**-11

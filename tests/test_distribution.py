@@ -35,9 +35,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
-from envsample import distribution as dist
-from envsample._accel import backend_name
-from envsample.distribution import (
+from envsample.sampling import distribution as dist
+from envsample.sampling.distribution import (
     alias_cell_probabilities,
     build_alias,
     build_cdf,
@@ -47,6 +46,7 @@ from envsample.distribution import (
     sample_cdf,
     sample_row_cdfs,
 )
+from envsample.sampling.kernels import backend_name
 
 REL_TOL = 1e-6
 ABS_TOL = 1e-30

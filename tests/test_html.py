@@ -29,10 +29,10 @@ import numpy as np
 import pytest
 
 from envsample.errors import EnvsampleError
-from envsample.html import CAUTION, INDEX_ROW_KEYS, THUMB_WIDTH, check_page, index_page, report_row
-from envsample.io import write_map
-from envsample.qa import CHECKS, check_map
-from envsample.skies import make_sky
+from envsample.io.maps import write_map
+from envsample.qa.checks import CHECKS, check_map
+from envsample.reports.pages import CAUTION, INDEX_ROW_KEYS, THUMB_WIDTH, check_page, index_page, report_row
+from envsample.synth.skies import make_sky
 
 WIDTH = 128
 SUN_AZ, SUN_EL = 60.0, 35.0
@@ -172,7 +172,7 @@ def pages(tmp_path_factory, maps):
 
 @pytest.fixture(scope="module")
 def verify_dir(tmp_path_factory, maps):
-    from envsample.verify import verify_map
+    from envsample.validation.verify import verify_map
 
     out = tmp_path_factory.mktemp("verify")
     verify_map(maps["clean"], out, spp=4, normals=(16, 8), estimators=["cosine", "table", "mis-balance"],
@@ -428,7 +428,7 @@ def test_report_row_takes_the_key_figures_from_the_checks(maps):
 
 
 def test_index_page_rows_thumbnails_links_and_escaping(maps, tmp_path):
-    from envsample.pictures import thumbnail, write_png
+    from envsample.reports.pictures import thumbnail, write_png
 
     (tmp_path / "maps" / "a").mkdir(parents=True)
     thumb_file = write_png(tmp_path / "maps" / "a" / "thumb.png", thumbnail(make_sky("sun", width=WIDTH), width=64))
@@ -470,7 +470,7 @@ def test_index_page_refuses_absolute_links_and_nameless_rows(tmp_path):
 
 def test_index_page_of_batch_rows_as_they_are(tmp_path):
     """Rows shaped like envsample.batch summary rows (ROW_FIELDS) render without extra keys."""
-    from envsample.batch import ROW_FIELDS
+    from envsample.pipeline.batch import ROW_FIELDS
 
     row = {k: None for k in ROW_FIELDS}
     row.update(source="lib/sky.exr", status="skipped", verdict="pass", width=64, height=32, format="exr",

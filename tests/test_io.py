@@ -26,9 +26,9 @@ import numpy as np
 import OpenEXR
 import pytest
 
-from envsample import io as eio
-from envsample.errors import EnvsampleWarning, MapReadError, MapValidationError
-from envsample.io import MapImage, MapWriteError, read_map, supported_extensions, validate_map, write_map
+from envsample.errors import EnvsampleWarning, MapReadError, MapValidationError, MapWriteError
+from envsample.io import maps as eio
+from envsample.io.maps import MapImage, read_map, supported_extensions, validate_map, write_map
 
 # IEEE 754 binary16 relative rounding bound (round to nearest, normal range).
 HALF_REL_ERROR = 2.0**-11

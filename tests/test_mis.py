@@ -14,7 +14,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from envsample.mis import (
+from envsample.core.sphere import row_cos_edges, to_world, uv_to_direction
+from envsample.estimation.estimators import (
     HEURISTICS,
     estimate,
     estimate_glossy,
@@ -24,9 +25,8 @@ from envsample.mis import (
     mis_weights,
     sample_counts,
 )
-from envsample.sphere import row_cos_edges, to_world, uv_to_direction
-from envsample.strategies import CosineHemisphere, GGXReflection, TableStrategy, make_frame
-from envsample.table import build_table
+from envsample.sampling.strategies import CosineHemisphere, GGXReflection, TableStrategy, make_frame
+from envsample.sampling.table import build_table
 
 #: Allowed deviation of an unbiased estimate, in standard errors.
 SIGMAS = 4.0

@@ -17,7 +17,7 @@ import imageio.v3 as iio
 import numpy as np
 import pytest
 
-from envsample import pictures as P
+from envsample.reports import pictures as P
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948, section 5.2
 
@@ -263,7 +263,7 @@ def test_mark_points_rejects_float_pictures():
 
 def test_import_is_cheap():
     """Importing the module must not import matplotlib (it is loaded inside the drawing functions)."""
-    code = "import sys, envsample.pictures; print('matplotlib' in sys.modules)"
+    code = "import sys, envsample.reports.pictures; print('matplotlib' in sys.modules)"
     res = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert res.stdout.strip() == "False"
 
@@ -285,7 +285,7 @@ def test_image_panels_names_each_picture(tmp_path):
     # Two pictures side by side in one PNG that imageio reads back; the figure is wider than one panel.
     import imageio.v3 as iio
 
-    from envsample.pictures import image_panels
+    from envsample.reports.pictures import image_panels
 
     a = np.zeros((40, 40, 3), np.uint8)
     b = np.full((40, 40, 3), 255, np.uint8)

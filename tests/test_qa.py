@@ -27,10 +27,11 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from envsample import qa, skies
-from envsample.constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
-from envsample.io import MapImage, write_map
-from envsample.sphere import pixel_center_directions, row_solid_angles
+from envsample.core.constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
+from envsample.core.sphere import pixel_center_directions, row_solid_angles
+from envsample.io.maps import MapImage, write_map
+from envsample.qa import checks as qa
+from envsample.synth import skies
 
 W, H = 256, 128
 SUN_EL, SUN_AZ = 35.0, 40.0

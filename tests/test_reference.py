@@ -12,8 +12,9 @@ import numpy as np
 import pytest
 from scipy import integrate
 
+from envsample.core.sphere import UP_AXES, pixel_center_directions, row_solid_angles, uv_to_direction
 from envsample.errors import MapValidationError
-from envsample.reference import (
+from envsample.reference.irradiance import (
     SH9_BAND_FACTORS,
     cell_cosine_integrals,
     first_moment,
@@ -24,8 +25,7 @@ from envsample.reference import (
     sh9_irradiance,
     sh9_project,
 )
-from envsample.sphere import UP_AXES, pixel_center_directions, row_solid_angles, uv_to_direction
-from envsample.table import reduce_power
+from envsample.sampling.table import reduce_power
 
 #: Relative tolerance of results that are exact up to floating-point rounding.
 EXACT_RTOL = 1e-12
@@ -151,7 +151,7 @@ def test_overcast_sky_horizontal_irradiance():
     sum over sky rows of int (L - Lbar)(mu - mubar) d omega = (2 Lz / 3) * 2 pi * sum dmu^3 / 12
     = pi/9 Lz sum dmu^3 (L is linear in mu), derived here; float32 storage adds ~1e-7.
     """
-    from envsample.skies import cie_overcast_sky
+    from envsample.synth.skies import cie_overcast_sky
 
     H, lz = 64, 1.7
     img = cie_overcast_sky(2 * H, H, zenith_luminance=lz)
@@ -260,7 +260,7 @@ def test_near_degenerate_normals_match_quadrature():
     most SNAP_RADIANS x int L dw; beyond that the general path must stay consistent.
     Reference: nested scipy.integrate.quad with the kinks as break points.
     """
-    from envsample.reference import SNAP_RADIANS
+    from envsample.reference.irradiance import SNAP_RADIANS
 
     img = np.random.default_rng(23).random((6, 12, 3))
     power = float(np.sum(img.max(axis=2) * row_solid_angles(6, 12)[:, None]))  # >= int L dw per channel

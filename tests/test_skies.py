@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from envsample import skies
-from envsample.constants import SUN_SOLID_ANGLE_SR
-from envsample.sphere import direction_to_uv, pixel_center_directions, pixel_solid_angles, row_cos_edges
+from envsample.core.constants import SUN_SOLID_ANGLE_SR
+from envsample.core.sphere import direction_to_uv, pixel_center_directions, pixel_solid_angles, row_cos_edges
+from envsample.synth import skies
 
 #: Relative tolerance of integrals of float32 maps whose cell averages are exact.
 EXACT_RTOL = 2e-6

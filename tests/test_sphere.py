@@ -18,8 +18,8 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from envsample import sphere
-from envsample.sphere import (
+from envsample.core import sphere
+from envsample.core.sphere import (
     UP_AXES,
     convention,
     direction_to_pixel,
@@ -270,8 +270,8 @@ def test_public_names_exist():
 @pytest.mark.parametrize("rotate", [0.0, 30.0, -135.0])
 def test_pixel_center_angles_agree_with_the_directions(rotate):
     """Degrees for reports read off the same convention as the directions (azimuth from phi, elevation 90 - theta)."""
-    from envsample.sphere import pixel_center_angles
-    from envsample.workflow import direction_angles
+    from envsample.core.sphere import pixel_center_angles
+    from envsample.pipeline.workflow import direction_angles
 
     h, w = 6, 12
     d = sphere.pixel_center_directions(h, w, up="z", rotate_deg=rotate)

@@ -12,8 +12,14 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from envsample.sphere import direction_to_pixel, pixel_center_directions, pixel_solid_angles, to_local, to_world
-from envsample.strategies import (
+from envsample.core.sphere import (
+    direction_to_pixel,
+    pixel_center_directions,
+    pixel_solid_angles,
+    to_local,
+    to_world,
+)
+from envsample.sampling.strategies import (
     CosineHemisphere,
     GGXReflection,
     LambertBSDF,
@@ -27,7 +33,7 @@ from envsample.strategies import (
     make_frame,
     make_strategy,
 )
-from envsample.table import build_table
+from envsample.sampling.table import build_table
 
 #: Smallest chi-square p-value accepted (fixed seeds; ~3.7 sigma).
 P_MIN = 1e-4

@@ -33,10 +33,10 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from envsample._accel import backend_name
+from envsample.core.sphere import UP_AXES, direction_to_uv, pixel_center_directions, uv_to_direction
 from envsample.errors import EnvsampleWarning, MapValidationError
-from envsample.sphere import UP_AXES, direction_to_uv, pixel_center_directions, uv_to_direction
-from envsample.table import MAPPINGS, SAMPLE_METHODS, build_table, parse_size, reduce_power
+from envsample.sampling.kernels import backend_name
+from envsample.sampling.table import MAPPINGS, SAMPLE_METHODS, build_table, parse_size, reduce_power
 
 P_REJECT = 1e-4
 N_SIGMA = 4.0
@@ -205,7 +205,7 @@ def test_cell_probability_is_luminance_times_exact_solid_angle(rng):
 def test_stored_cdfs_and_alias_encode_the_cell_probabilities(rng, backend):
     """The float32 CDF steps (marginal x conditional) and the alias table encode cell_probability
     (Walker 1977 identity for the alias; CDF differences for inversion) to float32 resolution."""
-    from envsample.distribution import alias_cell_probabilities
+    from envsample.sampling.distribution import alias_cell_probabilities
 
     rgb = _sun_map(rng, 32, 64)
     t = build_table(rgb)

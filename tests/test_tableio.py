@@ -23,10 +23,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from envsample import tableio
 from envsample.errors import TableFormatError
-from envsample.table import build_table, load_table
-from envsample.tableio import ARRAY_DTYPES, SCHEMA_NAME, SCHEMA_VERSION, read_table_json, table_paths
+from envsample.io import tables as tableio
+from envsample.io.tables import ARRAY_DTYPES, SCHEMA_NAME, SCHEMA_VERSION, read_table_json, table_paths
+from envsample.sampling.table import build_table, load_table
 
 #: Position within a cell is kept in [EDGE, 1 - EDGE] (docs/table-format.md).
 EDGE = 1e-7

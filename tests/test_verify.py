@@ -24,9 +24,9 @@ import math
 import numpy as np
 import pytest
 
-from envsample import skies
-from envsample.table import build_table, load_table
-from envsample.verify import (
+from envsample.sampling.table import build_table, load_table
+from envsample.synth import skies
+from envsample.validation.verify import (
     DEFAULT_ESTIMATORS,
     DEFAULT_FRACTIONS,
     load_source,
@@ -168,8 +168,8 @@ def test_sphere_picture_faces_the_camera(up):
     the camera looks along forward, so the centre of the picture shows the normal -forward,
     the right edge +right and the top edge +up; every normal on the disk is a unit vector.
     """
-    from envsample.sphere import UP_AXES
-    from envsample.verify import sphere_normals
+    from envsample.core.sphere import UP_AXES
+    from envsample.validation.verify import sphere_normals
 
     f, r, a = (np.array(v) for v in UP_AXES[up])
     n, mask = sphere_normals(65, up=up)
@@ -304,7 +304,7 @@ def test_seed_none_is_recorded_and_replays(tmp_path):
 # ---------------------------------------------------------------------------
 
 def test_sources_by_extension(tmp_path):
-    from envsample.io import write_map
+    from envsample.io.maps import write_map
 
     rgb = skies.make_sky("studio", width=64)
     write_map(tmp_path / "m.exr", rgb, pixel_type="float")
@@ -414,8 +414,8 @@ def test_rerun_in_the_same_folder_leaves_only_this_runs_files(tmp_path):
     # A report folder reused with fewer estimators must not keep images metrics.json no longer lists.
     import json
 
-    from envsample.skies import make_sky
-    from envsample.verify import verify_map
+    from envsample.synth.skies import make_sky
+    from envsample.validation.verify import verify_map
 
     rgb = make_sky("overcast", width=32)
     out = tmp_path / "r"

@@ -37,7 +37,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._accel import kernels
+from envsample.sampling.kernels import kernels
 
 __all__ = [
     "build_cdf",

@@ -56,8 +56,16 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .color import luminance
-from .strategies import CosineHemisphere, Frame, GGXReflection, TableStrategy, UniformHemisphere, UniformSphere, make_frame
+from envsample.core.color import luminance
+from envsample.sampling.strategies import (
+    CosineHemisphere,
+    Frame,
+    GGXReflection,
+    TableStrategy,
+    UniformHemisphere,
+    UniformSphere,
+    make_frame,
+)
 
 __all__ = [
     "HEURISTICS",

@@ -62,13 +62,13 @@ from pathlib import Path
 
 import numpy as np
 
-from ._text import number
-from .color import canonical_primaries, luminance
-from .constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
-from .errors import EnvsampleError, MapReadError
-from .io import MapImage, file_sha256, read_map
-from .sphere import pixel_center_angles, row_cos_edges, row_solid_angles
-from .table import row_channel_sums
+from envsample.core.color import canonical_primaries, luminance
+from envsample.core.constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
+from envsample.core.sphere import pixel_center_angles, row_cos_edges, row_solid_angles
+from envsample.core.text import number
+from envsample.errors import EnvsampleError, MapReadError
+from envsample.io.maps import MapImage, file_sha256, read_map
+from envsample.sampling.table import row_channel_sums
 
 __all__ = [
     "SEVERITIES",
@@ -117,7 +117,7 @@ class ProfileError(EnvsampleError, ValueError):
 
 
 def _default_profile_text() -> str:
-    return resources.files("envsample").joinpath("profiles/default.toml").read_text(encoding="utf-8")
+    return resources.files("envsample.qa").joinpath("profiles/default.toml").read_text(encoding="utf-8")
 
 
 @functools.lru_cache(maxsize=1)
@@ -198,7 +198,7 @@ def _check_range(where: str, section: str, key: str, value) -> None:
         except ValueError as e:
             raise ProfileError(f"{where}: {full}: {e}") from None
     elif section == "sampling" and key == "estimator":
-        from .mis import estimators
+        from envsample.estimation.estimators import estimators
 
         if value not in estimators("irradiance"):
             raise ProfileError(f"{where}: {full}: unknown estimator {value!r}; valid names: "
@@ -1225,7 +1225,7 @@ def _estimate_errors(table, normals, ref, *, estimator, spp, repeats, seed, prim
     * firefly index = largest sample / mean sample, pooled (:func:`envsample.mis.firefly_index`,
       the same figure ``envsample verify`` reports).
     """
-    from .mis import estimate_irradiance, firefly_index
+    from envsample.estimation.estimators import estimate_irradiance, firefly_index
 
     n = normals.shape[0]
     est, samples = estimate_irradiance(table, np.repeat(normals, repeats, axis=0), estimator=estimator, spp=spp,
@@ -1260,8 +1260,8 @@ def _check_sampling(ctx: CheckContext) -> CheckResult:
     default full-resolution table matches the full map, and the cost does not grow
     with the map.  References are exact (:func:`envsample.reference.reference_irradiance`).
     """
-    from .reference import reference_irradiance
-    from .table import build_table, reduce_power
+    from envsample.reference.irradiance import reference_irradiance
+    from envsample.sampling.table import build_table, reduce_power
 
     s = ctx.settings("sampling")
     prim = ctx.profile.primaries

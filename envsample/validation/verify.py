@@ -91,10 +91,16 @@ from pathlib import Path
 
 import numpy as np
 
-from .color import luminance
-from .errors import EnvsampleError
-from .sphere import (_frame, direction_to_pixel, orthonormal_basis, pixel_center_angles, pixel_center_directions,
-                     row_solid_angles)
+from envsample.core.color import luminance
+from envsample.core.sphere import (
+    _frame,
+    direction_to_pixel,
+    orthonormal_basis,
+    pixel_center_angles,
+    pixel_center_directions,
+    row_solid_angles,
+)
+from envsample.errors import EnvsampleError
 
 __all__ = [
     "CAUTION",
@@ -195,7 +201,7 @@ def _check_spp(spp, name: str = "spp") -> int:
 
 
 def _check_normals(normals, name: str = "normals") -> tuple[int, int]:
-    from .table import parse_size
+    from envsample.sampling.table import parse_size
 
     try:
         wh = parse_size(normals)
@@ -207,7 +213,7 @@ def _check_normals(normals, name: str = "normals") -> tuple[int, int]:
 
 
 def _map_extensions() -> tuple[str, ...]:
-    from .io import supported_extensions
+    from envsample.io.maps import supported_extensions
 
     return supported_extensions()
 
@@ -221,8 +227,8 @@ def load_source(source, *, table_size=None) -> tuple:
     a clear message) is read as a map, anything else as a table prefix or table file
     (``.json``/``.npz``/``.bin``).  ``table_size`` applies to maps only.
     """
-    from .io import MapImage, read_map, validate_map
-    from .table import EnvTable, build_table, load_table
+    from envsample.io.maps import MapImage, read_map, validate_map
+    from envsample.sampling.table import EnvTable, build_table, load_table
 
     if isinstance(source, EnvTable):
         if table_size is not None:
@@ -344,7 +350,7 @@ def _largest_sample(samples, height: int, width: int, rotate_deg: float) -> dict
 
 
 def _render_one(table, name, normals, weights, grid_wh, spp, seed, ref32, ebar, ref_accuracy):
-    from .mis import estimate_irradiance
+    from envsample.estimation.estimators import estimate_irradiance
 
     t0 = time.perf_counter()
     est, samples = estimate_irradiance(table, normals, estimator=name, spp=spp, seed=_stream(seed, "render", name),
@@ -439,7 +445,7 @@ def _subgrid(width: int, height: int) -> tuple[np.ndarray, tuple[int, int]]:
 
 
 def _convergence(table, names, normals, weights, ref32, grid_wh, spp, seed):
-    from .mis import estimate_irradiance
+    from envsample.estimation.estimators import estimate_irradiance
 
     idx, sub_wh = _subgrid(*grid_wh)
     ladder = _convergence_ladder(spp)
@@ -501,7 +507,7 @@ def sphere_normals(size: int, *, up: str = "y") -> tuple[np.ndarray, np.ndarray]
 
 def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> list[np.ndarray]:
     """Reference and estimate on a white Lambertian sphere (radiance E/pi): two uint8 pictures, one exposure."""
-    from .pictures import log_average_luminance, tonemap
+    from envsample.reports.pictures import log_average_luminance, tonemap
 
     n, mask = sphere_normals(size, up=table.up)
     w, h = grid_wh
@@ -530,7 +536,7 @@ def _glossy_table(table):
     the map; estimates and reference then both see the same reduced map, which is enough to
     validate BSDF sampling and the MIS weights.
     """
-    from .table import build_table, reduce_power
+    from envsample.sampling.table import build_table, reduce_power
 
     gw, gh = GLOSSY_MAP
     if table.width <= gw:
@@ -544,8 +550,8 @@ def _glossy_table(table):
 
 def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
     """GGX glossy estimates against reference.reference_glossy: a few view angles on a coarse grid of normals."""
-    from .mis import estimate_glossy
-    from .reference import reference_glossy, reference_glossy_accuracy
+    from envsample.estimation.estimators import estimate_glossy
+    from envsample.reference.irradiance import reference_glossy, reference_glossy_accuracy
 
     gtable, map_wh = _glossy_table(table)
     gw, gh = GLOSSY_NORMALS
@@ -602,13 +608,13 @@ def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
 
 def _write_json(path: Path, doc: dict) -> None:
     """Write JSON atomically (temporary file beside it, then rename)."""
-    from ._files import atomic_write_text
+    from envsample.core.files import atomic_write_text
 
     atomic_write_text(path, json.dumps(doc, indent=2, allow_nan=False) + "\n")
 
 
 def _error_pictures(outdir: Path, panels: list, rotate_deg: float) -> list[str]:
-    from .pictures import heatmap_figure
+    from envsample.reports.pictures import heatmap_figure
 
     values = np.concatenate([p[1].ravel() for p in panels])
     values = values[np.isfinite(values)]
@@ -630,7 +636,7 @@ def _error_pictures(outdir: Path, panels: list, rotate_deg: float) -> list[str]:
 
 
 def _estimator_list(estimators, table) -> tuple[list[str], list[str]]:
-    from .mis import estimators as valid_estimators
+    from envsample.estimation.estimators import estimators as valid_estimators
 
     valid = valid_estimators("irradiance")
     notes = []
@@ -700,9 +706,9 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     ``(H, W, 3)`` irradiance per normal, map units x sr); ``errors_<k>.png`` (heat maps,
     one colour scale); ``convergence.png``; ``sphere.png``; ``metrics.json``.
     """
-    from .io import write_map
-    from .pictures import convergence_plot, image_panels, thumbnail, write_png
-    from .reference import reference_accuracy, reference_irradiance
+    from envsample.io.maps import write_map
+    from envsample.reference.irradiance import reference_accuracy, reference_irradiance
+    from envsample.reports.pictures import convergence_plot, image_panels, thumbnail, write_png
 
     def tick(label):
         if progress is not None:
@@ -782,7 +788,7 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
         tick("glossy")
         glossy = _glossy(table, roughness, spp, seed)
 
-    from . import __version__
+    from envsample._version import __version__
 
     doc = {
         "schema": METRICS_SCHEMA,
@@ -890,7 +896,7 @@ def tune_one_sample(table, *, fractions=DEFAULT_FRACTIONS, heuristics=("balance"
     ``pilot`` (every configuration's variance relative to the default's pilot value),
     ``spp``, ``confirm_spp``, ``normals``, ``seed``.
     """
-    from .mis import _heuristic_name, estimate_irradiance
+    from envsample.estimation.estimators import _heuristic_name, estimate_irradiance
 
     fr = _check_fractions(fractions)
     spp = _check_spp(spp)
@@ -962,7 +968,7 @@ def recommend(table, *, fractions=DEFAULT_FRACTIONS, heuristics=("balance", "pow
     error.  JSON-ready; the measured values are estimates for asset preparation.
     """
     t = tune_one_sample(table, fractions=fractions, heuristics=heuristics, spp=spp, normals=normals, seed=seed)
-    from . import __version__
+    from envsample._version import __version__
 
     return {
         "model": "one-sample MIS",

@@ -66,11 +66,10 @@ from urllib.parse import quote, urlsplit
 
 import numpy as np
 
-from ._files import atomic_write_bytes
-from ._text import number
-
-from .errors import EnvsampleError, MapValidationError
-from .qa import SEVERITIES, Report
+from envsample.core.files import atomic_write_bytes
+from envsample.core.text import number
+from envsample.errors import EnvsampleError, MapValidationError
+from envsample.qa.checks import SEVERITIES, Report
 
 __all__ = [
     "THUMB_WIDTH",
@@ -293,7 +292,7 @@ def _check_folder(path) -> None:
 
 
 def _document(title: str, body: str) -> str:
-    from . import __version__
+    from envsample._version import __version__
 
     return (
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
@@ -352,7 +351,7 @@ def _number(x) -> float | None:
 
 def _pixels(rep: dict, image):
     """Linear RGB float32 of the map (bad pixels zeroed) and a note; (None, why) when there are none."""
-    from .io import map_pixels, read_map
+    from envsample.io.maps import map_pixels, read_map
 
     if image is None:
         if not rep.get("readable", True):
@@ -384,7 +383,7 @@ def _pixels(rep: dict, image):
 
 def _primaries(profile: dict) -> str:
     """Luminance primaries of the report's profile (the defaults when it cannot be loaded again)."""
-    from .qa import load_profile
+    from envsample.qa.checks import load_profile
 
     try:
         return load_profile(profile.get("path")).primaries
@@ -394,7 +393,7 @@ def _primaries(profile: dict) -> str:
 
 def _emitter_uv(emitters: list[dict]) -> np.ndarray:
     """Image (u, v) of emitters given by azimuth/elevation (deg) in the map's own frame (rotation 0)."""
-    from .sphere import direction_to_uv, uv_to_direction
+    from envsample.core.sphere import direction_to_uv, uv_to_direction
 
     if not emitters:
         return np.zeros((0, 2))
@@ -408,7 +407,7 @@ def _emitter_uv(emitters: list[dict]) -> np.ndarray:
 
 
 def _thumbnail_png(rgb: np.ndarray, emitters: list[dict]) -> bytes:
-    from .pictures import encode_png, mark_points, thumbnail
+    from envsample.reports.pictures import encode_png, mark_points, thumbnail
 
     pic = thumbnail(rgb, width=THUMB_WIDTH)
     # Small maps are enlarged by pixel repetition so rings keep their size and pixels stay honest.
@@ -427,9 +426,9 @@ def _thumbnail_png(rgb: np.ndarray, emitters: list[dict]) -> bytes:
 
 def _pdf_png(rgb: np.ndarray, primaries: str) -> tuple[bytes, str]:
     """The table pdf (per sr) as a log-scale heat map PNG, and a caption."""
-    from .errors import EnvsampleWarning
-    from .pictures import heatmap_figure
-    from .table import build_table
+    from envsample.errors import EnvsampleWarning
+    from envsample.reports.pictures import heatmap_figure
+    from envsample.sampling.table import build_table
 
     H, W = rgb.shape[:2]
     size = (min(PDF_TABLE_SIZE[0], W), min(PDF_TABLE_SIZE[1], H))
@@ -457,7 +456,7 @@ def _pdf_png(rgb: np.ndarray, primaries: str) -> tuple[bytes, str]:
         caption += f"; this map is nearly flat (peak {_num(hi, 3)} /sr). "
     else:
         # Cell centres in the image frame of envsample.sphere (rotation 0), as the checks report them.
-        from .sphere import pixel_center_angles
+        from envsample.core.sphere import pixel_center_angles
 
         i, j = np.unravel_index(int(np.argmax(pdf)), pdf.shape)
         az, el = pixel_center_angles(i, j, pdf.shape[0], pdf.shape[1])
@@ -840,7 +839,7 @@ def _thumb_cell(thumb, base: Path, label: str) -> str:
         return '<div class="nopic nothumb">no picture</div>'
     try:
         if isinstance(thumb, np.ndarray):
-            from .pictures import encode_png
+            from envsample.reports.pictures import encode_png
 
             data = encode_png(thumb)
         else:

@@ -26,9 +26,9 @@ from pathlib import Path
 
 import numpy as np
 
-from . import distribution as dist
-from .errors import TableFormatError
-from ._files import atomic_write
+from envsample.core.files import atomic_write
+from envsample.errors import TableFormatError
+from envsample.sampling import distribution as dist
 
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "save_table", "load_table", "table_paths", "atomic_write", "read_table_json",
            "array_checksums"]
@@ -204,7 +204,7 @@ def load_table(prefix_or_path):
 
 
 def _load_verified(paths: dict, doc: dict):
-    from .table import EnvTable
+    from envsample.sampling.table import EnvTable
 
     npz_path = paths["npz"]
     if not npz_path.exists():
@@ -283,7 +283,7 @@ def _check_consistency(arrays: dict, doc: dict, path: Path) -> None:
     if not (np.isfinite(pdf).all() and pdf.min() >= 0.0):
         raise TableFormatError(f"{path}: cell_pdf has negative or non-finite values; rebuild the table")
     mapping = doc["options"].get("mapping")
-    from .table import MAPPINGS
+    from envsample.sampling.table import MAPPINGS
 
     if mapping not in MAPPINGS:
         raise TableFormatError(f"{path}: unknown in-cell mapping {mapping!r}")

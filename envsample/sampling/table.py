@@ -48,12 +48,12 @@ from pathlib import Path
 
 import numpy as np
 
-from . import distribution as dist
-from ._accel import kernels
-from .color import canonical_primaries, luminance
-from .errors import EnvsampleWarning, MapValidationError
-from .io import map_pixels
-from .sphere import _frame, convention, direction_to_uv, row_cos_edges, row_solid_angles
+from envsample.core.color import canonical_primaries, luminance
+from envsample.core.sphere import _frame, convention, direction_to_uv, row_cos_edges, row_solid_angles
+from envsample.errors import EnvsampleWarning, MapValidationError
+from envsample.io.maps import map_pixels
+from envsample.sampling import distribution as dist
+from envsample.sampling.kernels import kernels
 
 __all__ = ["MAPPINGS", "SAMPLE_METHODS", "EnvTable", "Samples", "build_table", "load_table", "parse_size",
            "reduce_power", "row_channel_sums"]
@@ -373,7 +373,7 @@ class EnvTable:
     # ------------------------------------------------------------------- disk
     def save(self, prefix, *, raw: bool = False) -> list[Path]:
         """Write ``PREFIX.npz`` and ``PREFIX.json`` (and ``PREFIX.bin`` with ``raw=True``) atomically."""
-        from .tableio import save_table
+        from envsample.io.tables import save_table
 
         return save_table(self, prefix, raw=raw)
 
@@ -549,7 +549,7 @@ def build_table(
     lum *= np.float32(1.0 / total)
     cell_pdf = lum
 
-    from . import __version__
+    from envsample._version import __version__
 
     metadata = {
         "convention": conv,
@@ -585,6 +585,6 @@ def build_table(
 
 def load_table(prefix_or_path) -> EnvTable:
     """Load a table written by :meth:`EnvTable.save`; see :func:`envsample.tableio.load_table`."""
-    from .tableio import load_table as _load
+    from envsample.io.tables import load_table as _load
 
     return _load(prefix_or_path)

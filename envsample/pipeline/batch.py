@@ -95,8 +95,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._files import atomic_write_text
-from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
+from envsample.core.files import atomic_write_text
+from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
 
 __all__ = [
     "BUILD_OPTIONS",
@@ -341,7 +341,7 @@ def expand_sources(sources, *, exclude=None) -> list[Path]:
     EnvsampleError
         A source that does not exist and matches nothing.
     """
-    from .io import supported_extensions
+    from envsample.io.maps import supported_extensions
 
     if isinstance(sources, (str, os.PathLike)):
         sources = [sources]
@@ -380,8 +380,8 @@ def normalize_options(options: Mapping | None) -> dict:
     ``uniform_mix`` (in [0, 1)), ``up`` (``"y"`` or ``"z"``), ``rotate`` (degrees;
     ``rotate_deg`` is accepted too).  Unknown keys raise ValueError listing the valid ones.
     """
-    from .color import canonical_primaries
-    from .table import MAPPINGS, parse_size
+    from envsample.core.color import canonical_primaries
+    from envsample.sampling.table import MAPPINGS, parse_size
 
     given = dict(options or {})
     if "rotate_deg" in given:
@@ -422,7 +422,7 @@ def _map_name(path: Path, sha256: str, width: int = 8) -> str:
 
 def _hash_all(paths: list[Path]) -> list[tuple[str | None, str | None]]:
     """(sha256, error) per path; hashing releases the GIL, so threads overlap the reads."""
-    from .io import file_sha256
+    from envsample.io.maps import file_sha256
 
     def one(p: Path):
         try:
@@ -473,14 +473,14 @@ def _report_figures(report) -> dict:
     sampling check's relative RMSE and peak sample share, the irradiance on an up-facing
     surface (map units x sr).
     """
-    from .html import report_row
+    from envsample.reports.pages import report_row
 
     row = report_row(report)
     return {k: row.get(k) for k in ROW_FIELDS if k in row and k not in ("source", "verdict", "error")}
 
 
 def _files_of(folder: Path) -> dict:
-    from .io import file_sha256
+    from envsample.io.maps import file_sha256
 
     files = {}
     for p in sorted(folder.rglob("*")):
@@ -491,10 +491,10 @@ def _files_of(folder: Path) -> dict:
 
 def _build_outputs(task: Mapping, work: Path) -> dict:
     """Write check.json, thumb.png, the table and verify/ into ``work``; return the summary row."""
-    from .io import read_map, validate_map
-    from .pictures import thumbnail, write_png
-    from .qa import check_map
-    from .table import build_table
+    from envsample.io.maps import read_map, validate_map
+    from envsample.qa.checks import check_map
+    from envsample.reports.pictures import thumbnail, write_png
+    from envsample.sampling.table import build_table
 
     src = Path(task["source"])
     try:
@@ -545,7 +545,7 @@ def _verify(table, folder: Path, *, seed: int) -> dict:
     (verify's recommended estimator ranks by measured efficiency, which includes
     timings, so it is left in ``verify/metrics.json``.)
     """
-    from .verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
+    from envsample.validation.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
 
     s = VERIFY_SETTINGS
     doc = verify_map(table, folder, spp=s["spp"], normals=tuple(s["normals"]), estimators=tuple(s["estimators"]),
@@ -896,8 +896,8 @@ def run_batch(
         A missing source, no maps found, OUTDIR not a folder or locked by another
         batch, or dask missing.  ValueError / ProfileError: bad options.
     """
-    from . import __version__
-    from .qa import load_profile
+    from envsample._version import __version__
+    from envsample.qa.checks import load_profile
 
     opts = normalize_options(options)
     prof = load_profile(profile)
@@ -1069,7 +1069,7 @@ def _csv_value(v) -> str:
 
 def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
     """summary.json, summary.csv and index.html in OUTDIR, each by temporary file and rename."""
-    from . import __version__
+    from envsample._version import __version__
 
     rows = [m.to_row() for m in result.maps]
     doc = {
@@ -1091,7 +1091,7 @@ def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
     for row in rows:
         writer.writerow([_csv_value(row[k]) for k in ROW_FIELDS])
     atomic_write_text(paths["csv"], buf.getvalue())
-    from .html import index_page
+    from envsample.reports.pages import index_page
 
     index_page(_index_rows(result, rows), paths["html"])
     return paths

@@ -34,9 +34,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .color import canonical_primaries, luminance
-from .errors import EnvsampleError, MapValidationError
-from .sphere import direction_to_uv, row_solid_angles, uv_to_direction
+from envsample.core.color import canonical_primaries, luminance
+from envsample.core.sphere import direction_to_uv, row_solid_angles, uv_to_direction
+from envsample.errors import EnvsampleError, MapValidationError
 
 __all__ = [
     "BuildResult",
@@ -173,8 +173,8 @@ def build_from_file(
     build_options : passed to :func:`envsample.table.build_table` (size,
         primaries, mapping, uniform_mix, up, rotate_deg, compensate).
     """
-    from .io import read_map, validate_map
-    from .table import build_table
+    from envsample.io.maps import read_map, validate_map
+    from envsample.sampling.table import build_table
 
     out = output_prefix(prefix, map_path)
     check_output_folder(out)
@@ -188,7 +188,7 @@ def build_from_file(
     seconds = time.perf_counter() - start
     notes = list(notes) + [n for n in table.metadata.get("notes", []) if n not in notes]
     if tune:
-        from .verify import recommend
+        from envsample.validation.verify import recommend
 
         _tick(progress, "tune")
         table.metadata["recommendation"] = recommend(table)
@@ -255,9 +255,9 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
         for m, (d, p, c, r) in outputs.items():
             rec[m] = {"direction": d[k], "pdf": p[k], "cell": c[k], "radiance": r[k]}
         records.append(rec)
-    from . import __version__
-    from .io import file_sha256
-    from .tableio import array_checksums
+    from envsample._version import __version__
+    from envsample.io.maps import file_sha256
+    from envsample.io.tables import array_checksums
 
     info = {
         "image": {"width": table.width, "height": table.height},
@@ -297,7 +297,7 @@ def vectors_text(doc: dict) -> str:
 
 def write_vectors(path, doc: dict, *, make_dirs: bool = True) -> Path:
     """Write a golden-vector document atomically (temporary file, then rename); return the path."""
-    from ._files import atomic_write_text
+    from envsample.core.files import atomic_write_text
 
     p = Path(path)
     check_output_folder(p)
@@ -317,7 +317,7 @@ def map_integrals(rgb: np.ndarray, primaries: str = "bt709") -> tuple[list[float
     Each pixel weighs its exact solid angle (:func:`envsample.sphere.row_solid_angles`).
     Returns ``([R, G, B], Y, luminance float32 (H, W))``.
     """
-    from .table import row_channel_sums
+    from envsample.sampling.table import row_channel_sums
 
     h, w = rgb.shape[:2]
     sa = row_solid_angles(h, w)
@@ -337,7 +337,7 @@ def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotate_deg: flo
     elevation in degrees, unit vector for ``up``); and whether ``envsample
     build`` would accept the map as it is (``validate_map``).
     """
-    from .io import validate_map
+    from envsample.io.maps import validate_map
 
     primaries = canonical_primaries(primaries)
     rgb = np.asarray(image.rgb, dtype=np.float32)
@@ -398,7 +398,7 @@ def table_facts(prefix_or_path) -> dict:
     the number of cells with nonzero probability, the largest cell probability
     and the direction of that cell's centre, notes, and the files with their sizes.
     """
-    from .tableio import load_table, read_table_json, table_paths
+    from envsample.io.tables import load_table, read_table_json, table_paths
 
     paths = table_paths(prefix_or_path)
     doc = read_table_json(prefix_or_path)

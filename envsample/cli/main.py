@@ -35,8 +35,8 @@ from pathlib import Path
 
 import click
 
-from . import __version__
-from .errors import EnvsampleError, EnvsampleWarning
+from envsample._version import __version__
+from envsample.errors import EnvsampleError, EnvsampleWarning
 
 __all__ = ["main", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR"]
 
@@ -166,7 +166,7 @@ def _rows(pairs, *, out=None) -> None:
 
 def _num(x: float) -> str:
     """A compact number (4 significant digits), written as in every report (:func:`envsample._text.number`)."""
-    from ._text import number
+    from envsample.core.text import number
 
     return number(x, 4)
 
@@ -204,7 +204,7 @@ class _SizeType(click.ParamType):
     def convert(self, value, param, ctx):
         if isinstance(value, tuple):
             return value
-        from .table import parse_size
+        from envsample.sampling.table import parse_size
 
         try:
             return parse_size(value)
@@ -298,7 +298,7 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
     values are clamped and counted) before anything is written. Existing
     table files with the same prefix are replaced atomically.
     """
-    from .workflow import ESTIMATE_CAVEAT, build_from_file
+    from envsample.pipeline.workflow import ESTIMATE_CAVEAT, build_from_file
 
     printed: list[str] = []
     stages = ("read", "check", "build", "tune", "save") if tune else ("read", "check", "build", "save")
@@ -436,13 +436,13 @@ def inspect_command(target, as_json, primaries, up, layer):
     or a table given by its prefix or its .json/.npz/.bin file. A table is
     loaded and verified (checksums, shapes, CDFs) on the way.
     """
-    from .workflow import map_facts, table_facts
+    from envsample.pipeline.workflow import map_facts, table_facts
 
     if _is_table(target):
         facts = table_facts(target)
         show = _print_table_facts
     else:
-        from .io import read_map
+        from envsample.io.maps import read_map
 
         facts = map_facts(read_map(target, layer=layer), primaries=primaries.lower(), up=up)
         show = _print_map_facts
@@ -473,8 +473,8 @@ def vectors(table_path, output, count, seed, method):
     loader in another language reads the same table, feeds it the same u and
     must give the same results. The same seed always writes the same file.
     """
-    from .workflow import check_output_folder, golden_vectors, write_vectors
-    from .tableio import load_table, table_paths
+    from envsample.io.tables import load_table, table_paths
+    from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
 
     check_output_folder(output)
     table = load_table(table_path)
@@ -525,13 +525,13 @@ def _parse_light(text: str):
 
 
 def _sky_kinds():
-    from .skies import sky_kinds
+    from envsample.synth.skies import sky_kinds
 
     return sky_kinds()
 
 
 def _sky_help() -> str:
-    from .skies import SKY_DESCRIPTIONS
+    from envsample.synth.skies import SKY_DESCRIPTIONS
 
     return "\n".join(f"{k:<16}{v}" for k, v in SKY_DESCRIPTIONS.items())
 
@@ -568,10 +568,10 @@ def sky(kind, output, size, pixel_type, **given):
 
     Options apply to the kinds named in their help; others are refused.
     """
-    from .constants import HALF_FLOAT_MAX
-    from .workflow import check_output_folder
-    from .io import supported_extensions, write_map
-    from .skies import make_sky, sun_position
+    from envsample.core.constants import HALF_FLOAT_MAX
+    from envsample.io.maps import supported_extensions, write_map
+    from envsample.pipeline.workflow import check_output_folder
+    from envsample.synth.skies import make_sky, sun_position
 
     if output.suffix.lower() not in supported_extensions(write=True):
         raise click.BadParameter(f"{output}: write .exr or .hdr", param_hint="'-o' / '--output'")
@@ -596,7 +596,7 @@ def sky(kind, output, size, pixel_type, **given):
         )
     output.parent.mkdir(parents=True, exist_ok=True)
     path = write_map(output, rgb, pixel_type=pixel_type)
-    from .workflow import ESTIMATE_CAVEAT, map_integrals
+    from envsample.pipeline.workflow import ESTIMATE_CAVEAT, map_integrals
 
     per_rgb, y, _ = map_integrals(rgb, "bt709")
     sun = sun_position(kind, **options)
@@ -642,8 +642,8 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     firefly index, time per sample, efficiency, the recommended estimator), EXR
     images of the reference and each estimate, error heat maps and a convergence plot.
     """
-    from .mis import estimators as estimator_names
-    from .verify import verify_map
+    from envsample.estimation.estimators import estimators as estimator_names
+    from envsample.validation.verify import verify_map
 
     if list_only:
         click.echo("\n".join(estimator_names("irradiance")))
@@ -709,7 +709,7 @@ def check(maps, profile_path, json_path, html_path, strict, only):
     (with --strict also any warn), 2 unreadable input or usage error.
     Light levels are estimates for asset preparation, not certified lighting calculations.
     """
-    from .qa import check_map, format_report, load_profile, report_to_json
+    from envsample.qa.checks import check_map, format_report, load_profile, report_to_json
 
     profile = load_profile(profile_path)
     ids = None if only is None else [c.strip() for c in only.split(",") if c.strip()]
@@ -727,12 +727,12 @@ def check(maps, profile_path, json_path, html_path, strict, only):
         if str(json_path) == "-":
             click.echo(text, nl=False)
         else:
-            from ._files import atomic_write_text
+            from envsample.core.files import atomic_write_text
 
             atomic_write_text(json_path, text)
             click.echo(f"wrote {json_path}")
     if html_path is not None:
-        from .html import check_page
+        from envsample.reports.pages import check_page
 
         check_page(reports, html_path)
         click.echo(f"wrote {html_path}")
@@ -767,8 +767,8 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
     1 any map failed or could not be read (with --strict also any warning), 2 usage
     error, 130 interrupted.
     """
-    from .batch import BatchInterrupted, run_batch
-    from .qa import load_profile
+    from envsample.pipeline.batch import BatchInterrupted, run_batch
+    from envsample.qa.checks import load_profile
 
     profile = load_profile(profile_path)
     options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,
@@ -824,7 +824,7 @@ def demo(outdir, width, as_json):
     as .exr maps, builds their tables (the rooftop's also as raw .bin), writes
     golden vectors for the rooftop and prints a summary. Nothing is downloaded.
     """
-    from .demo import demo_steps, run_demo
+    from envsample.synth.demo import demo_steps, run_demo
 
     if width % 2:
         raise click.BadParameter(f"{width} is odd; the maps are 2:1, give an even width", param_hint="'--width'")

@@ -26,15 +26,15 @@ from pathlib import Path
 
 import numpy as np
 
-from .color import luminance
-from .errors import EnvsampleError
-from .workflow import (
-    BuildResult,
+from envsample.core.color import luminance
+from envsample.errors import EnvsampleError
+from envsample.pipeline.workflow import (
     ESTIMATE_CAVEAT,
+    BuildResult,
+    _pixel_direction,
     build_from_file,
     golden_vectors,
     write_vectors,
-    _pixel_direction,
 )
 
 __all__ = ["DemoStep", "DemoContext", "DemoScene", "DEMO_SCENES", "demo_steps", "run_demo"]
@@ -102,8 +102,8 @@ class DemoStep:
 
 def _make_map_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from .io import write_map
-        from .skies import make_sky
+        from envsample.io.maps import write_map
+        from envsample.synth.skies import make_sky
 
         rgb = make_sky(scene.kind, width=ctx.width, **scene.options)
         path = write_map(ctx.path("maps", f"{scene.name}.exr"), rgb, pixel_type=scene.pixel_type)
@@ -127,7 +127,7 @@ def _build_step(scene: DemoScene) -> DemoStep:
 
 def _vectors_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from .tableio import load_table, table_paths
+        from envsample.io.tables import load_table, table_paths
 
         prefix = ctx.tables[scene.name].prefix
         table = load_table(prefix)  # vectors come from the table as a loader sees it on disk
@@ -150,8 +150,8 @@ DEMO_VERIFY_SEED = 7
 
 def _check_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from .html import check_page
-        from .qa import check_map
+        from envsample.qa.checks import check_map
+        from envsample.reports.pages import check_page
 
         info = ctx.scenes[scene.name]
         report = check_map(info["map"])
@@ -169,7 +169,7 @@ def _check_step(scene: DemoScene) -> DemoStep:
 
 def _verify_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from .verify import verify_map
+        from envsample.validation.verify import verify_map
 
         normals = (min(64, ctx.width // 2), min(32, ctx.width // 4))
         out = ctx.path("reports", scene.name, "verify")

@@ -57,8 +57,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._files import file_mode, temporary_path
-from .errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, MapWriteError
+from envsample.core.files import file_mode, temporary_path
+from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, MapWriteError
 
 __all__ = [
     "MapImage",

@@ -20,7 +20,7 @@ def _load():
     if os.environ.get("ENVSAMPLE_KERNELS", "auto").lower() == "numpy":
         return None
     try:
-        from . import _kernels
+        from envsample.sampling import _kernels
     except ImportError:
         return None
     return _kernels

@@ -44,9 +44,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._files import atomic_write_bytes
-
-from .color import luminance
+from envsample.core.color import luminance
+from envsample.core.files import atomic_write_bytes
 
 __all__ = [
     "DEFAULT_KEY",
@@ -324,10 +323,10 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
     show more), which keeps a 4096-wide panel fast; the colour range is taken
     from the full-resolution values.
     """
+    import matplotlib
     from matplotlib import colors as mcolors
     from matplotlib import rc_context
     from matplotlib.figure import Figure
-    import matplotlib
 
     if not panels:
         raise ValueError("heatmap_figure needs at least one (title, 2D array) panel")

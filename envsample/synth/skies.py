@@ -71,8 +71,8 @@ from collections.abc import Callable, Sequence
 
 import numpy as np
 
-from .constants import SUN_ANGULAR_DIAMETER_RAD, luminance_weights
-from .sphere import row_cos_edges, uv_to_direction
+from envsample.core.constants import SUN_ANGULAR_DIAMETER_RAD, luminance_weights
+from envsample.core.sphere import row_cos_edges, uv_to_direction
 
 __all__ = [
     "OVERCAST_HORIZONTAL_FACTOR",

@@ -61,7 +61,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .sphere import to_local, to_world
+from envsample.core.sphere import to_local, to_world
 
 __all__ = [
     "Frame",

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .constants import PRIMARIES, PRIMARY_ALIASES, luminance_weights
+from envsample.core.constants import PRIMARIES, PRIMARY_ALIASES, luminance_weights
 
 __all__ = ["PRIMARY_NAMES", "canonical_primaries", "luminance"]
 

@@ -1,0 +1,1 @@
+"""Quality checks of environment maps with stable ids, TOML profiles and reports."""
