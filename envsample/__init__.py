@@ -43,7 +43,7 @@ _EXPORTS = {
     "Samples": "sampling.table",
     "build_table": "sampling.table",
     "load_table": "sampling.table",
-    "parse_size": "sampling.table",
+    "parse_size": "core.latlong",
     "SCHEMA_VERSION": "io.tables",
     "read_table_json": "io.tables",
     # color

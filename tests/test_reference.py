@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 from scipy import integrate
 
+from envsample.core.latlong import reduce_power
 from envsample.core.sphere import UP_AXES, pixel_center_directions, row_solid_angles, uv_to_direction
 from envsample.errors import MapValidationError
 from envsample.reference.irradiance import (
@@ -25,7 +26,6 @@ from envsample.reference.irradiance import (
     sh9_irradiance,
     sh9_project,
 )
-from envsample.sampling.table import reduce_power
 
 #: Relative tolerance of results that are exact up to floating-point rounding.
 EXACT_RTOL = 1e-12

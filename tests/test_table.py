@@ -33,10 +33,11 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
+from envsample.core.latlong import MAPPINGS, parse_size, reduce_power
 from envsample.core.sphere import UP_AXES, direction_to_uv, pixel_center_directions, uv_to_direction
 from envsample.errors import EnvsampleWarning, MapValidationError
 from envsample.sampling.kernels import backend_name
-from envsample.sampling.table import MAPPINGS, SAMPLE_METHODS, build_table, parse_size, reduce_power
+from envsample.sampling.table import SAMPLE_METHODS, build_table
 
 P_REJECT = 1e-4
 N_SIGMA = 4.0

@@ -204,7 +204,7 @@ class _SizeType(click.ParamType):
     def convert(self, value, param, ctx):
         if isinstance(value, tuple):
             return value
-        from envsample.sampling.table import parse_size
+        from envsample.core.latlong import parse_size
 
         try:
             return parse_size(value)

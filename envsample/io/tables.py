@@ -283,7 +283,7 @@ def _check_consistency(arrays: dict, doc: dict, path: Path) -> None:
     if not (np.isfinite(pdf).all() and pdf.min() >= 0.0):
         raise TableFormatError(f"{path}: cell_pdf has negative or non-finite values; rebuild the table")
     mapping = doc["options"].get("mapping")
-    from envsample.sampling.table import MAPPINGS
+    from envsample.core.latlong import MAPPINGS
 
     if mapping not in MAPPINGS:
         raise TableFormatError(f"{path}: unknown in-cell mapping {mapping!r}")

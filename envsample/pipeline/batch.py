@@ -381,7 +381,7 @@ def normalize_options(options: Mapping | None) -> dict:
     ``rotate_deg`` is accepted too).  Unknown keys raise ValueError listing the valid ones.
     """
     from envsample.core.color import canonical_primaries
-    from envsample.sampling.table import MAPPINGS, parse_size
+    from envsample.core.latlong import MAPPINGS, parse_size
 
     given = dict(options or {})
     if "rotate_deg" in given:

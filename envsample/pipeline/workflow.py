@@ -317,7 +317,7 @@ def map_integrals(rgb: np.ndarray, primaries: str = "bt709") -> tuple[list[float
     Each pixel weighs its exact solid angle (:func:`envsample.sphere.row_solid_angles`).
     Returns ``([R, G, B], Y, luminance float32 (H, W))``.
     """
-    from envsample.sampling.table import row_channel_sums
+    from envsample.core.latlong import row_channel_sums
 
     h, w = rgb.shape[:2]
     sa = row_solid_angles(h, w)

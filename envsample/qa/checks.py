@@ -64,11 +64,11 @@ import numpy as np
 
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
+from envsample.core.latlong import row_channel_sums
 from envsample.core.sphere import pixel_center_angles, row_cos_edges, row_solid_angles
 from envsample.core.text import number
 from envsample.errors import EnvsampleError, MapReadError
 from envsample.io.maps import MapImage, file_sha256, read_map
-from envsample.sampling.table import row_channel_sums
 
 __all__ = [
     "SEVERITIES",
@@ -1260,8 +1260,9 @@ def _check_sampling(ctx: CheckContext) -> CheckResult:
     default full-resolution table matches the full map, and the cost does not grow
     with the map.  References are exact (:func:`envsample.reference.reference_irradiance`).
     """
+    from envsample.core.latlong import reduce_power
     from envsample.reference.irradiance import reference_irradiance
-    from envsample.sampling.table import build_table, reduce_power
+    from envsample.sampling.table import build_table
 
     s = ctx.settings("sampling")
     prim = ctx.profile.primaries

@@ -120,11 +120,11 @@ import math
 
 import numpy as np
 
+from envsample.core.latlong import parse_size, reduce_power
 from envsample.core.sphere import UP_AXES, orthonormal_basis, row_solid_angles
 from envsample.errors import MapValidationError
 from envsample.io.maps import map_pixels
 from envsample.sampling.strategies import MIN_ROUGHNESS, Frame, GGXReflection
-from envsample.sampling.table import parse_size, reduce_power
 
 __all__ = [
     "reference_irradiance",

@@ -46,6 +46,7 @@ import numpy as np
 
 from envsample.core.color import luminance
 from envsample.core.files import atomic_write_bytes
+from envsample.core.latlong import block_mean
 
 __all__ = [
     "DEFAULT_KEY",
@@ -192,8 +193,7 @@ def thumbnail(rgb, *, width: int = 512, exposure: float | None = None, curve: st
         raise ValueError(f"thumbnail width must be a positive integer, got {width!r}")
     f = max(1, img.shape[1] // int(width))
     if f > 1:
-        h, w = (img.shape[0] // f) * f, (img.shape[1] // f) * f
-        img = img[:h, :w].reshape(h // f, f, w // f, f, 3).mean(axis=(1, 3), dtype=np.float64).astype(np.float32)
+        img = block_mean(img, f).astype(np.float32)
     return tonemap(img, exposure=exposure, curve=curve)
 
 
@@ -288,13 +288,9 @@ def _reduce_panel(arr: np.ndarray, log: bool) -> np.ndarray:
     f = arr.shape[1] // _HEATMAP_MAX_COLUMNS
     if f < 2:
         return arr
-    h, w = (arr.shape[0] // f) * f, (arr.shape[1] // f) * f
-    blocks = arr[:h, :w].reshape(h // f, f, w // f, f)
-    ok = np.isfinite(blocks) & ((blocks > 0) if log else True)
-    count = ok.sum(axis=(1, 3))
-    total = np.where(ok, blocks, 0.0).sum(axis=(1, 3))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(count > 0, total / count, np.nan)
+    with np.errstate(invalid="ignore"):
+        ok = np.isfinite(arr) & ((arr > 0) if log else True)
+    return block_mean(arr, f, valid=ok)
 
 
 def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = None, vmax: float | None = None,

@@ -201,7 +201,7 @@ def _check_spp(spp, name: str = "spp") -> int:
 
 
 def _check_normals(normals, name: str = "normals") -> tuple[int, int]:
-    from envsample.sampling.table import parse_size
+    from envsample.core.latlong import parse_size
 
     try:
         wh = parse_size(normals)
@@ -536,7 +536,8 @@ def _glossy_table(table):
     the map; estimates and reference then both see the same reduced map, which is enough to
     validate BSDF sampling and the MIS weights.
     """
-    from envsample.sampling.table import build_table, reduce_power
+    from envsample.core.latlong import reduce_power
+    from envsample.sampling.table import build_table
 
     gw, gh = GLOSSY_MAP
     if table.width <= gw:
