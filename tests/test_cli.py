@@ -29,7 +29,7 @@ import envsample
 from envsample.cli import main
 from envsample.cli.main import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR
 from envsample.io.maps import read_map, write_map
-from envsample.io.tables import load_table
+from envsample.sampling.table import load_table
 
 H, W = 32, 64
 

@@ -6,7 +6,7 @@ from click.testing import CliRunner
 
 from envsample.cli import main
 from envsample.io.maps import write_map
-from envsample.io.tables import load_table
+from envsample.sampling.table import load_table
 from envsample.synth.skies import make_sky
 
 

@@ -22,7 +22,7 @@ from click.testing import CliRunner
 from envsample.cli import main
 from envsample.errors import EnvsampleError
 from envsample.io.maps import read_map
-from envsample.io.tables import load_table
+from envsample.sampling.table import load_table
 from envsample.synth.demo import DEMO_SCENES, DEMO_VECTOR_SEED, DemoStep, demo_steps, run_demo
 from envsample.synth.skies import ROOFTOP_SUN
 

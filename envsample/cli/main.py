@@ -473,8 +473,9 @@ def vectors(table_path, output, count, seed, method):
     loader in another language reads the same table, feeds it the same u and
     must give the same results. The same seed always writes the same file.
     """
-    from envsample.io.tables import load_table, table_paths
+    from envsample.io.tables import table_paths
     from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
+    from envsample.sampling.table import load_table
 
     check_output_folder(output)
     table = load_table(table_path)

@@ -12,9 +12,10 @@ The schema is our own, documented in ``docs/table-format.md``:
 
 Every file is written to a temporary name in the target folder and renamed into
 place, the JSON last: an interrupted save never leaves a half-written table that
-loads.  :func:`load_table` checks the schema, shapes, monotonicity, index ranges
-and checksums and refuses anything else with a :class:`TableFormatError` that
-names the file and the problem.
+loads.  :func:`read_table` checks the schema, dtypes, shapes and checksums (the
+container); :func:`envsample.sampling.table.load_table` then checks what the arrays
+mean (monotone CDFs, alias index range, finite pdf).  Both refuse with a
+:class:`TableFormatError` that names the file and the problem.
 """
 
 from __future__ import annotations
@@ -22,16 +23,17 @@ from __future__ import annotations
 import hashlib
 import json
 import zipfile
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from envsample.core.files import atomic_write
+from envsample.core.latlong import MAPPINGS
 from envsample.errors import TableFormatError
-from envsample.sampling import distribution as dist
 
-__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "save_table", "load_table", "table_paths", "atomic_write", "read_table_json",
-           "array_checksums"]
+__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "ARRAY_DTYPES", "StoredTable", "save_table", "read_table", "table_paths",
+           "read_table_json", "array_checksums"]
 
 SCHEMA_NAME = "envsample.sampling-table"
 SCHEMA_VERSION = 1
@@ -185,17 +187,50 @@ def read_table_json(prefix_or_path) -> dict:
     return doc
 
 
-def load_table(prefix_or_path):
-    """Load and verify a table written by :func:`save_table`.
+@dataclass
+class StoredTable:
+    """A table's files as read and verified by :func:`read_table`: the JSON document and the arrays.
+
+    ``arrays`` maps each name of :data:`ARRAY_DTYPES` to its array (little-endian,
+    the stored dtype); ``metadata`` is the part of the document that
+    :class:`envsample.sampling.table.EnvTable` keeps; ``paths`` the files.
+    """
+
+    paths: dict
+    doc: dict
+    arrays: dict
+
+    @property
+    def metadata(self) -> dict:
+        doc = self.doc
+        metadata = {
+            "convention": doc["convention"],
+            "options": doc["options"],
+            "integrals": doc["integrals"],
+            "sampled_integral": float(doc["sampled_integral"]),
+            "source": doc.get("source"),
+            "notes": doc.get("notes", []),
+            "tool_version": doc.get("tool", {}).get("version"),
+        }
+        if doc.get("valid_only_inside_mis"):
+            metadata["valid_only_inside_mis"] = True
+        if "recommendation" in doc:
+            metadata["recommendation"] = doc["recommendation"]
+        return metadata
+
+
+def read_table(prefix_or_path) -> StoredTable:
+    """Read a table's files and verify the container: schema, dtypes, shapes and sha256 of every array.
 
     Accepts the prefix or any of its files.  Raises :class:`TableFormatError`
     (naming the file and the problem) for a missing, corrupt, truncated, tampered
-    or other-version table.
+    or other-version table.  What the arrays mean (CDFs, alias table, pdf) is
+    checked by :func:`envsample.sampling.table.load_table`.
     """
     paths = table_paths(prefix_or_path)
     doc = read_table_json(prefix_or_path)
     try:
-        return _load_verified(paths, doc)
+        return StoredTable(paths=paths, doc=doc, arrays=_read_arrays(paths, doc))
     except (KeyError, IndexError, TypeError, AttributeError, ValueError) as exc:
         # Valid JSON of the wrong structure (hand-edited, or another tool's file).
         raise TableFormatError(
@@ -203,9 +238,7 @@ def load_table(prefix_or_path):
         ) from None
 
 
-def _load_verified(paths: dict, doc: dict):
-    from envsample.sampling.table import EnvTable
-
+def _read_arrays(paths: dict, doc: dict) -> dict:
     npz_path = paths["npz"]
     if not npz_path.exists():
         raise TableFormatError(f"{npz_path}: table array file not found (the JSON names it); rebuild the table")
@@ -230,32 +263,11 @@ def _load_verified(paths: dict, doc: dict):
             raise TableFormatError(f"{npz_path}: array {name!r} has shape {list(a.shape)}, JSON says {entry['shape']}")
         if _sha(a) != entry["sha256"]:
             raise TableFormatError(f"{npz_path}: array {name!r} fails its sha256 check (modified or corrupt); rebuild the table")
-    _check_consistency(arrays, doc, npz_path)
-    metadata = {
-        "convention": doc["convention"],
-        "options": doc["options"],
-        "integrals": doc["integrals"],
-        "sampled_integral": float(doc["sampled_integral"]),
-        "source": doc.get("source"),
-        "notes": doc.get("notes", []),
-        "tool_version": doc.get("tool", {}).get("version"),
-    }
-    if doc.get("valid_only_inside_mis"):
-        metadata["valid_only_inside_mis"] = True
-    if "recommendation" in doc:
-        metadata["recommendation"] = doc["recommendation"]
-    return EnvTable(
-        image=arrays["radiance"],
-        marginal_cdf=arrays["marginal_cdf"],
-        conditional_cdf=arrays["conditional_cdf"],
-        alias_probability=arrays["alias_probability"],
-        alias_index=arrays["alias_index"],
-        cell_pdf=arrays["cell_pdf"],
-        metadata=metadata,
-    )
+    _check_shapes(arrays, doc, npz_path)
+    return arrays
 
 
-def _check_consistency(arrays: dict, doc: dict, path: Path) -> None:
+def _check_shapes(arrays: dict, doc: dict, path: Path) -> None:
     h, w = int(doc["table"]["height"]), int(doc["table"]["width"])
     H, W = int(doc["image"]["height"]), int(doc["image"]["width"])
     expected = {
@@ -269,21 +281,6 @@ def _check_consistency(arrays: dict, doc: dict, path: Path) -> None:
     for name, shape in expected.items():
         if arrays[name].shape != shape:
             raise TableFormatError(f"{path}: array {name!r} has shape {arrays[name].shape}, expected {shape} for a {w}x{h} table")
-    for name in ("marginal_cdf", "conditional_cdf"):
-        problem = dist.check_cdf(arrays[name])
-        if problem:
-            raise TableFormatError(f"{path}: {name} {problem}; rebuild the table")
-    a_idx = arrays["alias_index"]
-    if a_idx.size and (a_idx.min() < 0 or a_idx.max() >= h * w):
-        raise TableFormatError(f"{path}: alias_index has entries outside [0, {h * w}); rebuild the table")
-    a_p = arrays["alias_probability"]
-    if not (np.isfinite(a_p).all() and a_p.min() >= 0.0 and a_p.max() <= 1.0):
-        raise TableFormatError(f"{path}: alias_probability has values outside [0, 1]; rebuild the table")
-    pdf = arrays["cell_pdf"]
-    if not (np.isfinite(pdf).all() and pdf.min() >= 0.0):
-        raise TableFormatError(f"{path}: cell_pdf has negative or non-finite values; rebuild the table")
     mapping = doc["options"].get("mapping")
-    from envsample.core.latlong import MAPPINGS
-
     if mapping not in MAPPINGS:
         raise TableFormatError(f"{path}: unknown in-cell mapping {mapping!r}")

@@ -398,7 +398,8 @@ def table_facts(prefix_or_path) -> dict:
     the number of cells with nonzero probability, the largest cell probability
     and the direction of that cell's centre, notes, and the files with their sizes.
     """
-    from envsample.io.tables import load_table, read_table_json, table_paths
+    from envsample.io.tables import read_table_json, table_paths
+    from envsample.sampling.table import load_table
 
     paths = table_paths(prefix_or_path)
     doc = read_table_json(prefix_or_path)

@@ -51,8 +51,9 @@ import numpy as np
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.latlong import MAPPINGS, parse_size, reduce_power, row_channel_sums
 from envsample.core.sphere import _frame, convention, direction_to_uv, row_cos_edges, row_solid_angles
-from envsample.errors import EnvsampleWarning, MapValidationError
+from envsample.errors import EnvsampleWarning, MapValidationError, TableFormatError
 from envsample.io.maps import map_pixels
+from envsample.io.tables import read_table, save_table
 from envsample.sampling import distribution as dist
 from envsample.sampling.kernels import kernels
 
@@ -299,8 +300,6 @@ class EnvTable:
     # ------------------------------------------------------------------- disk
     def save(self, prefix, *, raw: bool = False) -> list[Path]:
         """Write ``PREFIX.npz`` and ``PREFIX.json`` (and ``PREFIX.bin`` with ``raw=True``) atomically."""
-        from envsample.io.tables import save_table
-
         return save_table(self, prefix, raw=raw)
 
     def arrays(self) -> dict[str, np.ndarray]:
@@ -495,7 +494,47 @@ def build_table(
 
 
 def load_table(prefix_or_path) -> EnvTable:
-    """Load a table written by :meth:`EnvTable.save`; see :func:`envsample.tableio.load_table`."""
-    from envsample.io.tables import load_table as _load
+    """Load and verify a table written by :meth:`EnvTable.save`.
 
-    return _load(prefix_or_path)
+    Accepts the prefix or any of its files.  :func:`envsample.io.tables.read_table`
+    verifies the files (schema, shapes, sha256); this checks that the arrays form a
+    valid distribution (CDFs start at 0, end at 1 and never decrease; alias indices
+    and probabilities in range; a finite, non-negative pdf).  Raises
+    :class:`TableFormatError` naming the file and the problem.
+    """
+    stored = read_table(prefix_or_path)
+    _check_distribution(stored.arrays, stored.paths["npz"])
+    a = stored.arrays
+    try:
+        return EnvTable(
+            image=a["radiance"],
+            marginal_cdf=a["marginal_cdf"],
+            conditional_cdf=a["conditional_cdf"],
+            alias_probability=a["alias_probability"],
+            alias_index=a["alias_index"],
+            cell_pdf=a["cell_pdf"],
+            metadata=stored.metadata,
+        )
+    except (KeyError, IndexError, TypeError, AttributeError, ValueError) as exc:
+        # Valid JSON of the wrong structure (hand-edited, or another tool's file).
+        raise TableFormatError(
+            f"{stored.paths['json']}: malformed table metadata ({type(exc).__name__}: {exc}); rebuild the table"
+        ) from None
+
+
+def _check_distribution(arrays: dict, path) -> None:
+    """The stored arrays form a valid distribution; TableFormatError names ``path`` otherwise."""
+    for name in ("marginal_cdf", "conditional_cdf"):
+        problem = dist.check_cdf(arrays[name])
+        if problem:
+            raise TableFormatError(f"{path}: {name} {problem}; rebuild the table")
+    n = arrays["cell_pdf"].size
+    a_idx = arrays["alias_index"]
+    if a_idx.size and (a_idx.min() < 0 or a_idx.max() >= n):
+        raise TableFormatError(f"{path}: alias_index has entries outside [0, {n}); rebuild the table")
+    a_p = arrays["alias_probability"]
+    if not (np.isfinite(a_p).all() and a_p.min() >= 0.0 and a_p.max() <= 1.0):
+        raise TableFormatError(f"{path}: alias_probability has values outside [0, 1]; rebuild the table")
+    pdf = arrays["cell_pdf"]
+    if not (np.isfinite(pdf).all() and pdf.min() >= 0.0):
+        raise TableFormatError(f"{path}: cell_pdf has negative or non-finite values; rebuild the table")

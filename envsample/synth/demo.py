@@ -127,7 +127,8 @@ def _build_step(scene: DemoScene) -> DemoStep:
 
 def _vectors_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.io.tables import load_table, table_paths
+        from envsample.io.tables import table_paths
+        from envsample.sampling.table import load_table
 
         prefix = ctx.tables[scene.name].prefix
         table = load_table(prefix)  # vectors come from the table as a loader sees it on disk
