@@ -55,7 +55,7 @@ def main() -> None:
     width = 512 if args.quick else 2048
     rgb = skies.make_sky("rooftop", width=width)
     table = build_table(rgb)
-    normals, _ = normal_grid(*NORMALS, up=table.up, rotate_deg=table.rotate_deg)
+    normals, _ = normal_grid(*NORMALS, up=table.up, rotation_deg=table.rotation_deg)
     n_samples = normals.shape[0] * SPP
     print(f"map {width}x{width // 2}, normals {NORMALS[0]}x{NORMALS[1]}, {SPP} spp, {len(ESTIMATORS)} estimators")
 
@@ -71,7 +71,7 @@ def main() -> None:
     print(f"  ratio to drawing the uniforms alone ({total / rng_floor / 1e6:.1f} M pairs/s): {render / rng_floor:.1f}x")
     print(f"  ratio to one minute: {render / 60.0:.3f}")
 
-    ref = best(lambda: reference_irradiance(table.image, normals, up=table.up, rotate_deg=table.rotate_deg),
+    ref = best(lambda: reference_irradiance(table.image, normals, up=table.up, rotation_deg=table.rotation_deg),
                repeats=1 if not args.quick else 3)
     cells = table.width * table.height
     print(f"reference irradiance: {ref:.2f} s ({normals.shape[0]} normals x {cells / 1e6:.2f} M cells)")

@@ -153,9 +153,9 @@ def test_expand_sources_walks_folders_globs_and_dedupes(tmp_path):
 
 
 def test_normalize_options_checks_names_and_values():
-    opts = normalize_options({"size": "32x16", "primaries": "srgb", "rotate_deg": 90})
+    opts = normalize_options({"size": "32x16", "primaries": "srgb", "rotation_deg": 90})
     assert opts == {"size": [32, 16], "primaries": "bt709", "mapping": "equal-area", "uniform_mix": 0.0,
-                    "up": "y", "rotate": 90.0}
+                    "up": "y", "rotation_deg": 90.0}
     with pytest.raises(ValueError, match="unknown batch option.*valid options: size, primaries"):
         normalize_options({"sizes": "32x16"})
     with pytest.raises(ValueError, match="unknown mapping 'flat'"):

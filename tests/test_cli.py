@@ -242,7 +242,7 @@ def test_output_under_a_file_is_refused_before_reading(run, tmp_path):
         (["--size", "12"], "is not of the form WIDTHxHEIGHT"),
         (["--primaries", "p3"], "'p3' is not one of"),
         (["--uniform-mix", "1"], "--uniform-mix"),
-        (["--rotate", "nan"], "--rotate"),
+        (["--rotation", "nan"], "--rotation"),
         (["--up", "x"], "'x' is not one of 'y', 'z'"),
     ],
 )
@@ -281,12 +281,12 @@ def test_build_options_reach_the_table(run, tmp_path):
     src = _map(tmp_path / "m.exr", _gradient())
     result = run(
         "build", src, "-o", tmp_path / "t", "--size", "32x16", "--primaries", "ACEScg", "--mapping", "uv-linear",
-        "--uniform-mix", "0.25", "--up", "z", "--rotate", "30", "--compensate",
+        "--uniform-mix", "0.25", "--up", "z", "--rotation", "30", "--compensate",
     )
     assert result.exit_code == 0, result.output
     t = load_table(tmp_path / "t")
     assert (t.table_width, t.table_height, t.width, t.height) == (32, 16, W, H)
-    assert (t.primaries, t.mapping, t.up, t.rotate_deg, t.uniform_mix) == ("acescg", "uv-linear", "z", 30.0, 0.25)
+    assert (t.primaries, t.mapping, t.up, t.rotation_deg, t.uniform_mix) == ("acescg", "uv-linear", "z", 30.0, 0.25)
     assert t.compensated and "valid only inside MIS" in result.stdout
 
 
@@ -379,14 +379,26 @@ def test_inspect_table(run, tmp_path):
 
 
 def test_inspect_rotated_table_moves_the_largest_cell(run, tmp_path):
-    """rotate_deg R turns the map about the up axis: azimuths shift by R (envsample.sphere convention)."""
+    """rotation_deg R turns the map about the up axis: azimuths shift by R (envsample.sphere convention)."""
     src = _map(tmp_path / "m.exr", _gradient())
     run("build", src, "-o", tmp_path / "a")
-    run("build", src, "-o", tmp_path / "b", "--rotate", "90")
+    run("build", src, "-o", tmp_path / "b", "--rotation", "90")
     a = _json_of(run("inspect", tmp_path / "a", "--json"))["largest_cell"]
     b = _json_of(run("inspect", tmp_path / "b", "--json"))["largest_cell"]
     assert b["azimuth_deg"] == pytest.approx(((a["azimuth_deg"] + 90.0 + 180.0) % 360.0) - 180.0, abs=1e-3)
     assert b["elevation_deg"] == pytest.approx(a["elevation_deg"], abs=1e-9)
+
+
+def test_the_old_rotate_flag_still_works_but_help_shows_one_spelling(run, tmp_path):
+    """``--rotate`` was the flag's name before ``--rotation``: kept as a hidden alias."""
+    src = _map(tmp_path / "m.exr", _gradient())
+    run("build", src, "-o", tmp_path / "a", "--rotation", "30")
+    run("build", src, "-o", tmp_path / "b", "--rotate", "30")
+    a = _json_of(run("inspect", tmp_path / "a", "--json"))
+    b = _json_of(run("inspect", tmp_path / "b", "--json"))
+    assert a["largest_cell"] == b["largest_cell"] and a["convention"] == b["convention"]
+    text = run("build", "--help").output
+    assert "--rotation DEG" in text and "--rotate" not in text
 
 
 def test_inspect_refuses_a_tampered_table(run, tmp_path):

@@ -46,10 +46,10 @@ def _random_normals(count, seed):
 AXES = np.concatenate([np.eye(3), -np.eye(3)])
 
 
-def _map_frame(up, rotate_deg):
+def _map_frame(up, rotation_deg):
     """Rows forward_R, right_R, up of the sphere convention, computed independently here."""
     f, r, a = (np.array(v, dtype=np.float64) for v in UP_AXES[up])
-    c, s = math.cos(math.radians(rotate_deg)), math.sin(math.radians(rotate_deg))
+    c, s = math.cos(math.radians(rotation_deg)), math.sin(math.radians(rotation_deg))
     return np.stack([c * f + s * r, -s * f + c * r, a])
 
 
@@ -66,9 +66,9 @@ def _cap_map(height, width, rows, inside, outside=(0.0, 0.0, 0.0)):
 # ---------------------------------------------------------------------------
 
 @pytest.mark.parametrize("up", ["y", "z"])
-@pytest.mark.parametrize("rotate_deg", [0.0, 90.0, 33.3])
+@pytest.mark.parametrize("rotation_deg", [0.0, 90.0, 33.3])
 @pytest.mark.parametrize("shape", [(1, 2), (3, 6), (16, 32), (33, 64)])
-def test_uniform_map_gives_pi_times_radiance(up, rotate_deg, shape):
+def test_uniform_map_gives_pi_times_radiance(up, rotation_deg, shape):
     """Lambert's cosine law: integral of max(0, n.w) over the sphere is pi, so E = pi L.
 
     Includes axis-aligned normals, whose horizon runs along the equator or along a
@@ -77,7 +77,7 @@ def test_uniform_map_gives_pi_times_radiance(up, rotate_deg, shape):
     color = np.array([0.25, 1.0, 3.5])
     img = np.broadcast_to(color, shape + (3,))
     normals = np.concatenate([_random_normals(40, 1), AXES])
-    E = reference_irradiance(img, normals, up=up, rotate_deg=rotate_deg)
+    E = reference_irradiance(img, normals, up=up, rotation_deg=rotation_deg)
     np.testing.assert_allclose(E, np.pi * np.broadcast_to(color, E.shape), rtol=EXACT_RTOL)
 
 
@@ -93,8 +93,8 @@ def test_normals_of_several_shapes():
     assert reference_irradiance(img, np.zeros((0, 3))).shape == (0, 3)
 
 
-@pytest.mark.parametrize("up,rotate_deg", [("y", 0.0), ("z", 90.0), ("y", -47.0)])
-def test_polar_cap_closed_form(up, rotate_deg):
+@pytest.mark.parametrize("up,rotation_deg", [("y", 0.0), ("z", 90.0), ("y", -47.0)])
+def test_polar_cap_closed_form(up, rotation_deg):
     """Cap of half-angle a about the up axis, radiance L (textbook closed forms).
 
     About its axis: E = int_0^a cos t sin t dt * 2 pi * L = pi L sin^2 a.  For a normal
@@ -106,13 +106,13 @@ def test_polar_cap_closed_form(up, rotate_deg):
     a = math.pi * rows / H
     L = np.array([2.0, 1.0, 0.5])
     img = _cap_map(H, W, rows, L)
-    frame = _map_frame(up, rotate_deg)
+    frame = _map_frame(up, rotation_deg)
     axis = frame[2]
     taus = np.array([0.0, 0.3, math.pi / 2 - a])
     azim = np.array([0.4, 2.0, -2.5])
     local = np.stack([np.sin(taus) * np.cos(azim), np.sin(taus) * np.sin(azim), np.cos(taus)], axis=1)
     normals = local @ frame
-    E = reference_irradiance(img, normals, up=up, rotate_deg=rotate_deg)
+    E = reference_irradiance(img, normals, up=up, rotation_deg=rotation_deg)
     expected = np.pi * math.sin(a) ** 2 * np.cos(taus)[:, None] * L
     np.testing.assert_allclose(E, expected, rtol=EXACT_RTOL)
     np.testing.assert_allclose(normals @ axis, np.cos(taus), rtol=1e-14)
@@ -176,14 +176,14 @@ def _lit_theta_range(c, nz, t0, t1):
     return (t0, t1) if c > 0 else (t0, t0)
 
 
-def _dblquad_irradiance(img, normal, up, rotate_deg):
+def _dblquad_irradiance(img, normal, up, rotation_deg):
     """Sum over cells of L_cell * int_cell max(0, n.w) dw with scipy.integrate.dblquad.
 
     Per cell the outer variable is phi and the inner theta, limited to the lit part so
     the integrand is smooth (d omega = sin t dt dphi).
     """
     H, W = img.shape[:2]
-    nx, ny, nz = _map_frame(up, rotate_deg) @ normal
+    nx, ny, nz = _map_frame(up, rotation_deg) @ normal
     total = np.zeros(3)
     for i in range(H):
         t0, t1 = math.pi * i / H, math.pi * (i + 1) / H
@@ -204,8 +204,8 @@ def _dblquad_irradiance(img, normal, up, rotate_deg):
     return total
 
 
-@pytest.mark.parametrize("up,rotate_deg", [("y", 0.0), ("z", 90.0), ("y", 21.0)])
-def test_random_piecewise_constant_map_matches_scipy_dblquad(up, rotate_deg):
+@pytest.mark.parametrize("up,rotation_deg", [("y", 0.0), ("z", 90.0), ("y", 21.0)])
+def test_random_piecewise_constant_map_matches_scipy_dblquad(up, rotation_deg):
     """An arbitrary piecewise-constant map against scipy.integrate.dblquad, cell by cell.
 
     The map is the analytic function (constant per cell); normals include random ones
@@ -214,12 +214,12 @@ def test_random_piecewise_constant_map_matches_scipy_dblquad(up, rotate_deg):
     """
     img = np.random.default_rng(5).random((6, 12, 3))
     normals = np.concatenate([_random_normals(2, 7), AXES[[0, 2, 4]]])
-    E = reference_irradiance(img, normals, up=up, rotate_deg=rotate_deg)
+    E = reference_irradiance(img, normals, up=up, rotation_deg=rotation_deg)
     for n, e in zip(normals, E):
-        np.testing.assert_allclose(e, _dblquad_irradiance(img, n, up, rotate_deg), rtol=1e-11, atol=1e-12)
+        np.testing.assert_allclose(e, _dblquad_irradiance(img, n, up, rotation_deg), rtol=1e-11, atol=1e-12)
 
 
-def _nested_quad_irradiance(img, normal, up, rotate_deg):
+def _nested_quad_irradiance(img, normal, up, rotation_deg):
     """Sum over cells of L_cell * int_cell max(0, n.w) dw by nested scipy.integrate.quad.
 
     Inner integral over phi with the zero crossings of n.w passed as break points, outer
@@ -227,7 +227,7 @@ def _nested_quad_irradiance(img, normal, up, rotate_deg):
     (dblquad's outer integrand then jumps).
     """
     H, W = img.shape[:2]
-    nx, ny, nz = _map_frame(up, rotate_deg) @ normal
+    nx, ny, nz = _map_frame(up, rotation_deg) @ normal
     pn, nh = math.atan2(ny, nx), math.hypot(nx, ny)
     total = np.zeros(3)
     for i in range(H):
@@ -273,7 +273,7 @@ def test_near_degenerate_normals_match_quadrature():
                 pert = rng.normal(size=3)
                 pert = _unit(pert - (pert @ base) * base)
                 n = _unit(base * math.cos(eps) + pert * math.sin(eps))
-                E = reference_irradiance(img, n, up=up, rotate_deg=rot)
+                E = reference_irradiance(img, n, up=up, rotation_deg=rot)
                 np.testing.assert_allclose(E, _nested_quad_irradiance(img, n, up, rot),
                                            atol=2 * SNAP_RADIANS * power + 1e-11)
 
@@ -304,7 +304,7 @@ def test_cell_cosine_integrals_closed_form():
     H, W = 8, 12
     n = _unit([0.3, -0.7, 0.2])
     for up, rot in (("y", 0.0), ("z", 57.0)):
-        cells = cell_cosine_integrals(H, W, n, up=up, rotate_deg=rot)
+        cells = cell_cosine_integrals(H, W, n, up=up, rotation_deg=rot)
         nx, ny, nz = _map_frame(up, rot) @ n
         for i, j in ((0, 0), (3, 5), (7, 11), (4, 2)):
             p0, p1 = -math.pi + 2 * math.pi * j / W, -math.pi + 2 * math.pi * (j + 1) / W
@@ -326,9 +326,9 @@ def test_irradiance_difference_equals_first_moment():
     img = np.random.default_rng(11).random((32, 64, 3)) ** 3
     n = _random_normals(100, 12)
     for up, rot in (("y", 0.0), ("z", 123.0)):
-        diff = reference_irradiance(img, n, up=up, rotate_deg=rot) - reference_irradiance(img, -n, up=up,
-                                                                                            rotate_deg=rot)
-        np.testing.assert_allclose(diff, n @ first_moment(img, up=up, rotate_deg=rot), atol=1e-13)
+        diff = reference_irradiance(img, n, up=up, rotation_deg=rot) - reference_irradiance(img, -n, up=up,
+                                                                                            rotation_deg=rot)
+        np.testing.assert_allclose(diff, n @ first_moment(img, up=up, rotation_deg=rot), atol=1e-13)
 
 
 def test_rotating_map_and_normal_together_changes_nothing():
@@ -338,7 +338,7 @@ def test_rotating_map_and_normal_together_changes_nothing():
     for up in ("y", "z"):
         for rot in (90.0, 37.0):
             moved = n @ _map_frame(up, rot).T @ _map_frame(up, 0.0)
-            np.testing.assert_allclose(reference_irradiance(img, n, up=up, rotate_deg=rot),
+            np.testing.assert_allclose(reference_irradiance(img, n, up=up, rotation_deg=rot),
                                        reference_irradiance(img, moved, up=up), rtol=1e-12)
 
 
@@ -435,7 +435,7 @@ def test_sh9_projection_is_exact_for_the_piecewise_constant_map():
         per_cell = _cell_gauss_integrals(H, W, world)
         expected = np.einsum("ijk,ijc->kc", per_cell, img)
         # The published constants are rounded to 6 digits: compare at that precision.
-        np.testing.assert_allclose(sh9_project(img, up=up, rotate_deg=rot), expected, rtol=2e-6, atol=1e-6)
+        np.testing.assert_allclose(sh9_project(img, up=up, rotation_deg=rot), expected, rtol=2e-6, atol=1e-6)
 
 
 def test_sh9_irradiance_closed_forms():
@@ -569,7 +569,7 @@ def test_glossy_follows_the_map_convention():
     base = reference_glossy(img, n, wo, 0.3)
     for up, rot in (("z", 0.0), ("z", 70.0), ("y", -120.0)):
         move = _map_frame(up, rot).T @ _map_frame("y", 0.0)  # world(y, 0) -> world(up, rot)
-        np.testing.assert_allclose(reference_glossy(img, move @ n, move @ wo, 0.3, up=up, rotate_deg=rot),
+        np.testing.assert_allclose(reference_glossy(img, move @ n, move @ wo, 0.3, up=up, rotation_deg=rot),
                                    base, rtol=1e-6)
 
 

@@ -131,17 +131,17 @@ def test_landmarks(up):
 
 @pytest.mark.parametrize("up", UPS)
 def test_rotation_turns_the_image_centre_about_up(up):
-    """With rotate_deg = R the image centre looks at azimuth R (docstring): 90 deg -> right."""
+    """With rotation_deg = R the image centre looks at azimuth R (docstring): 90 deg -> right."""
     f, r, a = (np.array(v) for v in UP_AXES[up])
-    np.testing.assert_allclose(uv_to_direction(0.5, 0.5, up=up, rotate_deg=90.0), r, atol=1e-15)
-    np.testing.assert_allclose(uv_to_direction(0.5, 0.5, up=up, rotate_deg=-90.0), -r, atol=1e-15)
-    np.testing.assert_allclose(uv_to_direction(0.5, 0.5, up=up, rotate_deg=180.0), -f, atol=1e-15)
+    np.testing.assert_allclose(uv_to_direction(0.5, 0.5, up=up, rotation_deg=90.0), r, atol=1e-15)
+    np.testing.assert_allclose(uv_to_direction(0.5, 0.5, up=up, rotation_deg=-90.0), -r, atol=1e-15)
+    np.testing.assert_allclose(uv_to_direction(0.5, 0.5, up=up, rotation_deg=180.0), -f, atol=1e-15)
     # Rotation never moves the up axis.
-    np.testing.assert_allclose(uv_to_direction(0.1, 0.0, up=up, rotate_deg=37.0), a, atol=1e-15)
+    np.testing.assert_allclose(uv_to_direction(0.1, 0.0, up=up, rotation_deg=37.0), a, atol=1e-15)
     # A rotation by R equals shifting u by R / 360.
     u = np.linspace(0.0, 0.7, 9)
     np.testing.assert_allclose(
-        uv_to_direction(u, 0.3, up=up, rotate_deg=36.0), uv_to_direction(u + 0.1, 0.3, up=up), atol=1e-14
+        uv_to_direction(u, 0.3, up=up, rotation_deg=36.0), uv_to_direction(u + 0.1, 0.3, up=up), atol=1e-14
     )
 
 
@@ -154,14 +154,14 @@ def test_up_axis_is_case_insensitive_and_unknown_axis_errors():
 
 
 @pytest.mark.parametrize("up", UPS)
-@pytest.mark.parametrize("rotate_deg", [0.0, 33.0, -120.0, 270.0, 725.0])
-def test_uv_direction_round_trip(up, rotate_deg, rng):
+@pytest.mark.parametrize("rotation_deg", [0.0, 33.0, -120.0, 270.0, 725.0])
+def test_uv_direction_round_trip(up, rotation_deg, rng):
     """direction_to_uv inverts uv_to_direction (both up axes, several rotations, incl. > 360 deg)."""
     u = rng.random(5000)
     v = rng.uniform(1e-6, 1 - 1e-6, 5000)
-    d = uv_to_direction(u, v, up=up, rotate_deg=rotate_deg)
+    d = uv_to_direction(u, v, up=up, rotation_deg=rotation_deg)
     np.testing.assert_allclose(np.linalg.norm(d, axis=-1), 1.0, rtol=1e-15)
-    u2, v2 = direction_to_uv(d, up=up, rotate_deg=rotate_deg)
+    u2, v2 = direction_to_uv(d, up=up, rotation_deg=rotation_deg)
     np.testing.assert_allclose(v2, v, atol=UV_TOL)
     du = (u2 - u + 0.5) % 1.0 - 0.5  # u is periodic: compare on the circle
     np.testing.assert_allclose(du, 0.0, atol=UV_TOL)
@@ -169,8 +169,8 @@ def test_uv_direction_round_trip(up, rotate_deg, rng):
     # And direction -> uv -> direction.
     dirs = rng.normal(size=(2000, 3))
     dirs /= np.linalg.norm(dirs, axis=1, keepdims=True)
-    uu, vv = direction_to_uv(dirs, up=up, rotate_deg=rotate_deg)
-    np.testing.assert_allclose(uv_to_direction(uu, vv, up=up, rotate_deg=rotate_deg), dirs, atol=1e-14)
+    uu, vv = direction_to_uv(dirs, up=up, rotation_deg=rotation_deg)
+    np.testing.assert_allclose(uv_to_direction(uu, vv, up=up, rotation_deg=rotation_deg), dirs, atol=1e-14)
 
 
 def test_direction_to_uv_accepts_unnormalised_and_zero_vectors():
@@ -216,12 +216,12 @@ def test_nan_input_propagates_instead_of_becoming_a_direction():
 
 # ------------------------------------------------------------------ pixels
 @pytest.mark.parametrize("up", UPS)
-@pytest.mark.parametrize("rotate_deg", [0.0, 45.0, -200.0])
-def test_pixel_centres_map_back_to_their_pixels(up, rotate_deg):
+@pytest.mark.parametrize("rotation_deg", [0.0, 45.0, -200.0])
+def test_pixel_centres_map_back_to_their_pixels(up, rotation_deg):
     h, w = 16, 32
-    d = pixel_center_directions(h, w, up=up, rotate_deg=rotate_deg)
+    d = pixel_center_directions(h, w, up=up, rotation_deg=rotation_deg)
     assert d.shape == (h, w, 3)
-    row, col = direction_to_pixel(d.reshape(-1, 3), h, w, up=up, rotate_deg=rotate_deg)
+    row, col = direction_to_pixel(d.reshape(-1, 3), h, w, up=up, rotation_deg=rotation_deg)
     rr, cc = np.divmod(np.arange(h * w), w)
     np.testing.assert_array_equal(row, rr)
     np.testing.assert_array_equal(col, cc)
@@ -274,9 +274,9 @@ def test_pixel_center_angles_agree_with_the_directions(rotate):
     from envsample.pipeline.workflow import direction_angles
 
     h, w = 6, 12
-    d = sphere.pixel_center_directions(h, w, up="z", rotate_deg=rotate)
-    az_ref, el_ref = direction_angles(d, up="z", rotate_deg=rotate)
+    d = sphere.pixel_center_directions(h, w, up="z", rotation_deg=rotate)
+    az_ref, el_ref = direction_angles(d, up="z", rotation_deg=rotate)
     rows, cols = np.meshgrid(np.arange(h), np.arange(w), indexing="ij")
-    az, el = pixel_center_angles(rows, cols, h, w, rotate_deg=rotate)
+    az, el = pixel_center_angles(rows, cols, h, w, rotation_deg=rotate)
     np.testing.assert_allclose(el, el_ref, atol=1e-9)
     np.testing.assert_allclose(np.cos(np.radians(az - az_ref)), 1.0, atol=1e-12)  # equal modulo 360

@@ -226,7 +226,7 @@ def test_chisquare_random_map(method, mapping, backend, rng):
     """Pearson chi-square (scipy.stats.chisquare) of 200k samples against the reference cell
     probabilities (BT.709 luminance x exact solid angle), cells found from the directions."""
     rgb = _random_map(rng, 16, 32)
-    t = build_table(rgb, mapping=mapping, up="z", rotate_deg=30.0)
+    t = build_table(rgb, mapping=mapping, up="z", rotation_deg=30.0)
     n = 200_000
     s = _sample(t, rng.random((n, 2)), method, backend)
     cells = _cells_from_directions(t, s.directions)
@@ -282,7 +282,7 @@ def test_chisquare_rejects_wrong_distributions(rng):
 def _in_cell_coordinates(t, d):
     """Fractions within the cell: cos-theta fraction, theta fraction and u fraction, each in [0, 1]."""
     h, w = t.table_height, t.table_width
-    u, v = direction_to_uv(d, up=t.up, rotate_deg=t.rotate_deg)
+    u, v = direction_to_uv(d, up=t.up, rotation_deg=t.rotation_deg)
     row = np.minimum((v * h).astype(np.int64), h - 1)
     col = np.minimum((u * w).astype(np.int64), w - 1)
     edges = np.cos(np.pi * np.arange(h + 1) / h)
@@ -319,13 +319,13 @@ def test_in_cell_placement_is_uniform_in_the_mapping_coordinate(mapping, method,
 @pytest.mark.parametrize("backend", BACKENDS)
 @pytest.mark.parametrize("mapping", MAPPINGS)
 @pytest.mark.parametrize("method", SAMPLE_METHODS)
-@pytest.mark.parametrize("up, rotate_deg, mix", [("y", 0.0, 0.0), ("z", -75.0, 0.2)])
-def test_pdf_of_samples_matches_sample_pdf(method, mapping, backend, up, rotate_deg, mix, rng):
+@pytest.mark.parametrize("up, rotation_deg, mix", [("y", 0.0, 0.0), ("z", -75.0, 0.2)])
+def test_pdf_of_samples_matches_sample_pdf(method, mapping, backend, up, rotation_deg, mix, rng):
     """pdf(sample(u).directions) == sample(u).pdf to 1e-5 relative (issue 2), for both up axes,
     a rotation and a uniform mixture; directions are unit vectors; radiance equals eval."""
     rgb = _sun_map(rng, 16, 32, sun=(3, 5), ratio=1e4)
     rgb[12:] = 0.0  # black ground: zero-probability cells must never be drawn (without a mixture)
-    t = build_table(rgb, mapping=mapping, up=up, rotate_deg=rotate_deg, uniform_mix=mix)
+    t = build_table(rgb, mapping=mapping, up=up, rotation_deg=rotation_deg, uniform_mix=mix)
     u = rng.random((50_000, 2))
     u[:4] = [[0.0, 0.0], [np.nextafter(1.0, 0.0)] * 2, [0.0, np.nextafter(1.0, 0.0)], [0.5, 0.5]]
     s = _sample(t, u, method, backend)
@@ -430,7 +430,7 @@ def test_sampling_is_bit_exact_repeatable(method, backend, rng):
 @pytest.mark.parametrize("method", SAMPLE_METHODS)
 def test_compiled_and_numpy_samplers_agree(method, mapping, rng):
     """The compiled and numpy samplers pick the same cells and agree on directions and pdf to rounding."""
-    t = build_table(_sun_map(rng, 16, 32, sun=(2, 30), ratio=1e5), mapping=mapping, up="z", rotate_deg=10.0)
+    t = build_table(_sun_map(rng, 16, 32, sun=(2, 30), ratio=1e5), mapping=mapping, up="z", rotation_deg=10.0)
     u = rng.random((50_000, 2))
     a, b = _sample(t, u, method, "numpy"), _sample(t, u, method, "compiled")
     np.testing.assert_array_equal(a.cells, b.cells)
@@ -592,10 +592,10 @@ def test_primaries_choice_changes_the_weights(primaries, space, rng):
 def test_eval_returns_the_pixel_of_each_direction(up, rng):
     """eval is nearest-pixel at full resolution in the table's convention (pixel centres -> pixels)."""
     rgb = _random_map(rng, 16, 32)
-    t = build_table(rgb, up=up, rotate_deg=123.0, size=(8, 4))
-    d = pixel_center_directions(16, 32, up=up, rotate_deg=123.0).reshape(-1, 3)
+    t = build_table(rgb, up=up, rotation_deg=123.0, size=(8, 4))
+    d = pixel_center_directions(16, 32, up=up, rotation_deg=123.0).reshape(-1, 3)
     np.testing.assert_array_equal(t.eval(d), rgb.reshape(-1, 3))
-    assert t.up == up and t.rotate_deg == 123.0
+    assert t.up == up and t.rotation_deg == 123.0
     assert t.metadata["convention"]["up_axis"] == up
 
 

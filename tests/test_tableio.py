@@ -41,7 +41,7 @@ def _map(seed=5, h=16, w=32):
 
 @pytest.fixture
 def table():
-    t = build_table(_map(), mapping="uv-linear", up="z", rotate_deg=30.0, uniform_mix=0.1, size=(16, 8))
+    t = build_table(_map(), mapping="uv-linear", up="z", rotation_deg=30.0, uniform_mix=0.1, size=(16, 8))
     t.metadata["recommendation"] = {"method": "alias", "why": "invented for the test"}
     return t
 
@@ -78,7 +78,7 @@ def test_round_trip_is_bit_exact(tmp_path, table, rng):
             np.testing.assert_array_equal(b, a, err_msg=name)
         for key in ("convention", "options", "integrals", "sampled_integral", "notes", "source", "recommendation"):
             assert loaded.metadata[key] == table.metadata[key], key
-        for attr in ("height", "width", "table_height", "table_width", "up", "rotate_deg", "mapping",
+        for attr in ("height", "width", "table_height", "table_width", "up", "rotation_deg", "mapping",
                      "primaries", "uniform_mix", "compensated"):
             assert getattr(loaded, attr) == getattr(table, attr), attr
     u = rng.random((5000, 2))
@@ -204,7 +204,7 @@ class _DocLoader:
 def test_documented_recipe_reproduces_sampling(tmp_path, rng, mapping, method):
     """docs/table-format.md is enough to write a loader: following its recipe on the raw file gives
     the cells, directions and pdf of EnvTable.sample (to the float rounding of the recipe)."""
-    t = build_table(_map(), mapping=mapping, up="z", rotate_deg=-40.0)
+    t = build_table(_map(), mapping=mapping, up="z", rotation_deg=-40.0)
     prefix = tmp_path / "studio"
     t.save(prefix, raw=True)
     ref = _DocLoader(prefix)
@@ -420,7 +420,7 @@ def test_interrupted_before_the_json_never_loads_a_hybrid(tmp_path, table, monke
     """If the save dies after the new arrays are in place but before the JSON is renamed, the old JSON's
     checksums refuse the new arrays: a half-written table never loads (tableio module docstring)."""
     prefix, paths = _saved(tmp_path, table)
-    other = build_table(_map(seed=9), mapping="uv-linear", up="z", rotate_deg=30.0, uniform_mix=0.1, size=(16, 8))
+    other = build_table(_map(seed=9), mapping="uv-linear", up="z", rotation_deg=30.0, uniform_mix=0.1, size=(16, 8))
     real_replace = os.replace
 
     def replace(src, dst):

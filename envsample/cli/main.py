@@ -36,6 +36,10 @@ from pathlib import Path
 import click
 
 from envsample._version import __version__
+from envsample.core.color import PRIMARY_NAMES
+from envsample.core.constants import PRIMARY_ALIASES
+from envsample.core.latlong import MAPPINGS
+from envsample.core.sphere import UP_AXES
 from envsample.errors import EnvsampleError, EnvsampleWarning
 
 __all__ = ["main", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR"]
@@ -233,7 +237,21 @@ class _FiniteFloat(click.ParamType):
 SIZE = _SizeType()
 DEGREES = _FiniteFloat(-360.0, 360.0, "DEG")
 
-PRIMARY_CHOICES = ("bt709", "srgb", "bt2020", "acescg", "aces2065-1", "max", "mean")
+#: ``--primaries`` choices: the library's names and their aliases (``srgb``, ``rec709``...).
+PRIMARY_CHOICES = PRIMARY_NAMES + tuple(PRIMARY_ALIASES)
+
+
+class _RenamedOption(click.Option):
+    """An option whose later names are old spellings: accepted, but not shown in ``--help``."""
+
+    def get_help_record(self, ctx):
+        record = super().get_help_record(ctx)
+        if record is None or len(self.opts) < 2:
+            return record
+        names, text = record
+        for old in self.opts[1:]:
+            names = names.replace(f", {old}", "")
+        return names, text
 
 
 def _table_options(command):
@@ -243,13 +261,13 @@ def _table_options(command):
                      "power-preserving reduction); default: the map's own size."),
         click.option("--primaries", type=click.Choice(PRIMARY_CHOICES, case_sensitive=False), default="bt709",
                      show_default=True, help="Luminance weights the table follows."),
-        click.option("--mapping", type=click.Choice(["equal-area", "uv-linear"]), default="equal-area",
+        click.option("--mapping", type=click.Choice(MAPPINGS), default="equal-area",
                      show_default=True, help="Placement within a cell: equal-area (pdf constant per cell) or uv-linear."),
         click.option("--uniform-mix", type=click.FloatRange(0.0, 1.0, max_open=True), default=0.0, show_default=True,
                      metavar="F", help="Weight of uniform sphere sampling mixed in, so the pdf is never zero."),
-        click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True, help="World up axis."),
-        click.option("--rotate", "rotate_deg", type=DEGREES, default=0.0, show_default=True,
-                     help="Rotation of the map about the up axis, degrees."),
+        click.option("--up", type=click.Choice(tuple(UP_AXES)), default="y", show_default=True, help="World up axis."),
+        click.option("--rotation", "--rotate", "rotation_deg", cls=_RenamedOption, type=DEGREES, default=0.0,
+                     show_default=True, help="Rotation of the map about the up axis, degrees."),
     )
     for option in reversed(options):
         command = option(command)
@@ -290,7 +308,7 @@ def main(debug):
 @click.option("--repair", is_flag=True, help="Replace NaN/Inf pixels with 0 (and say how many) instead of refusing.")
 @click.option("--allow-aspect", is_flag=True, help="Accept a map that is not 2:1.")
 @click.option("--layer", default=None, metavar="NAME", help="EXR layer to read when the file has several.")
-def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_deg, compensate, tune, raw, repair,
+def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_deg, compensate, tune, raw, repair,
           allow_aspect, layer):
     """Build the sampling table of MAP (.exr or .hdr).
 
@@ -310,11 +328,11 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotate_de
         result = build_from_file(
             map_path, prefix, raw=raw, repair=repair, allow_aspect=allow_aspect, layer=layer, progress=progress,
             size=size, primaries=primaries.lower(), mapping=mapping, uniform_mix=uniform_mix, up=up,
-            rotate_deg=rotate_deg, compensate=compensate, tune=tune,
+            rotation_deg=rotation_deg, compensate=compensate, tune=tune,
         )
         printed.extend(result.notes)
     t, img = result.table, result.image
-    opts = [t.mapping, f"primaries {t.primaries}", f"up {t.up}", f"rotation {t.rotate_deg:g} deg"]
+    opts = [t.mapping, f"primaries {t.primaries}", f"up {t.up}", f"rotation {t.rotation_deg:g} deg"]
     if t.uniform_mix:
         opts.append(f"uniform mix {t.uniform_mix:g}")
     if t.compensated:
@@ -758,7 +776,7 @@ def check(maps, profile_path, json_path, html_path, strict, only):
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
 @_table_options
 def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
-          uniform_mix, up, rotate_deg):
+          uniform_mix, up, rotation_deg):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
     SOURCE is files, folders (searched recursively) or glob patterns. Each map's
@@ -773,7 +791,7 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
 
     profile = load_profile(profile_path)
     options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,
-               "up": up, "rotate": rotate_deg}
+               "up": up, "rotation_deg": rotation_deg}
     bar = _progress_bar(0, "maps")
 
     def progress(p):

@@ -18,7 +18,7 @@ An equirectangular ("lat-long") map of H rows and W columns covers the sphere.
   ``up="z"``: a = +Z, f = +Y, r = +X.
   The centre of the image (u = 0.5, v = 0.5) therefore looks forward, and
   moving right in the image turns to the viewer's right, as seen from inside the
-  sphere.  ``rotate_deg`` (degrees at the API boundary, radians inside) turns the
+  sphere.  ``rotation_deg`` (degrees at the API boundary, radians inside) turns the
   environment about the up axis: with rotation R the image centre looks at azimuth R.
 
 Pixel (i, j) covers theta in [pi*i/H, pi*(i+1)/H] and u in [j/W, (j+1)/W]; its
@@ -35,6 +35,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
+
+from envsample.core.compat import renamed_keywords
 
 __all__ = [
     "UP_AXES",
@@ -67,7 +69,8 @@ def _frame(up: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return np.array(f), np.array(r), np.array(a)
 
 
-def convention(up: str = "y", rotate_deg: float = 0.0) -> dict:
+@renamed_keywords(rotate_deg="rotation_deg")
+def convention(up: str = "y", rotation_deg: float = 0.0) -> dict:
     """A JSON-ready description of the direction convention, stored in every table."""
     f, r, a = _frame(up)
     return {
@@ -77,14 +80,15 @@ def convention(up: str = "y", rotate_deg: float = 0.0) -> dict:
         "right": r.tolist(),
         "up": a.tolist(),
         "handedness": "right",
-        "rotation_deg": float(rotate_deg),
+        "rotation_deg": float(rotation_deg),
         "u": "0 at the left edge, increasing to the right; phi = 2*pi*(u - 0.5) + rotation",
         "v": "0 at the top row (zenith), 1 at the bottom row (nadir); theta = pi * v",
         "direction": "d = sin(theta)*(cos(phi)*forward + sin(phi)*right) + cos(theta)*up",
     }
 
 
-def uv_to_direction(u, v, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
+@renamed_keywords(rotate_deg="rotation_deg")
+def uv_to_direction(u, v, *, up: str = "y", rotation_deg: float = 0.0) -> np.ndarray:
     """Unit directions for image coordinates.
 
     Parameters
@@ -93,7 +97,7 @@ def uv_to_direction(u, v, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarr
         Image coordinates in [0, 1] (broadcast together); see the module docstring.
     up : {"y", "z"}
         The world up axis.
-    rotate_deg : float
+    rotation_deg : float
         Rotation of the environment about the up axis, degrees.
 
     Returns
@@ -103,7 +107,7 @@ def uv_to_direction(u, v, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarr
     u = np.asarray(u, dtype=np.float64)
     v = np.asarray(v, dtype=np.float64)
     f, r, a = _frame(up)
-    phi = 2.0 * math.pi * (u - 0.5) + math.radians(rotate_deg)
+    phi = 2.0 * math.pi * (u - 0.5) + math.radians(rotation_deg)
     theta = math.pi * v
     st = np.sin(theta)
     return _combine(st * np.cos(phi), st * np.sin(phi), np.cos(theta), f, r, a)
@@ -117,7 +121,8 @@ def _combine(cf, cr, ca, f, r, a) -> np.ndarray:
     return out
 
 
-def direction_to_uv(d, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+@renamed_keywords(rotate_deg="rotation_deg")
+def direction_to_uv(d, *, up: str = "y", rotation_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Image coordinates ``(u, v)`` of directions; the inverse of :func:`uv_to_direction`.
 
     ``d`` is array_like of shape ``(..., 3)``; it need not be normalised (zero
@@ -133,7 +138,7 @@ def direction_to_uv(d, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.nd
     ca = d @ a
     horiz = np.hypot(cf, cr)
     theta = np.arctan2(horiz, ca)
-    phi = np.arctan2(cr, cf) - math.radians(rotate_deg)
+    phi = np.arctan2(cr, cf) - math.radians(rotation_deg)
     u = phi / (2.0 * math.pi) + 0.5
     u -= np.floor(u)
     u = np.where(u >= 1.0, 0.0, u)
@@ -171,34 +176,37 @@ def pixel_solid_angles(height: int, width: int) -> np.ndarray:
     return np.broadcast_to(row_solid_angles(height, width)[:, None], (height, width))
 
 
-def direction_to_pixel(d, height: int, width: int, *, up: str = "y", rotate_deg: float = 0.0):
+@renamed_keywords(rotate_deg="rotation_deg")
+def direction_to_pixel(d, height: int, width: int, *, up: str = "y", rotation_deg: float = 0.0):
     """Row and column (int64 arrays) of the pixel that contains each direction."""
-    u, v = direction_to_uv(d, up=up, rotate_deg=rotate_deg)
+    u, v = direction_to_uv(d, up=up, rotation_deg=rotation_deg)
     col = np.minimum((u * width).astype(np.int64), width - 1)
     row = np.minimum((v * height).astype(np.int64), height - 1)
     return row, col
 
 
-def pixel_center_angles(row, col, height: int, width: int, *, rotate_deg: float = 0.0):
+@renamed_keywords(rotate_deg="rotation_deg")
+def pixel_center_angles(row, col, height: int, width: int, *, rotation_deg: float = 0.0):
     """Azimuth and elevation, **degrees**, of pixel centres (for reports and messages).
 
     Azimuth is the convention's phi wrapped to (-180, 180] (0 = image centre, positive
     to the right, plus the rotation); elevation is 90 deg minus the polar angle from
     the up axis.  ``row`` and ``col`` may be arrays; returns float64 arrays (or floats).
     """
-    az = 360.0 * ((np.asarray(col) + 0.5) / width - 0.5) + float(rotate_deg)
+    az = 360.0 * ((np.asarray(col) + 0.5) / width - 0.5) + float(rotation_deg)
     az = (az + 180.0) % 360.0 - 180.0
     az = np.where(az == -180.0, 180.0, az)
     el = 90.0 - 180.0 * (np.asarray(row) + 0.5) / height
     return (float(az), float(el)) if np.ndim(az) == 0 and np.ndim(el) == 0 else (az, el)
 
 
-def pixel_center_directions(height: int, width: int, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
+@renamed_keywords(rotate_deg="rotation_deg")
+def pixel_center_directions(height: int, width: int, *, up: str = "y", rotation_deg: float = 0.0) -> np.ndarray:
     """Directions through the centre (in u and v) of every pixel, float64 (H, W, 3)."""
     _check_size(height, width)
     u = (np.arange(width) + 0.5) / width
     v = (np.arange(height) + 0.5) / height
-    return uv_to_direction(u[None, :], v[:, None], up=up, rotate_deg=rotate_deg)
+    return uv_to_direction(u[None, :], v[:, None], up=up, rotation_deg=rotation_deg)
 
 
 def orthonormal_basis(n) -> tuple[np.ndarray, np.ndarray]:

@@ -114,15 +114,15 @@ __all__ = [
     "process_map",
 ]
 
-#: Table options a batch accepts and their defaults (see :func:`envsample.table.build_table`);
-#: ``rotate`` is in degrees (alias ``rotate_deg``).
+#: Table options a batch accepts and their defaults (see :func:`envsample.sampling.table.build_table`);
+#: ``rotation_deg`` is in degrees.
 BUILD_OPTIONS = {
     "size": None,
     "primaries": "bt709",
     "mapping": "equal-area",
     "uniform_mix": 0.0,
     "up": "y",
-    "rotate": 0.0,
+    "rotation_deg": 0.0,
 }
 
 #: Name and version of ``summary.json``.
@@ -377,17 +377,19 @@ def normalize_options(options: Mapping | None) -> dict:
 
     Keys (all optional, defaults in :data:`BUILD_OPTIONS`): ``size`` (``"WxH"`` or
     ``(width, height)``, None = the map's resolution), ``primaries``, ``mapping``,
-    ``uniform_mix`` (in [0, 1)), ``up`` (``"y"`` or ``"z"``), ``rotate`` (degrees;
-    ``rotate_deg`` is accepted too).  Unknown keys raise ValueError listing the valid ones.
+    ``uniform_mix`` (in [0, 1)), ``up`` (``"y"`` or ``"z"``), ``rotation_deg`` (degrees;
+    the old names ``rotate`` and ``rotate_deg`` are still accepted).  Unknown keys raise ValueError listing the valid ones.
     """
     from envsample.core.color import canonical_primaries
     from envsample.core.latlong import MAPPINGS, parse_size
+    from envsample.core.sphere import UP_AXES
 
     given = dict(options or {})
-    if "rotate_deg" in given:
-        if "rotate" in given:
-            raise ValueError("options: give rotate or rotate_deg, not both")
-        given["rotate"] = given.pop("rotate_deg")
+    for old in ("rotate", "rotate_deg"):
+        if old in given:
+            if "rotation_deg" in given:
+                raise ValueError(f"options: give rotation_deg or {old}, not both")
+            given["rotation_deg"] = given.pop(old)
     unknown = sorted(set(given) - set(BUILD_OPTIONS))
     if unknown:
         raise ValueError(f"unknown batch option(s) {', '.join(unknown)}; valid options: {', '.join(BUILD_OPTIONS)}")
@@ -400,18 +402,18 @@ def normalize_options(options: Mapping | None) -> dict:
     if not 0.0 <= mix < 1.0:
         raise ValueError(f"uniform_mix must be in [0, 1), got {mix}")
     up = str(opts["up"]).lower()
-    if up not in ("y", "z"):
-        raise ValueError(f"up must be 'y' or 'z', got {opts['up']!r}")
-    rotate = float(opts["rotate"])
-    if not math.isfinite(rotate):
-        raise ValueError(f"rotate must be a finite angle in degrees, got {opts['rotate']!r}")
+    if up not in UP_AXES:
+        raise ValueError(f"up must be one of {', '.join(UP_AXES)}, got {opts['up']!r}")
+    rotation = float(opts["rotation_deg"])
+    if not math.isfinite(rotation):
+        raise ValueError(f"rotation_deg must be a finite angle in degrees, got {opts['rotation_deg']!r}")
     return {
         "size": None if size is None else [size[0], size[1]],
         "primaries": canonical_primaries(opts["primaries"]),
         "mapping": mapping,
         "uniform_mix": mix,
         "up": up,
-        "rotate": rotate,
+        "rotation_deg": rotation,
     }
 
 
@@ -524,7 +526,7 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
             return row
         o = task["options"]
         table = build_table(clean, size=o["size"], primaries=o["primaries"], mapping=o["mapping"],
-                            uniform_mix=o["uniform_mix"], up=o["up"], rotate_deg=o["rotate"])
+                            uniform_mix=o["uniform_mix"], up=o["up"], rotation_deg=o["rotation_deg"])
     table.save(work / "table")
     notes = list(notes) + [str(n) for n in table.metadata.get("notes", [])]
     row.update(luminance_integral=float(table.integrals["luminance"]),
@@ -875,7 +877,7 @@ def run_batch(
         shared with the workers.  The outputs are identical to a local run.
     options : mapping, optional
         Table options, see :func:`normalize_options` (size, primaries, mapping,
-        uniform_mix, up, rotate in degrees).
+        uniform_mix, up, rotation_deg in degrees).
     profile : Profile, path, mapping or None
         QA thresholds (:func:`envsample.qa.load_profile`).
     progress : callable, optional

@@ -35,6 +35,7 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.color import canonical_primaries, luminance
+from envsample.core.compat import renamed_keywords
 from envsample.core.sphere import direction_to_uv, row_solid_angles, uv_to_direction
 from envsample.errors import EnvsampleError, MapValidationError
 
@@ -70,23 +71,24 @@ Progress = Callable[[str], None]
 # --------------------------------------------------------------------------- angles
 
 
-def direction_angles(directions, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+@renamed_keywords(rotate_deg="rotation_deg")
+def direction_angles(directions, *, up: str = "y", rotation_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Azimuth and elevation in **degrees** of directions ``(..., 3)`` (float64 arrays).
 
     Azimuth is the convention's phi (0 = image centre, positive to the right,
     in (-180, 180]); elevation is 90 deg minus the polar angle from the up axis.
     Computed through :func:`envsample.sphere.direction_to_uv`.
     """
-    u, v = direction_to_uv(directions, up=up, rotate_deg=rotate_deg)
-    az = 360.0 * (u - 0.5) + float(rotate_deg)
+    u, v = direction_to_uv(directions, up=up, rotation_deg=rotation_deg)
+    az = 360.0 * (u - 0.5) + float(rotation_deg)
     az = (az + 180.0) % 360.0 - 180.0
     az = np.where(az == -180.0, 180.0, az)
     return az, 90.0 - 180.0 * v
 
 
-def _pixel_direction(row: int, col: int, height: int, width: int, *, up: str, rotate_deg: float) -> dict:
-    d = uv_to_direction((col + 0.5) / width, (row + 0.5) / height, up=up, rotate_deg=rotate_deg)
-    az, el = direction_angles(d, up=up, rotate_deg=rotate_deg)
+def _pixel_direction(row: int, col: int, height: int, width: int, *, up: str, rotation_deg: float) -> dict:
+    d = uv_to_direction((col + 0.5) / width, (row + 0.5) / height, up=up, rotation_deg=rotation_deg)
+    az, el = direction_angles(d, up=up, rotation_deg=rotation_deg)
     return {
         "azimuth_deg": round(float(az), 4),
         "elevation_deg": round(float(el), 4),
@@ -171,7 +173,7 @@ def build_from_file(
         and store its result in the table's metadata under ``"recommendation"``.
     progress : called with a short label before each stage.
     build_options : passed to :func:`envsample.table.build_table` (size,
-        primaries, mapping, uniform_mix, up, rotate_deg, compensate).
+        primaries, mapping, uniform_mix, up, rotation_deg, compensate).
     """
     from envsample.io.maps import read_map, validate_map
     from envsample.sampling.table import build_table
@@ -265,7 +267,7 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
         "mapping": table.mapping,
         "primaries": table.primaries,
         "up_axis": table.up,
-        "rotation_deg": table.rotate_deg,
+        "rotation_deg": table.rotation_deg,
         "uniform_mix": table.uniform_mix,
         "array_sha256": array_checksums(table),
     }
@@ -326,7 +328,8 @@ def map_integrals(rgb: np.ndarray, primaries: str = "bt709") -> tuple[list[float
     return [float(x) for x in per_rgb], float(np.dot(lum.sum(axis=1, dtype=np.float64), sa)), lum
 
 
-def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotate_deg: float = 0.0) -> dict:
+@renamed_keywords(rotate_deg="rotation_deg")
+def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotation_deg: float = 0.0) -> dict:
     """JSON-ready facts about a map as read (a :class:`envsample.io.MapImage`).
 
     Size, format, pixel type, channels, compression, chromaticities, sha256;
@@ -347,7 +350,7 @@ def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotate_deg: flo
     clean = rgb if n_bad == 0 else np.where(finite, rgb, np.float32(0.0))
     per_rgb, lum_int, lum = map_integrals(clean, primaries)
     row, col = divmod(int(np.argmax(lum)), w)
-    brightest = _pixel_direction(row, col, h, w, up=up, rotate_deg=rotate_deg)
+    brightest = _pixel_direction(row, col, h, w, up=up, rotation_deg=rotation_deg)
     brightest["luminance"] = float(lum[row, col])
     try:
         with warnings.catch_warnings():
@@ -385,7 +388,7 @@ def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotate_deg: flo
             "units": "map radiance units times steradians",
         },
         "brightest": brightest,
-        "convention": {"up_axis": up, "rotation_deg": float(rotate_deg)},
+        "convention": {"up_axis": up, "rotation_deg": float(rotation_deg)},
         "build": usable,
         "caveat": ESTIMATE_CAVEAT,
     }
@@ -407,7 +410,7 @@ def table_facts(prefix_or_path) -> dict:
     prob = table.cell_probability
     h, w = prob.shape
     row, col = divmod(int(np.argmax(prob)), w)
-    largest = _pixel_direction(row, col, h, w, up=table.up, rotate_deg=table.rotate_deg)
+    largest = _pixel_direction(row, col, h, w, up=table.up, rotation_deg=table.rotation_deg)
     largest["probability"] = float(prob[row, col])
     largest["pdf_per_sr"] = float(table.cell_pdf[row, col])
     files = []

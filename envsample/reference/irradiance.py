@@ -120,6 +120,7 @@ import math
 
 import numpy as np
 
+from envsample.core.compat import renamed_keywords
 from envsample.core.latlong import parse_size, reduce_power
 from envsample.core.sphere import UP_AXES, orthonormal_basis, row_solid_angles
 from envsample.errors import MapValidationError
@@ -216,13 +217,13 @@ def _cos_sin_deg(deg: float) -> tuple[float, float]:
     return c, s
 
 
-def _map_frame(up: str, rotate_deg: float) -> np.ndarray:
+def _map_frame(up: str, rotation_deg: float) -> np.ndarray:
     """Rows forward_R, right_R, up: world -> map-frame coordinates (internal x, y, z)."""
     try:
         f, r, a = (np.array(v, dtype=np.float64) for v in UP_AXES[str(up).lower()])
     except KeyError:
         raise ValueError(f"unknown up axis {up!r}; valid: {', '.join(UP_AXES)}") from None
-    c, s = _cos_sin_deg(rotate_deg)
+    c, s = _cos_sin_deg(rotation_deg)
     return np.stack([c * f + s * r, -s * f + c * r, a])
 
 
@@ -269,24 +270,26 @@ class _Grid:
         self.dphi = TWO_PI / width
 
 
-def cell_cosine_integrals(height: int, width: int, normal, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
+@renamed_keywords(rotate_deg="rotation_deg")
+def cell_cosine_integrals(height: int, width: int, normal, *, up: str = "y", rotation_deg: float = 0.0) -> np.ndarray:
     """Unclamped ``int_cell n.w dw`` over every cell of an H x W map, closed form, float64 (H, W).
 
     ``normal`` is one unit vector (3,) in world space; cells follow :mod:`envsample.sphere`
-    (up axis ``up``, rotation ``rotate_deg`` degrees).  The formula is in the module
+    (up axis ``up``, rotation ``rotation_deg`` degrees).  The formula is in the module
     docstring; summed over cells it gives 0 (the sphere's first moment), and over the
     cells of the upper hemisphere of ``n = up`` it gives pi.  Units: steradians.
     """
     n, _ = _unit_normals(np.asarray(normal, dtype=np.float64).reshape(1, 3), "normal")
     g = _Grid(int(height), int(width))
-    nx, ny, nz = _map_frame(up, rotate_deg) @ n[0]
+    nx, ny, nz = _map_frame(up, rotation_deg) @ n[0]
     S1 = 0.5 * (np.diff(g.theta) - np.diff(g.s * g.mu))  # int sin^2 theta d theta per row
     mu2 = -0.5 * np.diff(g.mu * g.mu)  # (mu0^2 - mu1^2) / 2 per row
     col = nx * np.diff(g.sph) - ny * np.diff(g.cph)
     return S1[:, None] * col[None, :] + nz * mu2[:, None] * g.dphi
 
 
-def first_moment(rgb, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
+@renamed_keywords(rotate_deg="rotation_deg")
+def first_moment(rgb, *, up: str = "y", rotation_deg: float = 0.0) -> np.ndarray:
     """``integral of L(w) w dw`` of the piecewise-constant map, float64 (3 world axes, 3 channels).
 
     Closed form per cell (see :func:`cell_cosine_integrals`).  Units: map units x sr.
@@ -299,7 +302,7 @@ def first_moment(rgb, *, up: str = "y", rotate_deg: float = 0.0) -> np.ndarray:
     mx = np.einsum("i,j,ijc->c", S1, np.diff(g.sph), L)
     my = np.einsum("i,j,ijc->c", S1, -np.diff(g.cph), L)
     mz = np.einsum("i,ijc->c", mu2 * g.dphi, L)
-    return _map_frame(up, rotate_deg).T @ np.stack([mx, my, mz])
+    return _map_frame(up, rotation_deg).T @ np.stack([mx, my, mz])
 
 
 # ---------------------------------------------------------------------------
@@ -584,7 +587,8 @@ def _irradiance(L: np.ndarray, n_world: np.ndarray, frame: np.ndarray, chunk) ->
     return out
 
 
-def reference_irradiance(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0, size=None,
+@renamed_keywords(rotate_deg="rotation_deg")
+def reference_irradiance(rgb, normals, *, up: str = "y", rotation_deg: float = 0.0, size=None,
                          chunk: int | None = None) -> np.ndarray:
     """Exact irradiance ``E(n) = integral of L(w) max(0, n.w) dw`` of a map, float64 ``normals.shape``.
 
@@ -598,7 +602,7 @@ def reference_irradiance(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0
         Unit normals, world space (float64; lengths within 1e-6 of 1 are renormalised).
     up : {"y", "z"}
         World up axis of the map.
-    rotate_deg : float
+    rotation_deg : float
         Rotation of the map about the up axis, degrees.
     size : (width, height) or "WxH", optional
         First reduce the map with the table's power-preserving box filter
@@ -619,11 +623,12 @@ def reference_irradiance(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0
     """
     L = _prepare_map(rgb, size)
     n, lead = _unit_normals(normals)
-    out = _irradiance(L, n, _map_frame(up, rotate_deg), chunk)
+    out = _irradiance(L, n, _map_frame(up, rotation_deg), chunk)
     return out.reshape(lead + (3,))
 
 
-def reference_accuracy(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0, size=None,
+@renamed_keywords(rotate_deg="rotation_deg")
+def reference_accuracy(rgb, normals, *, up: str = "y", rotation_deg: float = 0.0, size=None,
                        chunk: int | None = None, max_normals: int = 64) -> dict:
     """Accuracy statement for :func:`reference_irradiance`, JSON-ready.
 
@@ -644,11 +649,11 @@ def reference_accuracy(rgb, normals, *, up: str = "y", rotate_deg: float = 0.0, 
     n, _ = _unit_normals(normals)
     if n.shape[0] > max_normals:
         n = n[np.linspace(0, n.shape[0] - 1, max_normals).round().astype(np.int64)]
-    frame = _map_frame(up, rotate_deg)
+    frame = _map_frame(up, rotation_deg)
     both = _irradiance(L, np.concatenate([n, -n]), frame, chunk)
     e_pos, e_neg = both[: n.shape[0]], both[n.shape[0]:]
     scale = max(math.pi * float(np.mean(np.abs(L))), 1e-300)
-    moment = first_moment(L, up=up, rotate_deg=rotate_deg)
+    moment = first_moment(L, up=up, rotation_deg=rotation_deg)
     resid = float(np.max(np.abs(e_pos - e_neg - n @ moment))) / scale if n.size else 0.0
     change = None
     if L.shape != full.shape:
@@ -780,7 +785,8 @@ def _rect_integral(frame, n, wo, alpha, t0, t1, p0, p1):
     return 0.25 * (t1 - t0) * (p1 - p0) * acc
 
 
-def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: float = 0.0, size=None,
+@renamed_keywords(rotate_deg="rotation_deg")
+def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg: float = 0.0, size=None,
                      resolution: float = 8.0, tolerance: float = 1e-6, max_depth: int = 16) -> np.ndarray:
     """Outgoing radiance of a GGX reflector (F = 1) lit by the map, by deterministic quadrature.
 
@@ -798,7 +804,7 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: 
         space; broadcast together with ``roughness``.  ``wo`` below the surface gives 0.
     roughness : float or array_like
         GGX alpha (the width of D, not a squared "perceptual" roughness), in [1e-4, 1].
-    up, rotate_deg, size
+    up, rotation_deg, size
         As in :func:`reference_irradiance`.
     resolution : float
         Sub-rectangles per scale length of the integrand.  Each cell, a rectangle in
@@ -833,7 +839,7 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: 
     if not (resolution > 0 and tolerance > 0 and int(max_depth) >= 0):
         raise ValueError(f"resolution and tolerance must be > 0 and max_depth >= 0, got {resolution}, "
                          f"{tolerance} and {max_depth}")
-    frame = _map_frame(up, rotate_deg)
+    frame = _map_frame(up, rotation_deg)
     g = _Grid(L.shape[0], L.shape[1])
     out = np.stack([_glossy_pair(L, g, frame, n[p], w[p], float(r[p]), float(resolution), int(max_depth),
                                  float(tolerance))
@@ -841,7 +847,8 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: 
     return out.reshape(shape + (3,))
 
 
-def reference_glossy_accuracy(rgb, normals, wo, roughness, *, up: str = "y", rotate_deg: float = 0.0,
+@renamed_keywords(rotate_deg="rotation_deg")
+def reference_glossy_accuracy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg: float = 0.0,
                               size=None, resolution: float = 8.0, tolerance: float = 1e-6,
                               max_depth: int = 16) -> dict:
     """The glossy reference at ``resolution`` and ``2 * resolution``, with the change between them.
@@ -852,7 +859,7 @@ def reference_glossy_accuracy(rgb, normals, wo, roughness, *, up: str = "y", rot
     over the largest finer value): an estimate of the coarser result's quadrature error
     and a conservative one for the finer's.
     """
-    kw = dict(up=up, rotate_deg=rotate_deg, size=size, max_depth=max_depth)
+    kw = dict(up=up, rotation_deg=rotation_deg, size=size, max_depth=max_depth)
     coarse = reference_glossy(rgb, normals, wo, roughness, resolution=resolution, tolerance=tolerance, **kw)
     fine = reference_glossy(rgb, normals, wo, roughness, resolution=2.0 * resolution,
                             tolerance=0.1 * tolerance, **kw)
@@ -882,7 +889,8 @@ def _sh9_basis(d: np.ndarray) -> np.ndarray:
     ], axis=1)
 
 
-def sh9_project(rgb, *, up: str = "y", rotate_deg: float = 0.0, size=None) -> np.ndarray:
+@renamed_keywords(rotate_deg="rotation_deg")
+def sh9_project(rgb, *, up: str = "y", rotation_deg: float = 0.0, size=None) -> np.ndarray:
     """Coefficients ``L_lm = integral of L(w) Y_lm(w) dw`` for l <= 2, float64 (9, 3).
 
     Exact for the piecewise-constant map: the moments ``int_cell w_a w_b dw`` have
@@ -923,7 +931,7 @@ def sh9_project(rgb, *, up: str = "y", rotate_deg: float = 0.0, size=None) -> np
     m2[0, 1] = m2[1, 0] = m("s2", "cs")
     m2[0, 2] = m2[2, 0] = m("mus", "c")
     m2[1, 2] = m2[2, 1] = m("mus", "s")
-    B = _map_frame(up, rotate_deg)  # w_map = B w_world
+    B = _map_frame(up, rotation_deg)  # w_map = B w_world
     w1 = B.T @ m1
     w2 = np.einsum("pa,qb,pqc->abc", B, B, m2)
     return np.stack([

@@ -295,7 +295,7 @@ def _reduce_panel(arr: np.ndarray, log: bool) -> np.ndarray:
 
 def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = None, vmax: float | None = None,
                    log: bool = False, cmap: str = "magma", latlong: bool | None = None,
-                   rotate_deg: float = 0.0, title: str | None = None) -> Path:
+                   rotation_deg: float = 0.0, title: str | None = None) -> Path:
     """Panels side by side sharing one labelled colour bar, saved as PNG; returns the path.
 
     Parameters
@@ -312,7 +312,7 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
         A perceptually uniform matplotlib colour map ("magma" default, "viridis", ...).
     latlong : bool or None
         Label axes in azimuth/elevation degrees; ``None`` decides from a 2:1 shape.
-    rotate_deg : float
+    rotation_deg : float
         Azimuth of the image centre, degrees, for the axis labels of lat-long panels.
 
     Panels wider than 1024 columns are drawn block-averaged (the figure cannot
@@ -353,10 +353,10 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
             small = _reduce_panel(arr, log)
             shown = np.where(np.isfinite(small) & ((small > 0) if log else True), small, np.nan)
             if is_ll:
-                extent = (-180.0 + rotate_deg, 180.0 + rotate_deg, -90.0, 90.0)
+                extent = (-180.0 + rotation_deg, 180.0 + rotation_deg, -90.0, 90.0)
                 image = ax.imshow(shown, cmap=colormap, norm=norm, extent=extent, origin="upper",
                                   interpolation="nearest", aspect="equal")
-                ax.set_xticks(np.arange(-180.0, 181.0, 90.0) + rotate_deg)
+                ax.set_xticks(np.arange(-180.0, 181.0, 90.0) + rotation_deg)
                 ax.set_yticks(np.arange(-90.0, 91.0, 45.0))
                 ax.set_xlabel("azimuth (deg)")
                 if i == 0:

@@ -49,6 +49,7 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.color import canonical_primaries, luminance
+from envsample.core.compat import renamed_keywords, warn_renamed
 from envsample.core.latlong import MAPPINGS, parse_size, reduce_power, row_channel_sums
 from envsample.core.sphere import _frame, convention, direction_to_uv, row_cos_edges, row_solid_angles
 from envsample.errors import EnvsampleWarning, MapValidationError, TableFormatError
@@ -99,7 +100,7 @@ class EnvTable:
     ----------
     image : float32 (H, W, 3) radiance used by :meth:`eval` (full resolution).
     height, width : image size.  table_height, table_width : cell grid size.
-    up, rotate_deg : direction convention (see :mod:`envsample.sphere`).
+    up, rotation_deg : direction convention (see :mod:`envsample.sphere`).
     mapping : ``"equal-area"`` or ``"uv-linear"``.  primaries : luminance primaries.
     uniform_mix : weight of uniform sphere sampling in the mixture (0 = none).
     compensated : True for an MIS-compensated table (valid only inside MIS).
@@ -134,7 +135,7 @@ class EnvTable:
         self.table_height, self.table_width = (int(s) for s in cell_pdf.shape)
         conv = metadata["convention"]
         self.up = conv["up_axis"]
-        self.rotate_deg = float(conv["rotation_deg"])
+        self.rotation_deg = float(conv["rotation_deg"])
         opts = metadata["options"]
         self.mapping = opts["mapping"]
         self.primaries = opts["primaries"]
@@ -143,12 +144,18 @@ class EnvTable:
         self.integrals = metadata["integrals"]
         self._row_sa = row_solid_angles(self.table_height, self.table_width)
         self._cos_edges = row_cos_edges(self.table_height)
-        self._rot = math.radians(self.rotate_deg)
+        self._rot = math.radians(self.rotation_deg)
         self._frame = _frame(self.up)
         self._axes = _axis_map(self._frame)
         self._flat_pdf = self.cell_pdf.reshape(-1)
 
     # ------------------------------------------------------------------ facts
+    @property
+    def rotate_deg(self) -> float:
+        """Former name of :attr:`rotation_deg` (deprecated)."""
+        warn_renamed("EnvTable.rotate_deg", "EnvTable.rotation_deg", what="attribute")
+        return self.rotation_deg
+
     @property
     def cell_probability(self) -> np.ndarray:
         """Probability of drawing each cell, float64 (h, w), summing to 1."""
@@ -275,7 +282,7 @@ class EnvTable:
         return self._pdf_at(u, v), self._radiance_at(u, v)
 
     def _uv(self, directions) -> tuple[np.ndarray, np.ndarray]:
-        return direction_to_uv(_finite_directions(directions), up=self.up, rotate_deg=self.rotate_deg)
+        return direction_to_uv(_finite_directions(directions), up=self.up, rotation_deg=self.rotation_deg)
 
     def _cell(self, u, v) -> tuple[np.ndarray, np.ndarray]:
         h, w = self.table_height, self.table_width
@@ -360,6 +367,7 @@ def _as_image(rgb):
     return map_pixels(rgb, name="map"), source
 
 
+@renamed_keywords(rotate_deg="rotation_deg")
 def build_table(
     rgb,
     *,
@@ -368,7 +376,7 @@ def build_table(
     mapping: str = "equal-area",
     uniform_mix: float = 0.0,
     up: str = "y",
-    rotate_deg: float = 0.0,
+    rotation_deg: float = 0.0,
     compensate: bool = False,
 ) -> EnvTable:
     """Build the sampling tables of an equirectangular map.
@@ -388,7 +396,7 @@ def build_table(
         In-cell mapping (module docstring).
     uniform_mix : float in [0, 1)
         Weight of uniform sphere sampling mixed into the table (Hesterberg 1995).
-    up : {"y", "z"}; rotate_deg : float (degrees)
+    up : {"y", "z"}; rotation_deg : float (degrees)
         Direction convention, see :mod:`envsample.sphere`.
     compensate : bool
         Subtract the sphere-mean luminance and clamp at zero (Karlík et al. 2019).
@@ -418,7 +426,7 @@ def build_table(
     if not 0.0 <= uniform_mix < 1.0:
         raise ValueError(f"uniform_mix must be in [0, 1), got {uniform_mix}")
     size = parse_size(size)
-    conv = convention(up, rotate_deg)
+    conv = convention(up, rotation_deg)
 
     lum = luminance(image, primaries)
     lum_integral_full = _integral(lum, row_sa_full)

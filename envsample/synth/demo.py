@@ -216,7 +216,7 @@ def _scene_summary(ctx: DemoContext, name: str) -> dict:
             {
                 "size": [t.width, t.height],
                 "integrals": {"rgb": t.integrals["rgb"], "luminance": t.integrals["luminance"]},
-                "brightest": _pixel_direction(r, c, t.height, t.width, up=t.up, rotate_deg=t.rotate_deg),
+                "brightest": _pixel_direction(r, c, t.height, t.width, up=t.up, rotation_deg=t.rotation_deg),
                 "table_size": [t.table_width, t.table_height],
                 "table_files": [str(p) for p in result.paths],
                 "build_seconds": result.seconds,

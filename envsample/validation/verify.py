@@ -267,18 +267,18 @@ def _table_info(table) -> dict:
         "uniform_mix": table.uniform_mix,
         "compensated": table.compensated,
         "up": table.up,
-        "rotate_deg": table.rotate_deg,
+        "rotation_deg": table.rotation_deg,
     }
 
 
-def normal_grid(width: int, height: int, *, up: str = "y", rotate_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+def normal_grid(width: int, height: int, *, up: str = "y", rotation_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
     """Normals at the pixel centres of a ``width x height`` lat-long image and their cells' solid angles.
 
     Returns float64 ``(height * width, 3)`` unit normals (row-major, row 0 at the
     zenith, convention of :mod:`envsample.sphere`) and float64 ``(height * width,)``
     exact solid angles in steradians (summing to 4 pi), used as averaging weights.
     """
-    n = pixel_center_directions(height, width, up=up, rotate_deg=rotate_deg).reshape(-1, 3)
+    n = pixel_center_directions(height, width, up=up, rotation_deg=rotation_deg).reshape(-1, 3)
     w = np.repeat(row_solid_angles(height, width), width)
     return n, w
 
@@ -338,12 +338,12 @@ def _sample_statistics(samples, weights: np.ndarray, ebar: float) -> dict:
     }
 
 
-def _largest_sample(samples, height: int, width: int, rotate_deg: float) -> dict:
+def _largest_sample(samples, height: int, width: int, rotation_deg: float) -> dict:
     c = samples.contributions
     flat = int(np.argmax(c))
     normal, k = divmod(flat, c.shape[1])
     row, col = divmod(normal, width)
-    azimuth, elevation = pixel_center_angles(row, col, height, width, rotate_deg=rotate_deg)
+    azimuth, elevation = pixel_center_angles(row, col, height, width, rotation_deg=rotation_deg)
     strategy = samples.strategies[int(samples.strategy[normal, k])]
     return {"normal_azimuth_deg": round(azimuth, 3), "normal_elevation_deg": round(elevation, 3),
             "strategy": strategy}
@@ -379,7 +379,7 @@ def _render_one(table, name, normals, weights, grid_wh, spp, seed, ref32, ebar, 
         "variance_per_sample": _num(var),
         "variance_per_sample_se": _num(stats["variance_per_sample_se"]),
         "firefly_index": _num(samples.firefly_index()),
-        "largest_sample": _largest_sample(samples, grid_wh[1], grid_wh[0], table.rotate_deg),
+        "largest_sample": _largest_sample(samples, grid_wh[1], grid_wh[0], table.rotation_deg),
         "seconds": seconds,
         "time_per_sample_s": tps,
         "samples_per_second": n_samples / seconds if seconds > 0 else None,
@@ -511,7 +511,7 @@ def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> list
 
     n, mask = sphere_normals(size, up=table.up)
     w, h = grid_wh
-    row, col = direction_to_pixel(n[mask], h, w, up=table.up, rotate_deg=table.rotate_deg)
+    row, col = direction_to_pixel(n[mask], h, w, up=table.up, rotation_deg=table.rotation_deg)
     panels = []
     for grid in (ref_grid, est_grid):
         img = np.zeros((size, size, 3), dtype=np.float32)
@@ -545,7 +545,7 @@ def _glossy_table(table):
     image = reduce_power(table.image, (gw, gh))
     opts = table.metadata["options"]
     small = build_table(image, primaries=table.primaries, mapping=table.mapping, uniform_mix=table.uniform_mix,
-                        up=table.up, rotate_deg=table.rotate_deg, compensate=bool(opts.get("compensate", False)))
+                        up=table.up, rotation_deg=table.rotation_deg, compensate=bool(opts.get("compensate", False)))
     return small, [gw, gh]
 
 
@@ -556,9 +556,9 @@ def _glossy(table, roughness: float, spp: int, seed: int) -> dict:
 
     gtable, map_wh = _glossy_table(table)
     gw, gh = GLOSSY_NORMALS
-    normals, weights = normal_grid(gw, gh, up=gtable.up, rotate_deg=gtable.rotate_deg)
+    normals, weights = normal_grid(gw, gh, up=gtable.up, rotation_deg=gtable.rotation_deg)
     names = [e for e in GLOSSY_ESTIMATORS if not (e == "table" and gtable.compensated)]
-    kw = {"up": gtable.up, "rotate_deg": gtable.rotate_deg}
+    kw = {"up": gtable.up, "rotation_deg": gtable.rotation_deg}
     per = {n: {"relative_rmse": [], "mean_bias": [], "mean_bias_se": [], "variance_per_sample": [],
                "firefly_index": [], "bias_consistent_with_zero": []} for n in names}
     ref_seconds, accuracy = 0.0, 0.0
@@ -614,7 +614,7 @@ def _write_json(path: Path, doc: dict) -> None:
     atomic_write_text(path, json.dumps(doc, indent=2, allow_nan=False) + "\n")
 
 
-def _error_pictures(outdir: Path, panels: list, rotate_deg: float) -> list[str]:
+def _error_pictures(outdir: Path, panels: list, rotation_deg: float) -> list[str]:
     from envsample.reports.pictures import heatmap_figure
 
     values = np.concatenate([p[1].ravel() for p in panels])
@@ -631,7 +631,7 @@ def _error_pictures(outdir: Path, panels: list, rotate_deg: float) -> list[str]:
         title = (f"irradiance error per normal (luminance); colour scale clipped at the 99th percentile, {vmax:.3g}"
                  + (f"; picture {k + 1} of {count}, one scale" if count > 1 else ""))
         heatmap_figure(chunk, path=outdir / name, label=label, vmin=0.0, vmax=vmax, latlong=True,
-                       rotate_deg=rotate_deg, title=title)
+                       rotation_deg=rotation_deg, title=title)
         files.append(name)
     return files
 
@@ -734,13 +734,13 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     except OSError as exc:
         raise EnvsampleError(f"{outdir}: cannot create the output folder ({exc.strerror or exc}); choose another -o") from None
 
-    n, weights = normal_grid(*grid_wh, up=table.up, rotate_deg=table.rotate_deg)
+    n, weights = normal_grid(*grid_wh, up=table.up, rotation_deg=table.rotation_deg)
     w, h = grid_wh
     tick("reference")
     t0 = time.perf_counter()
-    ref = reference_irradiance(table.image, n, up=table.up, rotate_deg=table.rotate_deg)
+    ref = reference_irradiance(table.image, n, up=table.up, rotation_deg=table.rotation_deg)
     ref_seconds = time.perf_counter() - t0
-    accuracy = reference_accuracy(table.image, n, up=table.up, rotate_deg=table.rotate_deg)
+    accuracy = reference_accuracy(table.image, n, up=table.up, rotation_deg=table.rotation_deg)
     ref32 = ref.astype(np.float32)
     ebar = error_metrics(ref32, ref32, weights, primaries=table.primaries)["reference_mean"]
     files = {"map": "map.png", "reference": "reference.exr", "estimates": {}}
@@ -765,7 +765,7 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     recommended = _recommendation(entries)
 
     tick("pictures")
-    files["errors"] = _error_pictures(outdir, panels, table.rotate_deg)
+    files["errors"] = _error_pictures(outdir, panels, table.rotation_deg)
     tick("convergence")
     conv = _convergence(table, names, n, weights, ref32, grid_wh, spp, seed)
     conv["plotted"] = _plotted(conv["relative_rmse"], entries, recommended["estimator"])
@@ -913,7 +913,7 @@ def tune_one_sample(table, *, fractions=DEFAULT_FRACTIONS, heuristics=("balance"
             hs.append(key)
     if not hs:
         raise ValueError(f"heuristics is empty; give one or more of: {', '.join(_ONE_SAMPLE)}")
-    n, weights = normal_grid(*wh, up=table.up, rotate_deg=table.rotate_deg)
+    n, weights = normal_grid(*wh, up=table.up, rotation_deg=table.rotation_deg)
 
     def measure(hname, c, purpose, count, index):
         name = _ONE_SAMPLE[hname]
