@@ -500,7 +500,7 @@ def test_sky_sun_position_is_found_by_inspect(run, tmp_path):
     out = tmp_path / "sun.hdr"
     result = run("sky", "sun", "-o", out, "--size", "256x128", "--elevation", "25", "--azimuth", "40")
     assert result.exit_code == 0, result.output
-    assert "elevation 25 deg, azimuth 40 deg" in result.stdout
+    assert "azimuth 40 deg, elevation 25 deg" in result.stdout
     facts = _json_of(run("inspect", out, "--json"))
     assert facts["format"] == "hdr"
     pixel_deg = 360.0 / 256

@@ -73,7 +73,7 @@ def test_demo_overcast_integral_matches_the_closed_form(demo):
 def test_demo_rooftop_brightest_pixel_is_the_sun(demo):
     """The brightest pixel lies within half a pixel plus the sun's radius (0.2665 deg) of the scene's sun."""
     b = _scene(demo, "rooftop")["brightest"]
-    el, az = ROOFTOP_SUN
+    az, el = ROOFTOP_SUN
     tol = 0.5 * 360.0 / WIDTH + 0.2665
     assert abs(b["azimuth_deg"] - az) <= tol
     assert abs(b["elevation_deg"] - el) <= tol

@@ -140,7 +140,7 @@ def clipped_sun(width=W):
     """A sun with a wide glare halo whose top was clipped at 500: a plateau with a soft shoulder."""
     img = sunny(width).astype(np.float64)
     d = pixel_center_directions(width // 2, width)
-    s = skies.sun_direction(SUN_EL, SUN_AZ)
+    s = skies.sun_direction(azimuth_deg=SUN_AZ, elevation_deg=SUN_EL)
     angle = np.degrees(np.arccos(np.clip(d @ s, -1, 1)))
     img += (5e4 * np.exp(-(angle ** 2) / (2 * 4.0 ** 2)))[..., None]
     return np.minimum(img, 500.0).astype(np.float32)

@@ -213,7 +213,7 @@ def test_sun_appears_at_requested_position(up, el, az):
     dirs = pixel_center_directions(h, w, up=up)
     centroid = np.einsum("hw,hwk->k", weight, dirs)
     centroid /= np.linalg.norm(centroid)
-    target = skies.sun_direction(el, az, up=up)
+    target = skies.sun_direction(azimuth_deg=az, elevation_deg=el, up=up)
     pixel_angle = math.pi / h
     assert math.acos(min(1.0, float(centroid @ target))) < 0.5 * pixel_angle
     # The brightest pixel is the one that contains the sun direction.
@@ -257,7 +257,7 @@ def test_studio_integral_matches_light_solid_angles():
         expected += (np.asarray(rad, float) - bg) * span * (math.sin(math.radians(e1)) - math.sin(math.radians(e0)))
     np.testing.assert_allclose(_integral(img), expected, rtol=EXACT_RTOL)
     # A pixel well inside the first light carries its full radiance.
-    u, v = direction_to_uv(skies.sun_direction(35.0, -35.0))
+    u, v = direction_to_uv(skies.sun_direction(azimuth_deg=-35.0, elevation_deg=35.0))
     np.testing.assert_allclose(img[int(v * 45), int(u * 90)], 5.0, rtol=1e-6)
 
 
@@ -286,11 +286,11 @@ def test_demo_scenes_are_finite_deterministic_maps(kind):
 def test_rooftop_scene_has_its_low_warm_sun_and_blue_to_orange_sky():
     w, h = 512, 256
     img = skies.rooftop_scene(w)
-    el, az = skies.ROOFTOP_SUN
-    assert skies.sun_position("rooftop") == (el, az)
+    az, el = skies.ROOFTOP_SUN
+    assert skies.sun_position("rooftop") == (az, el)
     weight = img.mean(axis=2) * pixel_solid_angles(h, w)
     row, col = np.unravel_index(np.argmax(weight), weight.shape)
-    u, v = direction_to_uv(skies.sun_direction(el, az))
+    u, v = direction_to_uv(skies.sun_direction(azimuth_deg=az, elevation_deg=el))
     assert abs(row - v * h) <= 1 and abs(col - u * w) <= 1
     sun_px = img[row, col]
     assert sun_px[0] > sun_px[2]  # warm sun
@@ -321,7 +321,7 @@ def test_unknown_kind_lists_valid_names():
 
 
 def test_unknown_option_lists_valid_options():
-    with pytest.raises(ValueError, match=r"unknown option\(s\) elevation for sky 'sun'; valid options: elevation_deg"):
+    with pytest.raises(ValueError, match=r"unknown option\(s\) elevation for sky 'sun'; valid options: azimuth_deg, elevation_deg"):
         skies.make_sky("sun", elevation=10.0)
 
 
@@ -346,5 +346,14 @@ def test_bad_sun_options_are_rejected(kw, match):
 
 
 def test_sun_position_reports_options():
-    assert skies.sun_position("sun", elevation_deg=20.0, azimuth_deg=-5.0) == (20.0, -5.0)
+    assert skies.sun_position("sun", elevation_deg=20.0, azimuth_deg=-5.0) == (-5.0, 20.0)
     assert skies.sun_position("overcast") is None
+
+
+def test_sun_direction_takes_azimuth_then_elevation_by_keyword():
+    """Angles are written (azimuth, elevation) everywhere; the former positional order still works, with a warning."""
+    d = skies.sun_direction(azimuth_deg=30.0, elevation_deg=60.0)
+    with pytest.warns(DeprecationWarning, match="azimuth_deg= and elevation_deg="):
+        old = skies.sun_direction(60.0, 30.0)
+    np.testing.assert_array_equal(d, old)
+    assert d[1] == pytest.approx(math.sin(math.radians(60.0)))  # up = +y: the y component is sin(elevation)

@@ -512,8 +512,8 @@ def vectors(table_path, output, count, seed, method):
 
 #: CLI option -> (make_sky keyword, the kinds that take it).
 SKY_OPTIONS = {
-    "elevation": ("elevation_deg", ("sun",)),
     "azimuth": ("azimuth_deg", ("sun",)),
+    "elevation": ("elevation_deg", ("sun",)),
     "sun_illuminance": ("sun_illuminance", ("sun",)),
     "sky_model": ("sky", ("sun",)),
     "zenith": ("zenith_luminance", ("overcast", "sun")),
@@ -562,8 +562,8 @@ def _sky_help() -> str:
 @click.option("--size", type=SIZE, default="1024x512", show_default=True, help="Map size WIDTHxHEIGHT.")
 @click.option("--pixel-type", type=click.Choice(["half", "float"]), default="half", show_default=True,
               help="EXR pixel type (.hdr is always RGBE).")
-@click.option("--elevation", type=_FiniteFloat(-90.0, 90.0, "DEG"), default=None, help="sun: elevation, degrees.")
 @click.option("--azimuth", type=DEGREES, default=None, help="sun: azimuth, degrees (0 = image centre, + to the right).")
+@click.option("--elevation", type=_FiniteFloat(-90.0, 90.0, "DEG"), default=None, help="sun: elevation, degrees.")
 @click.option("--sun-illuminance", type=_FiniteFloat(0.0, math.inf, "E"), default=None,
               help="sun: illuminance on a surface facing the sun (map units x sr).")
 @click.option("--sky-model", type=click.Choice(["clear", "overcast", "none"]), default=None,
@@ -622,7 +622,7 @@ def sky(kind, output, size, pixel_type, **given):
     what = f"{width}x{height} {kind}" + ("" if path.suffix.lower() == ".hdr" else f", {pixel_type} EXR")
     _rows([
         ("map", what),
-        ("sun", None if sun is None else f"elevation {sun[0]:g} deg, azimuth {sun[1]:g} deg"),
+        ("sun", None if sun is None else f"azimuth {sun[0]:g} deg, elevation {sun[1]:g} deg"),
         ("peak", _num(peak)),
         ("integral", _rgb_line(per_rgb, y, "bt709") + "  (map units x sr)"),
         ("wrote", f"{path}  ({_bytes(path.stat().st_size)})"),

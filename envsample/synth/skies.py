@@ -67,6 +67,7 @@ from __future__ import annotations
 
 import inspect
 import math
+import warnings
 from collections.abc import Callable, Sequence
 
 import numpy as np
@@ -381,12 +382,23 @@ def sun_radiance(sun_illuminance: float, diameter_deg: float = _SUN_DIAMETER_DEG
     return float(sun_illuminance) / (math.pi * math.sin(r) ** 2)
 
 
-def sun_direction(elevation_deg: float, azimuth_deg: float, *, up: str = "y") -> np.ndarray:
-    """Unit direction (float64 (3,)) towards a point at the given elevation and azimuth, degrees.
+def sun_direction(*args, azimuth_deg: float | None = None, elevation_deg: float | None = None,
+                  up: str = "y") -> np.ndarray:
+    """Unit direction (float64 (3,)) towards a point at the given azimuth and elevation, degrees.
 
     Azimuth is the convention's ``phi`` (0 = image centre, positive to the right);
-    elevation is 90 deg minus the polar angle from ``up``.
+    elevation is 90 deg minus the polar angle from ``up``.  Pass both by keyword.
+    Two positional numbers are read in the former order ``(elevation, azimuth)``,
+    with a DeprecationWarning (envsample writes angles as azimuth, elevation).
     """
+    if args:
+        if len(args) != 2 or azimuth_deg is not None or elevation_deg is not None:
+            raise TypeError("sun_direction() takes azimuth_deg= and elevation_deg= by keyword")
+        warnings.warn("sun_direction(elevation, azimuth) with positional angles is deprecated; "
+                      "pass azimuth_deg= and elevation_deg=", DeprecationWarning, stacklevel=2)
+        elevation_deg, azimuth_deg = args
+    if azimuth_deg is None or elevation_deg is None:
+        raise TypeError("sun_direction() needs azimuth_deg= and elevation_deg=")
     el = _angle(elevation_deg, "elevation_deg", -90.0, 90.0)
     az = _angle(azimuth_deg, "azimuth_deg", -360.0, 360.0)
     u = (az / 360.0 + 0.5) % 1.0
@@ -451,7 +463,7 @@ def _sun_coverage(height: int, width: int, theta_s: float, phi_s: float, radius:
     return rr[nz], cc[nz], frac[nz]
 
 
-def _add_sun(img: np.ndarray, elevation_deg: float, azimuth_deg: float, illuminance: float,
+def _add_sun(img: np.ndarray, azimuth_deg: float, elevation_deg: float, illuminance: float,
              diameter_deg: float, color: np.ndarray) -> None:
     """Add a uniform sun disk of the given size and normal illuminance to ``img`` (float64), in place."""
     height, width = img.shape[:2]
@@ -478,7 +490,7 @@ def _sky_rows(sky: str, height: int, zenith_luminance: float) -> tuple[np.ndarra
     return rows, e_h
 
 
-def sun_sky(width: int, height: int | None = None, *, elevation_deg: float = 30.0, azimuth_deg: float = 0.0,
+def sun_sky(width: int, height: int | None = None, *, azimuth_deg: float = 0.0, elevation_deg: float = 30.0,
             sun_illuminance: float = 4.0, sun_color=(1.0, 0.96, 0.90), sky: str = "clear",
             zenith_luminance: float = 1.0, sun_diameter_deg: float = _SUN_DIAMETER_DEG,
             ground=0.0, ground_albedo=None) -> np.ndarray:
@@ -486,9 +498,9 @@ def sun_sky(width: int, height: int | None = None, *, elevation_deg: float = 30.
 
     Parameters
     ----------
-    elevation_deg, azimuth_deg : float
-        Sun position, degrees (elevation in [-90, 90]; azimuth is the convention's
-        phi, 0 = image centre, positive to the right).  The ground hides any part
+    azimuth_deg, elevation_deg : float
+        Sun position, degrees (azimuth is the convention's phi, 0 = image centre,
+        positive to the right; elevation in [-90, 90]).  The ground hides any part
         of the disk below the horizon.
     sun_illuminance : float
         Illuminance on a surface facing the sun, map units times steradians; the
@@ -525,7 +537,7 @@ def sun_sky(width: int, height: int | None = None, *, elevation_deg: float = 30.
     g = _ground_radiance(ground, ground_albedo, e_h)
     rows = rows + _ground_fraction(height)[:, None] * g
     img = _rows_to_image(rows, width)
-    _add_sun(img, el, az, e_sun, diam, color)
+    _add_sun(img, az, el, e_sun, diam, color)
     return img.astype(np.float32)
 
 
@@ -572,8 +584,8 @@ def studio_sky(width: int, height: int | None = None, *, lights: Sequence | None
 # invented demo scenes
 # ---------------------------------------------------------------------------
 
-#: Sun of the rooftop demo: (elevation_deg, azimuth_deg).
-ROOFTOP_SUN = (12.0, -65.0)
+#: Sun of the rooftop demo: (azimuth_deg, elevation_deg).
+ROOFTOP_SUN = (-65.0, 12.0)
 
 
 def _rooftop_skyline(seed: int = 20240611):
@@ -612,7 +624,7 @@ def rooftop_scene(width: int = 1024, height: int | None = None) -> np.ndarray:
     values, not measurements of any place.
     """
     width, height = _size(width, height)
-    el_s, az_s = ROOFTOP_SUN
+    az_s, el_s = ROOFTOP_SUN
     phi_s = math.radians(az_s)
     zen = _unit_luminance((0.10, 0.22, 0.60), "zenith") * 0.45
     hor = _unit_luminance((1.0, 0.58, 0.30), "horizon") * 1.1
@@ -640,7 +652,7 @@ def rooftop_scene(width: int = 1024, height: int | None = None) -> np.ndarray:
     for az, el, radiance, host in windows:
         # A window lies inside its building's box, so replacing the building is exact.
         _paint_rect(img, az, el, radiance, host)
-    _add_sun(img, el_s, az_s, 2.5, _SUN_DIAMETER_DEG, _unit_luminance((1.0, 0.72, 0.45), "sun"))
+    _add_sun(img, az_s, el_s, 2.5, _SUN_DIAMETER_DEG, _unit_luminance((1.0, 0.72, 0.45), "sun"))
     return img.astype(np.float32)
 
 
@@ -720,7 +732,7 @@ def make_sky(kind: str, *, width: int = 256, height: int | None = None, **option
 
 
 def sun_position(kind: str, **options) -> tuple[float, float] | None:
-    """(elevation_deg, azimuth_deg) of the sun in a sky built by ``make_sky(kind, **options)``, or None."""
+    """(azimuth_deg, elevation_deg) of the sun in a sky built by ``make_sky(kind, **options)``, or None."""
     key = str(kind).lower()
     if key not in _SKIES:
         raise ValueError(f"unknown sky kind {kind!r}; valid kinds: {', '.join(_SKIES)}")
@@ -728,6 +740,6 @@ def sun_position(kind: str, **options) -> tuple[float, float] | None:
         return ROOFTOP_SUN
     if key == "sun":
         defaults = inspect.signature(sun_sky).parameters
-        return (float(options.get("elevation_deg", defaults["elevation_deg"].default)),
-                float(options.get("azimuth_deg", defaults["azimuth_deg"].default)))
+        return (float(options.get("azimuth_deg", defaults["azimuth_deg"].default)),
+                float(options.get("elevation_deg", defaults["elevation_deg"].default)))
     return None
