@@ -110,8 +110,8 @@ def test_heuristics_match_their_definitions_on_a_worked_example():
     np.testing.assert_allclose(mis_weights(p, c, method="power", beta=1.0), mis_weights(p, c))
     np.testing.assert_allclose(mis_weights(p, c, method="maximum"), [[0.0, 1.0], [1.0, 0.0]])
     np.testing.assert_allclose(mis_weights(p, c, method="max"), [[0.0, 1.0], [1.0, 0.0]])
-    np.testing.assert_allclose(mis_weights(p, c, method="cutoff", alpha=0.5), [[0.0, 1.0], [1.0, 0.0]])
-    np.testing.assert_allclose(mis_weights(p, c, method="cutoff", alpha=0.2), [[0.25, 0.75], [0.75, 0.25]])
+    np.testing.assert_allclose(mis_weights(p, c, method="cutoff", cutoff=0.5), [[0.0, 1.0], [1.0, 0.0]])
+    np.testing.assert_allclose(mis_weights(p, c, method="cutoff", cutoff=0.2), [[0.25, 0.75], [0.75, 0.25]])
     # Counts multiply the densities: three samples of the first strategy balance (1, 3) evenly.
     np.testing.assert_allclose(mis_weights(p, [3, 1])[:, 0], [0.5, 0.5])
 
@@ -144,7 +144,7 @@ def test_weights_sum_to_one_where_some_pdf_is_positive_and_vanish_where_the_pdf_
     pdfs = np.array(data.draw(st.lists(st.lists(pdf_values, min_size=n, max_size=n), min_size=k, max_size=k)))
     counts = np.array(data.draw(st.lists(st.integers(1, 64), min_size=k, max_size=k)), dtype=float)
     params = {"power": {"beta": data.draw(st.floats(0.5, 8.0))},
-              "cutoff": {"alpha": data.draw(st.floats(0.0, 1.0))}}.get(method, {})
+              "cutoff": {"cutoff": data.draw(st.floats(0.0, 1.0))}}.get(method, {})
     w = mis_weights(pdfs, counts, method=method, **params)
     assert w.shape == pdfs.shape
     assert np.all(w >= 0.0) and np.all(w <= 1.0 + 1e-12)
@@ -164,8 +164,8 @@ def test_mis_weights_rejects_bad_input_with_clear_messages():
         mis_weights(p, [1, 1, 1])
     with pytest.raises(ValueError, match="beta must be a finite number > 0"):
         mis_weights(p, [1, 1], method="power", beta=0.0)
-    with pytest.raises(ValueError, match=r"alpha must lie in \[0, 1\]"):
-        mis_weights(p, [1, 1], method="cutoff", alpha=2.0)
+    with pytest.raises(ValueError, match=r"cutoff must lie in \[0, 1\]"):
+        mis_weights(p, [1, 1], method="cutoff", cutoff=2.0)
     with pytest.raises(ValueError, match="finite and non-negative"):
         mis_weights(-p, [1, 1])
 

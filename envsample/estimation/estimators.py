@@ -8,7 +8,7 @@ its selection probability ``c_i`` in one-sample MIS):
 ``balance``   w_i = q_i / sum_k q_k                       (the balance heuristic)
 ``power``     w_i = q_i^beta / sum_k q_k^beta, beta = 2    (power heuristic)
 ``maximum``   w_i = 1 if q_i is the largest, else 0        (maximum heuristic)
-``cutoff``    w_i = q_i / sum of q_k >= alpha q_max, 0 if q_i < alpha q_max  (cutoff heuristic)
+``cutoff``    w_i = q_i / sum of q_k >= c q_max, 0 if q_i < c q_max, c = ``cutoff``  (cutoff heuristic)
 
 Each is its own function in ``HEURISTICS``; :func:`mis_weights` dispatches by ``method=``.
 Every heuristic gives weights that sum to 1 wherever some pdf is positive and a
@@ -57,6 +57,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from envsample.core.color import luminance
+from envsample.core.compat import renamed_keywords, warn_renamed
 from envsample.sampling.strategies import (
     CosineHemisphere,
     Frame,
@@ -126,18 +127,20 @@ def maximum_heuristic(q: np.ndarray) -> np.ndarray:
     return w
 
 
-def cutoff_heuristic(q: np.ndarray, *, alpha: float = 0.1) -> np.ndarray:
-    """Cutoff heuristic (Veach 1997, section 9.2): drop q_i < alpha * q_max, balance the rest; 0 <= alpha <= 1.
+@renamed_keywords(alpha="cutoff")
+def cutoff_heuristic(q: np.ndarray, *, cutoff: float = 0.1) -> np.ndarray:
+    """Cutoff heuristic (Veach 1997, section 9.2): drop q_i < cutoff * q_max, balance the rest; 0 <= cutoff <= 1.
 
-    alpha = 0 is the balance heuristic; alpha = 1 keeps only the largest (ties share).
+    cutoff = 0 is the balance heuristic; cutoff = 1 keeps only the largest (ties share).
+    (Veach writes the threshold alpha; envsample keeps alpha for GGX roughness.)
     The default 0.1 is our choice, not a published optimum.
     """
-    alpha = float(alpha)
-    if not (0.0 <= alpha <= 1.0):
-        raise ValueError(f"cutoff heuristic alpha must lie in [0, 1], got {alpha}")
+    cutoff = float(cutoff)
+    if not (0.0 <= cutoff <= 1.0):
+        raise ValueError(f"cutoff heuristic threshold cutoff must lie in [0, 1], got {cutoff}")
     q = np.asarray(q, dtype=np.float64)
     qmax = q.max(axis=0)
-    keep = (q >= alpha * qmax) & (q > 0.0)
+    keep = (q >= cutoff * qmax) & (q > 0.0)
     return _normalise(np.where(keep, q, 0.0))
 
 
@@ -148,7 +151,7 @@ HEURISTICS = {
     "maximum": maximum_heuristic,
     "cutoff": cutoff_heuristic,
 }
-_HEURISTIC_PARAMS = {"balance": (), "power": ("beta",), "maximum": (), "cutoff": ("alpha",)}
+_HEURISTIC_PARAMS = {"balance": (), "power": ("beta",), "maximum": (), "cutoff": ("cutoff",)}
 _HEURISTIC_ALIASES = {"max": "maximum"}
 
 
@@ -172,9 +175,12 @@ def mis_weights(pdfs, counts, *, method: str = "balance", **params) -> np.ndarra
         (one-sample MIS); non-negative.
     method : {"balance", "power", "maximum" (alias "max"), "cutoff"}
     **params
-        ``beta`` for power (default 2), ``alpha`` for cutoff (default 0.1).
+        ``beta`` for power (default 2), ``cutoff`` for cutoff (default 0.1).
     """
     key = _heuristic_name(method)
+    if key == "cutoff" and "alpha" in params and "cutoff" not in params:
+        warn_renamed("alpha", "cutoff")
+        params["cutoff"] = params.pop("alpha")
     extra = set(params) - set(_HEURISTIC_PARAMS[key])
     if extra:
         allowed = ", ".join(_HEURISTIC_PARAMS[key]) or "none"
@@ -525,26 +531,27 @@ def _glossy_factor(d, frame: Frame) -> np.ndarray:
     return _GGX.eval(d, frame) * _cosine_factor(d, frame)
 
 
-def _heuristic_params(spec: _Spec, beta: float, alpha: float) -> dict:
+def _heuristic_params(spec: _Spec, beta: float, cutoff: float) -> dict:
     if spec.heuristic == "power":
         return {"beta": beta}
     if spec.heuristic == "cutoff":
-        return {"alpha": alpha}
+        return {"cutoff": cutoff}
     return {}
 
 
-def _run(kind, table, frame, factor, estimator, spp, seed, fractions, table_method, beta, alpha,
+def _run(kind, table, frame, factor, estimator, spp, seed, fractions, table_method, beta, cutoff,
          return_samples, max_chunk_samples):
     _check_table(table)
     spec = _spec(estimator, kind)
     strategies = [_strategy_for(r, kind, table, table_method) for r in spec.roles]
     return estimate(table, frame, factor, strategies, kind=spec.kind, fractions=fractions, spp=spp, seed=seed,
-                    heuristic=spec.heuristic or "balance", params=_heuristic_params(spec, beta, alpha),
+                    heuristic=spec.heuristic or "balance", params=_heuristic_params(spec, beta, cutoff),
                     name=estimator, return_samples=return_samples, max_chunk_samples=max_chunk_samples)
 
 
+@renamed_keywords(alpha="cutoff")
 def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: int = 64, seed=0,
-                        fractions=None, table_method: str = "alias", beta: float = 2.0, alpha: float = 0.1,
+                        fractions=None, table_method: str = "alias", beta: float = 2.0, cutoff: float = 0.1,
                         return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
     """Monte Carlo irradiance E(n) = integral of L(w) max(0, n.w) dw for each unit normal.
 
@@ -566,8 +573,9 @@ def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: 
         (table, bsdf) shares summing to 1.
     table_method : {"alias", "inverse"}
         How the table picks cells.
-    beta, alpha : float
-        Power-heuristic exponent (default 2) and cutoff threshold (default 0.1).
+    beta, cutoff : float
+        Power-heuristic exponent (default 2) and the cutoff heuristic's threshold, a fraction
+        of the largest weighted density (default 0.1; formerly ``alpha``).
     return_samples : bool
         Also return :class:`EstimatorSamples` (per-sample luminance contributions).
 
@@ -578,11 +586,12 @@ def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: 
     """
     frame = make_frame(normals)
     return _run("irradiance", table, frame, _cosine_factor, estimator, spp, seed, fractions, table_method,
-                beta, alpha, return_samples, max_chunk_samples)
+                beta, cutoff, return_samples, max_chunk_samples)
 
 
+@renamed_keywords(alpha="cutoff")
 def estimate_glossy(table, normals, wo, roughness, *, estimator: str = "mis-balance", spp: int = 64, seed=0,
-                    fractions=None, table_method: str = "alias", beta: float = 2.0, alpha: float = 0.1,
+                    fractions=None, table_method: str = "alias", beta: float = 2.0, cutoff: float = 0.1,
                     return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
     """Monte Carlo outgoing radiance of a GGX reflector lit by the map, per shading point.
 
@@ -595,4 +604,4 @@ def estimate_glossy(table, normals, wo, roughness, *, estimator: str = "mis-bala
     """
     frame = make_frame(normals, wo, roughness)
     return _run("glossy", table, frame, _glossy_factor, estimator, spp, seed, fractions, table_method,
-                beta, alpha, return_samples, max_chunk_samples)
+                beta, cutoff, return_samples, max_chunk_samples)

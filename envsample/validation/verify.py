@@ -975,7 +975,7 @@ def recommend(table, *, fractions=DEFAULT_FRACTIONS, heuristics=("balance", "pow
         "model": "one-sample MIS",
         "estimator": t["estimator"],
         "heuristic": t["heuristic"],
-        "heuristic_params": {"beta": 2.0} if t["heuristic"] == "power" else ({"alpha": 0.1} if t["heuristic"] == "cutoff" else {}),
+        "heuristic_params": {"beta": 2.0} if t["heuristic"] == "power" else ({"cutoff": 0.1} if t["heuristic"] == "cutoff" else {}),
         "strategies": t["strategies"],
         "fractions": t["fractions"],
         "table_fraction": t["table_fraction"],
