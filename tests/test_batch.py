@@ -215,7 +215,7 @@ def test_batch_reports_the_corrupt_file_and_finishes_the_rest(tmp_path):
 
     # Summaries: one row per source, in every format.
     summary = json.loads((out / "summary.json").read_text())
-    assert summary["schema"] == batch.SUMMARY_SCHEMA and len(summary["maps"]) == 7
+    assert batch.SUMMARY_SCHEMA.matches(summary) and summary["schema"] == "envsample.batch-summary" and len(summary["maps"]) == 7
     assert summary["counts"]["error"] == 1 and summary["counts"]["fail"] == 1
     with open(out / "summary.csv", newline="") as fh:
         table_rows = list(csv.DictReader(fh))

@@ -58,7 +58,7 @@ def test_demo_writes_maps_tables_and_vectors(demo):
         assert np.array_equal(table.image, img.rgb)  # the table samples the file as written
         assert m["build_seconds"] >= 0.0
     assert demo["steps"] == [s.label for s in demo_steps()]
-    assert "not certified" in demo["caveat"]
+    assert "not certified" in demo["caution"]
 
 
 def test_demo_overcast_integral_matches_the_closed_form(demo):

@@ -310,10 +310,10 @@ def test_light_level_matches_the_overcast_closed_form():
     rel = qa.check_map(img, checks=["light-level"])["light-level"]
     assert rel.value == pytest.approx(piecewise, rel=1e-6)
     assert rel.value == pytest.approx(closed, rel=1e-4)
-    assert "lux" not in rel.message and "not a certified lighting calculation" in rel.message
+    assert "lux" not in rel.message and "not certified lighting calculations" in rel.message
     lux = qa.check_map(img, checks=["light-level"], profile={"light-level": {"calibrated": True}})["light-level"]
     assert lux.severity == "pass" and lux.details["unit"] == "lx"
-    assert "lux" in lux.message and "not a certified lighting calculation" in lux.message
+    assert "lux" in lux.message and "not certified lighting calculations" in lux.message
 
 
 def test_light_level_of_a_uniform_sky_is_pi_l():
@@ -480,7 +480,8 @@ def test_exit_codes():
         qa.CheckResult("x", "error")
 
 
-REPORT_KEYS = {"schema", "source", "readable", "verdict", "counts", "profile", "image", "checks", "skipped", "note"}
+REPORT_KEYS = {"schema", "schema_version", "source", "readable", "verdict", "counts", "profile", "image", "checks",
+               "skipped", "caution"}
 CHECK_KEYS = {"id", "severity", "value", "threshold", "message", "remedy", "details"}
 
 
@@ -488,17 +489,17 @@ def test_json_report_keys_are_pinned(profile):
     """The JSON schema is a public interface: changing these keys needs a new schema version."""
     d = qa.check_map(sunny(), profile=profile).to_dict()
     assert set(d) == REPORT_KEYS
-    assert d["schema"] == {"name": "envsample-qa-report", "version": 1}
+    assert (d["schema"], d["schema_version"]) == ("envsample.qa-report", 2)
     assert set(d["source"]) == {"path", "sha256", "size"}
     assert set(d["counts"]) == {"pass", "warn", "fail"}
     assert set(d["profile"]) == {"name", "path"} and d["profile"]["name"] == "tests"
     for c in d["checks"]:
         assert set(c) == CHECK_KEYS
         assert "\n" not in c["message"] and "\n" not in c["remedy"]
-    assert "not a certified lighting calculation" in d["note"]
+    assert "not certified lighting calculations" in d["caution"]
     many = json.loads(qa.report_to_json([qa.check_map(sunny(), profile=profile), qa.check_map("missing.exr")]))
-    assert set(many) == {"schema", "summary", "reports"}
-    assert many["schema"] == {"name": "envsample-qa-reports", "version": 1}
+    assert set(many) == {"schema", "schema_version", "summary", "reports"}
+    assert (many["schema"], many["schema_version"]) == ("envsample.qa-reports", 2)
     assert many["summary"] == {"files": 2, "unreadable": 1, "pass": 1, "warn": 0, "fail": 0}
     assert [set(r) for r in many["reports"]] == [REPORT_KEYS, REPORT_KEYS]
 

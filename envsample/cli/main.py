@@ -40,6 +40,7 @@ from envsample.core.color import PRIMARY_NAMES
 from envsample.core.constants import PRIMARY_ALIASES
 from envsample.core.latlong import MAPPINGS
 from envsample.core.sphere import UP_AXES
+from envsample.core.text import caution
 from envsample.errors import EnvsampleError, EnvsampleWarning
 
 __all__ = ["main", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR"]
@@ -316,7 +317,7 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_
     values are clamped and counted) before anything is written. Existing
     table files with the same prefix are replaced atomically.
     """
-    from envsample.pipeline.workflow import ESTIMATE_CAVEAT, build_from_file
+    from envsample.pipeline.workflow import build_from_file
 
     printed: list[str] = []
     stages = ("read", "check", "build", "tune", "save") if tune else ("read", "check", "build", "save")
@@ -353,7 +354,7 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_
     for k, p in enumerate(result.paths):
         rows.append(("wrote" if k == 0 else "", f"{p}  ({_bytes(p.stat().st_size)})"))
     _rows(rows)
-    click.echo(f"({ESTIMATE_CAVEAT})")
+    click.echo(f"({caution('integrals')})")
 
 
 # --------------------------------------------------------------------------- inspect
@@ -399,7 +400,7 @@ def _print_map_facts(f: dict) -> None:
         ("brightest", f"{_direction_text(b)}  (pixel row {b['row']}, col {b['col']}; Y {_num(b['luminance'])})"),
         ("build", verdict),
     ])
-    click.echo(f"({f['caveat']})")
+    click.echo(f"({f['caution']})")
 
 
 def _print_table_facts(f: dict) -> None:
@@ -436,7 +437,7 @@ def _print_table_facts(f: dict) -> None:
     for k, item in enumerate(f["files"]):
         rows.append(("files" if k == 0 else "", f"{item['path']}  ({_bytes(item['bytes'])})"))
     _rows(rows)
-    click.echo(f"({f['caveat']})")
+    click.echo(f"({f['caution']})")
 
 
 @main.command("inspect")
@@ -615,7 +616,7 @@ def sky(kind, output, size, pixel_type, **given):
         )
     output.parent.mkdir(parents=True, exist_ok=True)
     path = write_map(output, rgb, pixel_type=pixel_type)
-    from envsample.pipeline.workflow import ESTIMATE_CAVEAT, map_integrals
+    from envsample.pipeline.workflow import map_integrals
 
     per_rgb, y, _ = map_integrals(rgb, "bt709")
     sun = sun_position(kind, **options)
@@ -627,7 +628,7 @@ def sky(kind, output, size, pixel_type, **given):
         ("integral", _rgb_line(per_rgb, y, "bt709") + "  (map units x sr)"),
         ("wrote", f"{path}  ({_bytes(path.stat().st_size)})"),
     ])
-    click.echo(f"({ESTIMATE_CAVEAT})")
+    click.echo(f"({caution('integrals')})")
 
 
 sky.help = inspect.cleandoc(sky.help).replace("{kinds}", _sky_help())
@@ -899,7 +900,7 @@ def _print_demo(s: dict) -> None:
     if first is not None:
         json_file = next(p for p in first["table_files"] if p.endswith(".json"))
         click.echo(f"next: envsample inspect {json_file}")
-    click.echo(f"({s['caveat']})")
+    click.echo(f"({s['caution']})")
 
 
 if __name__ == "__main__":  # pragma: no cover

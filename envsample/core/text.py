@@ -4,7 +4,15 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["number"]
+__all__ = ["CAUTION", "caution", "number"]
+
+#: The caution printed, written and shown wherever envsample gives a photometric value.
+CAUTION = "estimates for asset preparation, not certified lighting calculations"
+
+
+def caution(subject: str) -> str:
+    """``"<subject> are estimates for asset preparation, not certified lighting calculations"``."""
+    return f"{subject} are {CAUTION}"
 
 
 def number(x, digits: int = 4) -> str:

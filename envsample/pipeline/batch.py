@@ -96,6 +96,8 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.files import atomic_write_text
+from envsample.core.schema import Schema
+from envsample.core.text import caution
 from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
 
 __all__ = [
@@ -126,9 +128,9 @@ BUILD_OPTIONS = {
 }
 
 #: Name and version of ``summary.json``.
-SUMMARY_SCHEMA = {"name": "envsample-batch-summary", "version": 1}
+SUMMARY_SCHEMA = Schema("envsample.batch-summary", 2)
 #: Name and version of each map folder's ``manifest.json``.
-MANIFEST_SCHEMA = {"name": "envsample-batch-map", "version": 1}
+MANIFEST_SCHEMA = Schema("envsample.batch-map", 2)
 #: Verdicts of a map, best to worst: the QA verdict, or ``error`` when the file could
 #: not be read or processing failed.
 VERDICTS = ("pass", "warn", "fail", "error")
@@ -165,7 +167,6 @@ ROW_FIELDS = (
     "verify_rmse_mis",
 )
 
-PHOTOMETRY_NOTE = "photometric figures are estimates for asset preparation, not certified lighting calculations"
 
 #: Thumbnail width in pixels (the index page shows them at this size).
 THUMB_WIDTH = 128
@@ -589,7 +590,7 @@ def process_map(task: Mapping) -> dict:
     try:
         row = _build_outputs(task, work)
         manifest = {
-            "schema": dict(MANIFEST_SCHEMA),
+            **MANIFEST_SCHEMA.header(),
             "tool": {"name": "envsample", "version": task["version"]},
             "source": {"path": task["display"], "sha256": task["sha256"], "size": Path(task["source"]).stat().st_size},
             "key": task["key"],
@@ -597,7 +598,7 @@ def process_map(task: Mapping) -> dict:
             "seed": map_seed(task["sha256"]),
             "files": _files_of(work),
             "row": row,
-            "note": PHOTOMETRY_NOTE,
+            "caution": caution("photometric figures"),
         }
         _dump_json(work / "manifest.json", manifest)
         _publish(work, Path(task["outdir"]) / _MAPS / task["name"], staging)
@@ -629,7 +630,7 @@ def _up_to_date(folder: Path, sha256: str, key: str, version: str) -> dict | Non
         doc = json.loads((folder / "manifest.json").read_text(encoding="utf-8"))
     except (OSError, ValueError):
         return None
-    if not isinstance(doc, dict) or doc.get("schema") != MANIFEST_SCHEMA or doc.get("key") != key:
+    if not isinstance(doc, dict) or not MANIFEST_SCHEMA.matches(doc) or doc.get("key") != key:
         return None
     if doc.get("source", {}).get("sha256") != sha256 or doc.get("tool", {}).get("version") != version:
         return None
@@ -1075,14 +1076,14 @@ def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
 
     rows = [m.to_row() for m in result.maps]
     doc = {
-        "schema": dict(SUMMARY_SCHEMA),
+        **SUMMARY_SCHEMA.header(),
         "tool": {"name": "envsample", "version": __version__},
         "options": {k: v for k, v in key_doc.items() if k != "profile"},
         "profile": {"name": profile.name, "path": profile.path},
         "counts": result.counts,
         "duplicates": result.duplicates,
         "maps": rows,
-        "note": PHOTOMETRY_NOTE,
+        "caution": caution("photometric figures"),
     }
     paths = {"json": result.outdir / "summary.json", "csv": result.outdir / "summary.csv",
              "html": result.outdir / "index.html"}

@@ -36,12 +36,13 @@ import numpy as np
 
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.compat import renamed_keywords
+from envsample.core.schema import Schema
 from envsample.core.sphere import direction_to_uv, row_solid_angles, uv_to_direction
+from envsample.core.text import caution
 from envsample.errors import EnvsampleError, MapValidationError
 
 __all__ = [
     "BuildResult",
-    "ESTIMATE_CAVEAT",
     "VECTORS_SCHEMA",
     "build_from_file",
     "check_output_folder",
@@ -56,14 +57,12 @@ __all__ = [
 ]
 
 #: Schema name of the golden-vector files.
-VECTORS_SCHEMA = "envsample.golden-vectors"
-VECTORS_SCHEMA_VERSION = 1
+VECTORS_SCHEMA = Schema("envsample.golden-vectors", 1)
 
 #: Largest number of golden vectors per file: they check exactness, not statistics.
 MAX_VECTORS = 100_000
 
 #: Said wherever integrals are shown.
-ESTIMATE_CAVEAT = "integrals are estimates for asset preparation, not certified lighting calculations"
 
 Progress = Callable[[str], None]
 
@@ -275,8 +274,7 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
         path = Path(table_json)
         info = {"json": path.name, "json_sha256": file_sha256(path), **info}
     return {
-        "schema": VECTORS_SCHEMA,
-        "schema_version": VECTORS_SCHEMA_VERSION,
+        **VECTORS_SCHEMA.header(),
         "tool": {"name": "envsample", "version": __version__},
         "fields": dict(_VECTOR_FIELDS),
         "seed": seed,
@@ -390,7 +388,7 @@ def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotation_deg: f
         "brightest": brightest,
         "convention": {"up_axis": up, "rotation_deg": float(rotation_deg)},
         "build": usable,
-        "caveat": ESTIMATE_CAVEAT,
+        "caution": caution("integrals"),
     }
 
 
@@ -439,5 +437,5 @@ def table_facts(prefix_or_path) -> dict:
         "recommendation": doc.get("recommendation"),
         "notes": doc.get("notes", []),
         "files": files,
-        "caveat": ESTIMATE_CAVEAT,
+        "caution": caution("integrals"),
     }

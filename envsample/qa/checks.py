@@ -65,8 +65,9 @@ import numpy as np
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.constants import HALF_FLOAT_MAX, PRIMARIES, SUN_ANGULAR_DIAMETER_RAD, SUN_SOLID_ANGLE_SR
 from envsample.core.latlong import row_channel_sums
+from envsample.core.schema import Schema
 from envsample.core.sphere import pixel_center_angles, row_cos_edges, row_solid_angles
-from envsample.core.text import number
+from envsample.core.text import CAUTION, caution, number
 from envsample.errors import EnvsampleError, MapReadError
 from envsample.io.maps import MapImage, file_sha256, read_map
 
@@ -74,7 +75,6 @@ __all__ = [
     "SEVERITIES",
     "REPORT_SCHEMA",
     "REPORTS_SCHEMA",
-    "PHOTOMETRY_NOTE",
     "RECOMMENDED_ESTIMATOR",
     "ProfileError",
     "Profile",
@@ -94,12 +94,9 @@ SEVERITIES = ("pass", "warn", "fail")
 _RANK = {s: i for i, s in enumerate(SEVERITIES)}
 
 #: Name and version of the JSON report of one map (``Report.to_dict``).
-REPORT_SCHEMA = {"name": "envsample-qa-report", "version": 1}
+REPORT_SCHEMA = Schema("envsample.qa-report", 2)
 #: Name and version of the JSON document holding many reports (:func:`report_to_json`).
-REPORTS_SCHEMA = {"name": "envsample-qa-reports", "version": 1}
-
-#: Printed next to every photometric value.
-PHOTOMETRY_NOTE = "an estimate for asset preparation, not a certified lighting calculation"
+REPORTS_SCHEMA = Schema("envsample.qa-reports", 2)
 
 _SUN_DIAMETER_DEG = math.degrees(SUN_ANGULAR_DIAMETER_RAD)
 
@@ -422,7 +419,7 @@ class Report:
     def to_dict(self) -> dict:
         """The JSON report (schema :data:`REPORT_SCHEMA`); keys are stable within a schema version."""
         return {
-            "schema": dict(REPORT_SCHEMA),
+            **REPORT_SCHEMA.header(),
             "source": self.source.to_dict(),
             "readable": self.readable,
             "verdict": self.verdict,
@@ -431,7 +428,7 @@ class Report:
             "image": _jsonable(self.image),
             "checks": [c.to_dict() for c in self.checks],
             "skipped": _jsonable(self.skipped),
-            "note": f"photometric values are {PHOTOMETRY_NOTE}",
+            "caution": caution("photometric values"),
         }
 
 
@@ -1331,7 +1328,7 @@ def _check_light_level(ctx: CheckContext) -> CheckResult:
     e = float(ctx.luminance.sum(axis=1, dtype=np.float64) @ cw) * s["scale"]
     e_rgb = (row_channel_sums(ctx.rgb) * cw[:, None]).sum(axis=0) * s["scale"]
     details = {"irradiance_up": e, "irradiance_up_rgb": e_rgb.tolist(), "calibrated": s["calibrated"],
-               "note": PHOTOMETRY_NOTE}
+               "caution": caution("light levels")}
     if not e > 0.0:
         return CheckResult("light-level", "warn", value=e, threshold=None,
                            message="no light reaches an up-facing surface: the upper hemisphere is black",
@@ -1339,10 +1336,10 @@ def _check_light_level(ctx: CheckContext) -> CheckResult:
     if not s["calibrated"]:
         return CheckResult("light-level", "pass", value=e, threshold=None,
                            message=(f"irradiance on an up-facing surface {_fmt(e)} (map units x sr; "
-                                    f"{PHOTOMETRY_NOTE})"),
+                                    f"{CAUTION})"),
                            details=details)
     details["unit"] = "lx"
-    msg = f"about {_fmt(e)} lux on an up-facing surface ({PHOTOMETRY_NOTE})"
+    msg = f"about {_fmt(e)} lux on an up-facing surface ({CAUTION})"
     lo, hi = s["warn_below_lux"], s["warn_above_lux"]
     if e < lo or e > hi:
         return CheckResult("light-level", "warn", value=e, threshold=lo if e < lo else hi,
@@ -1579,5 +1576,5 @@ def report_to_json(reports, *, indent: int | None = 2) -> str:
     summary = {"files": len(reports), "unreadable": sum(not r.readable for r in reports)}
     for sev in SEVERITIES:
         summary[sev] = sum(r.verdict == sev and r.readable for r in reports)
-    doc = {"schema": dict(REPORTS_SCHEMA), "summary": summary, "reports": [r.to_dict() for r in reports]}
+    doc = {**REPORTS_SCHEMA.header(), "summary": summary, "reports": [r.to_dict() for r in reports]}
     return json.dumps(doc, indent=indent, allow_nan=False)

@@ -67,7 +67,7 @@ from urllib.parse import quote, urlsplit
 import numpy as np
 
 from envsample.core.files import atomic_write_bytes
-from envsample.core.text import number
+from envsample.core.text import caution, number
 from envsample.errors import EnvsampleError, MapValidationError
 from envsample.qa.checks import SEVERITIES, Report
 
@@ -86,8 +86,7 @@ THUMB_WIDTH = 512
 #: Largest (width, height) of the table whose pdf is drawn; smaller maps keep their own size.
 PDF_TABLE_SIZE = (256, 128)
 #: Said on every page, beside the key figures and in the footer.
-CAUTION = ("Photometric values (irradiance, lux) are estimates for asset preparation, "
-           "not certified lighting calculations.")
+CAUTION = caution("Photometric values (irradiance, lux)") + "."
 
 #: Keys of one :func:`index_page` row; every key is optional except a name ("name" or "source").
 INDEX_ROW_KEYS = {

@@ -27,9 +27,9 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.color import luminance
+from envsample.core.text import caution
 from envsample.errors import EnvsampleError
 from envsample.pipeline.workflow import (
-    ESTIMATE_CAVEAT,
     BuildResult,
     _pixel_direction,
     build_from_file,
@@ -276,6 +276,6 @@ def run_demo(
         "files": [str(p) for p in ctx.files],
         "steps": [s.label for s in steps],
         "seconds": time.perf_counter() - start,
-        "caveat": ESTIMATE_CAVEAT,
+        "caution": caution("integrals"),
         "extra": {k: v for k, v in ctx.extra.items() if k != "vectors"},
     }

@@ -92,6 +92,7 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.color import luminance
+from envsample.core.schema import Schema
 from envsample.core.sphere import (
     _frame,
     direction_to_pixel,
@@ -100,6 +101,7 @@ from envsample.core.sphere import (
     pixel_center_directions,
     row_solid_angles,
 )
+from envsample.core.text import caution
 from envsample.errors import EnvsampleError
 
 __all__ = [
@@ -118,13 +120,9 @@ __all__ = [
 ]
 
 #: Said wherever these numbers are shown.
-CAUTION = (
-    "photometric values are Monte Carlo estimates for asset preparation, "
-    "not certified lighting calculations"
-)
+CAUTION = caution("photometric values (Monte Carlo results)")
 
-METRICS_SCHEMA = "envsample.verify-metrics"
-METRICS_SCHEMA_VERSION = 1
+METRICS_SCHEMA = Schema("envsample.verify-metrics", 1)
 
 #: Estimators rendered by default: every irradiance estimator of envsample.mis except
 #: "bsdf", which for irradiance is the cosine strategy again.
@@ -792,8 +790,7 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     from envsample._version import __version__
 
     doc = {
-        "schema": METRICS_SCHEMA,
-        "schema_version": METRICS_SCHEMA_VERSION,
+        **METRICS_SCHEMA.header(),
         "caution": CAUTION,
         "tool_version": __version__,
         "source": source_info,
