@@ -941,9 +941,10 @@ def index_page(rows: Sequence[Mapping], path, *, title: str | None = None) -> Pa
         _severity_key(with_error="error" in verdicts),
         f'<p class="caution">{_esc(CAUTION)}</p>',
         table,
-        "<p class=\"meta\">Dynamic range: stops between the percentiles of the dynamic-range check. Firefly index: "
-        "the largest single-sample term of the sampling check's estimator over the mean irradiance (above 1, one "
-        "sample outshines a typical pixel). Irradiance up: "
+        "<p class=\"meta\">Dynamic range: stops between the percentiles of the dynamic-range check. Peak sample "
+        "share: the largest single-sample term of the sampling check's estimator over the mean irradiance (above 1, "
+        "one sample outshines a typical pixel; verify's firefly index is a different measure, largest over mean "
+        "sample). Irradiance up: "
         "on an up-facing surface; lux when the map is calibrated in cd/m\u00b2.</p>",
     ])
     return _write_atomic(path, _document(title, body))
