@@ -27,7 +27,7 @@ from click.testing import CliRunner
 
 import envsample
 from envsample.cli import main
-from envsample.cli.main import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR
+from envsample.cli.app import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR
 from envsample.io.maps import read_map, write_map
 from envsample.sampling.table import load_table
 

@@ -1,0 +1,78 @@
+"""``envsample batch``: :func:`envsample.pipeline.batch.run_batch`."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from envsample.cli.app import main
+from envsample.cli.options import table_options
+from envsample.cli.output import progress_bar
+
+
+@main.command()
+@click.argument("sources", metavar="SOURCE...", nargs=-1, required=True)
+@click.option("-o", "--output", "outdir", required=True, type=click.Path(file_okay=False, path_type=Path),
+              help="Output folder (created if missing): maps/<name>-<sha8>/, summary.csv, summary.json, index.html.")
+@click.option("--workers", type=click.IntRange(0, None), default=None,
+              help="Worker processes (default: the cores available; 0 runs in this process).")
+@click.option("--verify", is_flag=True, help="Also run a small validation render per map.")
+@click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
+@click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
+              help="QA thresholds (TOML); default: the built-in profile.")
+@click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
+@table_options
+def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
+          uniform_mix, up, rotation_deg):
+    """Check, build tables for (and optionally verify) every map under SOURCE.
+
+    SOURCE is files, folders (searched recursively) or glob patterns. Each map's
+    outputs appear in OUTDIR only when complete, so an interrupted batch can be
+    rerun to resume; maps whose source and options are unchanged are skipped.
+    Source files are never modified. Exit status: 0 every map passed or warned,
+    1 any map failed or could not be read (with --strict also any warning), 2 usage
+    error, 130 interrupted.
+    """
+    from envsample.pipeline.batch import BatchInterrupted, run_batch
+    from envsample.qa.checks import load_profile
+
+    profile = load_profile(profile_path)
+    options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,
+               "up": up, "rotation_deg": rotation_deg}
+    bar = progress_bar(0, "maps")
+
+    def progress(p):
+        bar.total = p.total
+        bar.n = p.done
+        c = p.counts
+        bar.set_postfix_str(f"pass {c['pass']} warn {c['warn']} fail {c['fail']} error {c['error']} "
+                            f"up-to-date {c['skipped']}", refresh=True)
+
+    try:
+        with bar:
+            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force,
+                               scheduler=scheduler, options=options, profile=profile, progress=progress)
+    except BatchInterrupted as e:
+        c = e.result.counts
+        click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete); "
+                   "rerun the same command to resume", err=True)
+        return 130
+    for m in result.maps:
+        if m.verdict == "pass":
+            continue
+        failed, warned = m.figures.get("failed_checks") or [], m.figures.get("warned_checks") or []
+        detail = m.error or "; ".join(
+            f"{label} {', '.join(ids)}" for label, ids in (("failed:", failed), ("warned:", warned)) if ids)
+        click.echo(f"{m.verdict:<5}  {m.source}" + (f"  {detail}" if detail else ""))
+    c = result.counts
+    click.echo(f"{c['maps']} maps: {c['pass']} pass, {c['warn']} warn, {c['fail']} fail, {c['error']} error "
+               f"({c['skipped']} up to date, not redone)")
+    for dup in result.duplicates:
+        click.echo("duplicate: " + " == ".join(dup["sources"]))
+    if result.summary:
+        names = ", ".join(Path(p).name for p in result.summary.values())
+        click.echo(f"wrote {outdir}/ ({names})")
+    return result.exit_code(strict=strict)

@@ -1,0 +1,60 @@
+"""``envsample check``: :func:`envsample.qa.checks.check_map` (+ :func:`envsample.reports.pages.check_page`)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+
+from envsample.cli.app import main
+from envsample.cli.output import progress_bar
+
+
+@main.command()
+@click.argument("maps", metavar="MAP...", nargs=-1, required=True, type=click.Path(dir_okay=False, path_type=Path))
+@click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
+              help="Thresholds (TOML); default: the built-in profile (see 'envsample/profiles/default.toml').")
+@click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="FILE",
+              help="Also write every check with its values as JSON ('-' for standard output).")
+@click.option("--html", "html_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="FILE",
+              help="Also write one self-contained HTML page for all the maps.")
+@click.option("--strict", is_flag=True, help="Exit with status 1 on warnings too.")
+@click.option("--only", "only", default=None, metavar="ID,ID",
+              help="Run only these checks (comma-separated ids; 'read' always runs).")
+def check(maps, profile_path, json_path, html_path, strict, only):
+    """Check HDR environment maps before they enter the library.
+
+    Each check has a stable id, a severity (pass, warn, fail), the measured value,
+    its threshold, a message and a remedy. Exit status: 0 all pass, 1 any fail
+    (with --strict also any warn), 2 unreadable input or usage error.
+    Light levels are estimates for asset preparation, not certified lighting calculations.
+    """
+    from envsample.qa.checks import check_map, format_report, load_profile, report_to_json
+
+    profile = load_profile(profile_path)
+    ids = None if only is None else [c.strip() for c in only.split(",") if c.strip()]
+    for out in (json_path, html_path):
+        if out is not None and str(out) != "-" and not out.parent.exists():
+            raise click.UsageError(f"{out.parent}: output folder does not exist; create it first")
+    reports = []
+    with progress_bar(len(maps), "checking") as bar:
+        for path in maps:
+            reports.append(check_map(path, profile=profile, checks=ids))
+            bar.update(1)
+    click.echo(format_report(reports, color=sys.stdout.isatty()))
+    if json_path is not None:
+        text = report_to_json(reports) + "\n"
+        if str(json_path) == "-":
+            click.echo(text, nl=False)
+        else:
+            from envsample.core.files import atomic_write_text
+
+            atomic_write_text(json_path, text)
+            click.echo(f"wrote {json_path}")
+    if html_path is not None:
+        from envsample.reports.pages import check_page
+
+        check_page(reports, html_path)
+        click.echo(f"wrote {html_path}")
+    return max(r.exit_code(strict=strict) for r in reports)

@@ -1,0 +1,81 @@
+"""``envsample verify``: :func:`envsample.validation.verify.verify_map`, then the table of estimators."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import click
+
+from envsample.cli.app import main
+from envsample.cli.options import SIZE
+from envsample.cli.output import print_rows, progress_bar
+
+
+@main.command()
+@click.argument("source", metavar="MAP_OR_TABLE", required=False, type=click.Path(path_type=Path))
+@click.option("-o", "--output", "outdir", type=click.Path(file_okay=False, path_type=Path),
+              help="Report folder (created if missing): metrics.json, EXR images, PNG pictures.")
+@click.option("--spp", type=click.IntRange(1, 1 << 16), default=64, show_default=True,
+              help="Samples per normal for each estimator.")
+@click.option("--normals", type=SIZE, default="128x64", show_default=True,
+              help="Grid of normals WIDTHxHEIGHT (a lat-long image of normals).")
+@click.option("--estimators", default=None, metavar="LIST",
+              help="Comma-separated estimator names (default: all irradiance estimators; see 'envsample verify --list').")
+@click.option("--roughness", type=click.FloatRange(1e-4, 1.0), default=None,
+              help="Also check glossy GGX reflection at this roughness (alpha).")
+@click.option("--seed", type=click.IntRange(0, None), default=0, show_default=True, help="Random seed (recorded).")
+@click.option("--table-size", type=SIZE, default=None, help="Table grid when SOURCE is a map (default: its size).")
+@click.option("--no-sphere", is_flag=True, help="Skip the picture of a shaded sphere.")
+@click.option("--list", "list_only", is_flag=True, is_eager=True, expose_value=True,
+              help="List the estimator names and exit.")
+def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size, no_sphere, list_only):
+    """Render irradiance over a sphere of normals with every sampling strategy and
+    MIS combination, compare with the exact reference, and say which is best.
+
+    Writes metrics.json (relative RMSE, bias with its standard error, variance,
+    firefly index, time per sample, efficiency, the recommended estimator), EXR
+    images of the reference and each estimate, error heat maps and a convergence plot.
+    """
+    from envsample.estimation.estimators import estimators as estimator_names
+    from envsample.validation.verify import verify_map
+
+    if list_only:
+        click.echo("\n".join(estimator_names("irradiance")))
+        return 0
+    if source is None or outdir is None:
+        raise click.UsageError("give MAP_OR_TABLE and -o OUTDIR (or --list)")
+    names = None if estimators is None else [e.strip() for e in estimators.split(",") if e.strip()]
+    with progress_bar(0, "verify") as bar:
+        def progress(label):
+            bar.set_description(label)
+            bar.refresh()
+
+        m = verify_map(source, outdir, spp=spp, normals=normals, estimators=names, roughness=roughness, seed=seed,
+                       table_size=table_size, sphere=not no_sphere, progress=progress)
+    tab = m["table"]
+    ref = m["reference"]
+    print_rows([
+        ("verify", f"{source}  (table {tab['cells'][0]}x{tab['cells'][1]}, {tab['mapping']})"),
+        ("normals", f"{m['normals']['width']}x{m['normals']['height']} x {m['spp']} spp, seed {m['seed']}"),
+        ("reference", f"exact, relative error bound {ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s)"),
+    ])
+    click.echo("")
+    head = f"{'estimator':<20} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}  {'ns/sample':>9}  {'efficiency':>10}"
+    click.echo(head)
+    rec = m["recommended"]
+    for name, e in m["estimators"].items():
+        bias = f"{e['mean_bias']:+.3f} +- {e['mean_bias_se']:.3f}"
+        # An unbiased estimator whose mean is many SE off has missed rare, bright samples (the sun).
+        mark = "  <- recommended" if name == rec["estimator"] else ("" if e["bias_consistent_with_zero"]
+                                                                   else "  (mean off: misses rare bright light)")
+        click.echo(f"{name:<20} {e['relative_rmse']:>9.4g}  {bias:>17}  {e['firefly_index']:>8.3g}  "
+                   f"{e['time_per_sample_s'] * 1e9:>9.0f}  {e['efficiency']:>10.3g}{mark}")
+    click.echo("")
+    print_rows([
+        ("recommended", f"{rec['estimator']} (highest efficiency among estimators whose bias is within 4 SE; "
+                        f"least variance: {rec['lowest_variance']})"),
+        ("wrote", f"{outdir}/ (metrics.json and {len(list(Path(outdir).glob('*.exr')))} EXR, "
+                  f"{len(list(Path(outdir).glob('*.png')))} PNG files)"),
+    ])
+    click.echo(f"({m['caution']})")
+    return 0
