@@ -49,6 +49,9 @@ __all__ = [
     "direction_to_pixel",
     "pixel_center_directions",
     "pixel_center_angles",
+    "uv_to_angles",
+    "angles_to_uv",
+    "direction_angles",
     "orthonormal_basis",
     "to_local",
     "to_world",
@@ -185,19 +188,38 @@ def direction_to_pixel(d, height: int, width: int, *, up: str = "y", rotation_de
     return row, col
 
 
-@renamed_keywords(rotate_deg="rotation_deg")
-def pixel_center_angles(row, col, height: int, width: int, *, rotation_deg: float = 0.0):
-    """Azimuth and elevation, **degrees**, of pixel centres (for reports and messages).
+def uv_to_angles(u, v, *, rotation_deg: float = 0.0):
+    """Azimuth and elevation, **degrees**, of image coordinates (for reports, messages and the CLI).
 
     Azimuth is the convention's phi wrapped to (-180, 180] (0 = image centre, positive
     to the right, plus the rotation); elevation is 90 deg minus the polar angle from
-    the up axis.  ``row`` and ``col`` may be arrays; returns float64 arrays (or floats).
+    the up axis.  Arrays in, float64 arrays out (floats for scalars).
     """
-    az = 360.0 * ((np.asarray(col) + 0.5) / width - 0.5) + float(rotation_deg)
+    az = 360.0 * (np.asarray(u, dtype=np.float64) - 0.5) + float(rotation_deg)
     az = (az + 180.0) % 360.0 - 180.0
     az = np.where(az == -180.0, 180.0, az)
-    el = 90.0 - 180.0 * (np.asarray(row) + 0.5) / height
+    el = 90.0 - 180.0 * np.asarray(v, dtype=np.float64)
     return (float(az), float(el)) if np.ndim(az) == 0 and np.ndim(el) == 0 else (az, el)
+
+
+def angles_to_uv(azimuth_deg, elevation_deg, *, rotation_deg: float = 0.0):
+    """Image coordinates (u in [0, 1), v in [0, 1]) of an azimuth and elevation in degrees; inverse of :func:`uv_to_angles`."""
+    u = ((np.asarray(azimuth_deg, dtype=np.float64) - float(rotation_deg)) / 360.0 + 0.5) % 1.0
+    v = (90.0 - np.asarray(elevation_deg, dtype=np.float64)) / 180.0
+    return (float(u), float(v)) if np.ndim(u) == 0 and np.ndim(v) == 0 else (u, v)
+
+
+@renamed_keywords(rotate_deg="rotation_deg")
+def direction_angles(directions, *, up: str = "y", rotation_deg: float = 0.0):
+    """Azimuth and elevation in **degrees** of directions ``(..., 3)``: :func:`direction_to_uv` then :func:`uv_to_angles`."""
+    u, v = direction_to_uv(directions, up=up, rotation_deg=rotation_deg)
+    return uv_to_angles(u, v, rotation_deg=rotation_deg)
+
+
+@renamed_keywords(rotate_deg="rotation_deg")
+def pixel_center_angles(row, col, height: int, width: int, *, rotation_deg: float = 0.0):
+    """Azimuth and elevation, **degrees**, of pixel centres; ``row`` and ``col`` may be arrays (see :func:`uv_to_angles`)."""
+    return uv_to_angles((np.asarray(col) + 0.5) / width, (np.asarray(row) + 0.5) / height, rotation_deg=rotation_deg)
 
 
 @renamed_keywords(rotate_deg="rotation_deg")

@@ -9,7 +9,6 @@ Public objects
   loader against this one (``envsample vectors``).
 - :func:`map_facts` / :func:`table_facts`: JSON-ready facts about a map or a
   table (``envsample inspect``).
-- :func:`direction_angles`: azimuth and elevation, degrees, of directions.
 
 Conventions: directions follow :mod:`envsample.sphere` (radians inside; the
 azimuth and elevation returned here are degrees because they are meant for
@@ -37,7 +36,7 @@ import numpy as np
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.compat import renamed_keywords
 from envsample.core.schema import Schema
-from envsample.core.sphere import direction_to_uv, row_solid_angles, uv_to_direction
+from envsample.core.sphere import direction_angles, row_solid_angles, uv_to_direction
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError, MapValidationError
 
@@ -51,7 +50,6 @@ __all__ = [
     "vectors_text",
     "map_facts",
     "table_facts",
-    "direction_angles",
     "map_integrals",
     "output_prefix",
 ]
@@ -68,21 +66,6 @@ Progress = Callable[[str], None]
 
 
 # --------------------------------------------------------------------------- angles
-
-
-@renamed_keywords(rotate_deg="rotation_deg")
-def direction_angles(directions, *, up: str = "y", rotation_deg: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
-    """Azimuth and elevation in **degrees** of directions ``(..., 3)`` (float64 arrays).
-
-    Azimuth is the convention's phi (0 = image centre, positive to the right,
-    in (-180, 180]); elevation is 90 deg minus the polar angle from the up axis.
-    Computed through :func:`envsample.sphere.direction_to_uv`.
-    """
-    u, v = direction_to_uv(directions, up=up, rotation_deg=rotation_deg)
-    az = 360.0 * (u - 0.5) + float(rotation_deg)
-    az = (az + 180.0) % 360.0 - 180.0
-    az = np.where(az == -180.0, 180.0, az)
-    return az, 90.0 - 180.0 * v
 
 
 def _pixel_direction(row: int, col: int, height: int, width: int, *, up: str, rotation_deg: float) -> dict:

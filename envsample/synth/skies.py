@@ -73,7 +73,7 @@ from collections.abc import Callable, Sequence
 import numpy as np
 
 from envsample.core.constants import SUN_ANGULAR_DIAMETER_RAD, luminance_weights
-from envsample.core.sphere import row_cos_edges, uv_to_direction
+from envsample.core.sphere import angles_to_uv, row_cos_edges, uv_to_direction
 
 __all__ = [
     "OVERCAST_HORIZONTAL_FACTOR",
@@ -401,8 +401,7 @@ def sun_direction(*args, azimuth_deg: float | None = None, elevation_deg: float 
         raise TypeError("sun_direction() needs azimuth_deg= and elevation_deg=")
     el = _angle(elevation_deg, "elevation_deg", -90.0, 90.0)
     az = _angle(azimuth_deg, "azimuth_deg", -360.0, 360.0)
-    u = (az / 360.0 + 0.5) % 1.0
-    v = (90.0 - el) / 180.0
+    u, v = angles_to_uv(az, el)
     return uv_to_direction(u, v, up=up)
 
 

@@ -271,7 +271,7 @@ def test_public_names_exist():
 def test_pixel_center_angles_agree_with_the_directions(rotate):
     """Degrees for reports read off the same convention as the directions (azimuth from phi, elevation 90 - theta)."""
     from envsample.core.sphere import pixel_center_angles
-    from envsample.pipeline.workflow import direction_angles
+    from envsample.core.sphere import direction_angles
 
     h, w = 6, 12
     d = sphere.pixel_center_directions(h, w, up="z", rotation_deg=rotate)
@@ -280,3 +280,23 @@ def test_pixel_center_angles_agree_with_the_directions(rotate):
     az, el = pixel_center_angles(rows, cols, h, w, rotation_deg=rotate)
     np.testing.assert_allclose(el, el_ref, atol=1e-9)
     np.testing.assert_allclose(np.cos(np.radians(az - az_ref)), 1.0, atol=1e-12)  # equal modulo 360
+
+
+@pytest.mark.parametrize("rotation", [0.0, 30.0, -135.0])
+def test_angles_and_uv_are_inverse_and_match_the_direction(rotation):
+    """angles_to_uv inverts uv_to_angles, and the angles are those of the textbook spherical direction
+    (azimuth phi from forward towards right, elevation from the horizon; the documented frame, up = y)."""
+    from envsample.core.sphere import angles_to_uv, direction_angles, uv_to_angles
+
+    rng = np.random.default_rng(7)
+    u, v = rng.random(200), rng.uniform(0.01, 0.99, 200)
+    az, el = uv_to_angles(u, v, rotation_deg=rotation)
+    u2, v2 = angles_to_uv(az, el, rotation_deg=rotation)
+    np.testing.assert_allclose(u2, u, atol=1e-12)
+    np.testing.assert_allclose(v2, v, atol=1e-12)
+    phi, lat = np.radians(az), np.radians(el)
+    # forward -Z, right +X, up +Y (the convention of envsample.core.sphere for up = "y")
+    d = np.stack([np.cos(lat) * np.sin(phi), np.sin(lat), -np.cos(lat) * np.cos(phi)], axis=-1)
+    az3, el3 = direction_angles(d, up="y", rotation_deg=rotation)
+    np.testing.assert_allclose(el3, el, atol=1e-9)
+    np.testing.assert_allclose(np.cos(np.radians(az3 - az)), 1.0, atol=1e-12)
