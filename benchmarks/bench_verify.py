@@ -27,10 +27,11 @@ import time
 import numpy as np
 
 from envsample.estimation.estimators import estimate_irradiance
+from envsample.pipeline.verify import verify_map
 from envsample.reference.irradiance import reference_irradiance
 from envsample.sampling.table import build_table
 from envsample.synth import skies
-from envsample.validation.verify import normal_grid, verify_map
+from envsample.validation.grid import normal_grid
 
 ESTIMATORS = ("cosine", "table", "mis-balance", "mis-power", "one-sample-balance", "one-sample-power")
 NORMALS = (128, 64)

@@ -87,9 +87,9 @@ _EXPORTS = {
     "reference_glossy": "reference.irradiance",
     "sh9_project": "reference.irradiance",
     "sh9_irradiance": "reference.irradiance",
-    "verify_map": "validation.verify",
-    "tune_one_sample": "validation.verify",
-    "recommend": "validation.verify",
+    "verify_map": "pipeline.verify",
+    "tune_one_sample": "validation.tuning",
+    "recommend": "validation.tuning",
     # reports and batch
     "check_page": "reports.pages",
     "index_page": "reports.pages",

@@ -1,4 +1,4 @@
-"""``envsample verify``: :func:`envsample.validation.verify.verify_map`, then the table of estimators."""
+"""``envsample verify``: :func:`envsample.pipeline.verify.verify_map`, then the table of estimators."""
 
 from __future__ import annotations
 
@@ -37,7 +37,7 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     images of the reference and each estimate, error heat maps and a convergence plot.
     """
     from envsample.estimation.estimators import estimators as estimator_names
-    from envsample.validation.verify import verify_map
+    from envsample.pipeline.verify import verify_map
 
     if list_only:
         click.echo("\n".join(estimator_names("irradiance")))

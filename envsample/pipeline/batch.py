@@ -548,7 +548,7 @@ def _verify(table, folder: Path, *, seed: int) -> dict:
     (verify's recommended estimator ranks by measured efficiency, which includes
     timings, so it is left in ``verify/metrics.json``.)
     """
-    from envsample.validation.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
+    from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
 
     s = VERIFY_SETTINGS
     doc = verify_map(table, folder, spp=s["spp"], normals=tuple(s["normals"]), estimators=tuple(s["estimators"]),

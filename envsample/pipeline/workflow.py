@@ -172,7 +172,7 @@ def build_from_file(
     seconds = time.perf_counter() - start
     notes = list(notes) + [n for n in table.metadata.get("notes", []) if n not in notes]
     if tune:
-        from envsample.validation.verify import recommend
+        from envsample.validation.tuning import recommend
 
         _tick(progress, "tune")
         table.metadata["recommendation"] = recommend(table)

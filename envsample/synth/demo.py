@@ -170,7 +170,7 @@ def _check_step(scene: DemoScene) -> DemoStep:
 
 def _verify_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.validation.verify import verify_map
+        from envsample.pipeline.verify import verify_map
 
         normals = (min(64, ctx.width // 2), min(32, ctx.width // 4))
         out = ctx.path("reports", scene.name, "verify")

@@ -26,8 +26,7 @@ import pytest
 from click.testing import CliRunner
 
 import envsample
-from envsample.cli import main
-from envsample.cli.app import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR
+from envsample.cli.app import EXIT_INTERNAL_ERROR, EXIT_USER_ERROR, main
 from envsample.io.maps import read_map, write_map
 from envsample.sampling.table import load_table
 

@@ -270,8 +270,7 @@ def test_public_names_exist():
 @pytest.mark.parametrize("rotate", [0.0, 30.0, -135.0])
 def test_pixel_center_angles_agree_with_the_directions(rotate):
     """Degrees for reports read off the same convention as the directions (azimuth from phi, elevation 90 - theta)."""
-    from envsample.core.sphere import pixel_center_angles
-    from envsample.core.sphere import direction_angles
+    from envsample.core.sphere import direction_angles, pixel_center_angles
 
     h, w = 6, 12
     d = sphere.pixel_center_directions(h, w, up="z", rotation_deg=rotate)

@@ -172,7 +172,7 @@ def pages(tmp_path_factory, maps):
 
 @pytest.fixture(scope="module")
 def verify_dir(tmp_path_factory, maps):
-    from envsample.validation.verify import verify_map
+    from envsample.pipeline.verify import verify_map
 
     out = tmp_path_factory.mktemp("verify")
     verify_map(maps["clean"], out, spp=4, normals=(16, 8), estimators=["cosine", "table", "mis-balance"],

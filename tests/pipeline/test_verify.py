@@ -1,4 +1,4 @@
-"""Tests of envsample.verify: the validation render, its files and metrics, and the tuned selection.
+"""Tests of envsample.pipeline.verify (verify_map): the validation render of a map into a folder, its files and metrics.
 
 Sources, named per test:
 - Lambert's cosine law: a uniform map of radiance L gives E = pi L for every normal, and
@@ -24,16 +24,10 @@ import math
 import numpy as np
 import pytest
 
-from envsample.sampling.table import build_table, load_table
+from envsample.pipeline.verify import load_source, verify_map
+from envsample.sampling.table import build_table
 from envsample.synth import skies
-from envsample.validation.verify import (
-    DEFAULT_ESTIMATORS,
-    DEFAULT_FRACTIONS,
-    load_source,
-    recommend,
-    tune_one_sample,
-    verify_map,
-)
+from envsample.validation.render import DEFAULT_ESTIMATORS
 
 OpenEXR = pytest.importorskip("OpenEXR")
 
@@ -169,7 +163,7 @@ def test_sphere_picture_faces_the_camera(up):
     the right edge +right and the top edge +up; every normal on the disk is a unit vector.
     """
     from envsample.core.sphere import UP_AXES
-    from envsample.validation.verify import sphere_normals
+    from envsample.validation.grid import sphere_normals
 
     f, r, a = (np.array(v) for v in UP_AXES[up])
     n, mask = sphere_normals(65, up=up)
@@ -366,56 +360,12 @@ def test_compensated_table_is_used_only_inside_mis(tmp_path):
         verify_map(table, tmp_path, estimators=("table",))
 
 
-# ---------------------------------------------------------------------------
-# tuned selection
-# ---------------------------------------------------------------------------
-
-def test_tune_returns_a_listed_fraction_no_worse_than_the_default():
-    """Variance ratio is re-measured on fresh samples, so it may exceed 1 by noise only (4 SE)."""
-    table = build_table(skies.make_sky("rooftop", width=128))
-    t = tune_one_sample(table, spp=SPP, normals=GRID, seed=2)
-    assert t["table_fraction"] in DEFAULT_FRACTIONS
-    assert t["heuristic"] in ("balance", "power")
-    assert t["fractions"] == pytest.approx([t["table_fraction"], 1.0 - t["table_fraction"]])
-    assert t["variance_ratio"] <= 1.0 + SIGMAS * t["variance_ratio_se"]
-    assert len(t["pilot"]) == 2 * len(DEFAULT_FRACTIONS)
-
-
-def test_tune_picks_the_cosine_side_on_a_uniform_map():
-    """Lambert's cosine law: on a constant map cosine sampling is exact, and every table share adds variance.
-
-    So the least table fraction on offer must win, with a variance clearly below the default's.
-    """
-    table = build_table(skies.make_sky("uniform", width=64))
-    t = tune_one_sample(table, fractions=(0.2, 0.5, 0.8), heuristics="balance", spp=SPP, normals=GRID, seed=4)
-    assert t["table_fraction"] == 0.2 and t["heuristic"] == "balance"
-    assert t["variance_ratio"] + SIGMAS * t["variance_ratio_se"] < 1.0
-
-
-def test_recommendation_round_trips_through_the_table_files(tmp_path):
-    table = build_table(skies.make_sky("rooftop", width=64))
-    rec = recommend(table, spp=8, normals=(8, 4), seed=1)
-    assert rec["estimator"].startswith("one-sample-") and "Sbert" in rec["cite"]
-    json.dumps(rec, allow_nan=False)
-    table.metadata["recommendation"] = rec
-    table.save(tmp_path / "tuned")
-    assert load_table(tmp_path / "tuned").metadata["recommendation"] == rec
-
-
-def test_tune_rejects_bad_fractions():
-    table = build_table(skies.make_sky("uniform", width=32))
-    with pytest.raises(ValueError, match="strictly between 0 and 1"):
-        tune_one_sample(table, fractions=(0.0, 0.5))
-    with pytest.raises(ValueError, match="heuristic"):
-        tune_one_sample(table, heuristics=("nope",))
-
-
 def test_rerun_in_the_same_folder_leaves_only_this_runs_files(tmp_path):
     # A report folder reused with fewer estimators must not keep images metrics.json no longer lists.
     import json
 
+    from envsample.pipeline.verify import verify_map
     from envsample.synth.skies import make_sky
-    from envsample.validation.verify import verify_map
 
     rgb = make_sky("overcast", width=32)
     out = tmp_path / "r"

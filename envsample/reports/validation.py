@@ -1,0 +1,147 @@
+"""The files of a validation report: EXR images, PNG pictures and ``metrics.json``.
+
+:func:`write_validation` writes what :func:`envsample.validation.render.render_validation`
+computed into a folder: ``map.png``; ``reference.exr`` and ``estimate_<name>.exr``
+(float32 ``(H, W, 3)`` irradiance per normal, map units x sr); ``errors_<k>.png`` (heat
+maps, one colour scale); ``convergence.png``; ``sphere.png``; ``metrics.json`` last.  Every
+file is written atomically; images of an earlier run that this one did not write are
+removed once the new ``metrics.json`` is in place, so the folder always matches it.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+from envsample.core.files import atomic_write_text
+from envsample.core.sphere import direction_to_pixel
+from envsample.errors import EnvsampleError
+from envsample.io.maps import write_map
+from envsample.reports.pictures import (
+    convergence_plot,
+    heatmap_figure,
+    image_panels,
+    log_average_luminance,
+    thumbnail,
+    tonemap,
+    write_png,
+)
+from envsample.validation.grid import sphere_normals
+
+__all__ = ["PANELS_PER_PICTURE", "write_validation"]
+
+#: Error heat maps per PNG (they share one colour scale across files).
+PANELS_PER_PICTURE = 4
+
+
+def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> list[np.ndarray]:
+    """Reference and estimate on a white Lambertian sphere (radiance E/pi): two uint8 pictures, one exposure."""
+    n, mask = sphere_normals(size, up=table.up)
+    w, h = grid_wh
+    row, col = direction_to_pixel(n[mask], h, w, up=table.up, rotation_deg=table.rotation_deg)
+    panels = []
+    for grid in (ref_grid, est_grid):
+        img = np.zeros((size, size, 3), dtype=np.float32)
+        img[mask] = grid.reshape(h, w, 3)[row, col] / np.float32(math.pi)
+        panels.append(img)
+    avg = log_average_luminance(panels[0])
+    exposure = math.log2(0.18 / avg) if avg > 0 else 0.0
+    return [tonemap(panels[0], exposure=exposure), tonemap(panels[1], exposure=exposure)]
+
+
+def _error_pictures(outdir: Path, panels: list, rotation_deg: float) -> list[str]:
+    values = np.concatenate([p[1].ravel() for p in panels])
+    values = values[np.isfinite(values)]
+    vmax = float(np.percentile(values, 99.0)) if values.size else 1.0
+    if not vmax > 0.0:
+        vmax = float(values.max()) if values.size and values.max() > 0 else 1.0
+    label = "relative error |E - E_ref| / mean(E_ref)"
+    files = []
+    count = -(-len(panels) // PANELS_PER_PICTURE)
+    for k in range(count):
+        chunk = panels[k * PANELS_PER_PICTURE:(k + 1) * PANELS_PER_PICTURE]
+        name = f"errors_{k + 1}.png"
+        title = (f"irradiance error per normal (luminance); colour scale clipped at the 99th percentile, {vmax:.3g}"
+                 + (f"; picture {k + 1} of {count}, one scale" if count > 1 else ""))
+        heatmap_figure(chunk, path=outdir / name, label=label, vmin=0.0, vmax=vmax, latlong=True,
+                       rotation_deg=rotation_deg, title=title)
+        files.append(name)
+    return files
+
+
+def _remove_stale_outputs(outdir: Path, files: dict) -> None:
+    """Remove our own images from an earlier run in the same folder that this run did not write.
+
+    Only names this module writes (``estimate_*.exr``, ``errors_*.png``, and the
+    optional ``convergence.png``/``sphere.png``) are touched, after the new
+    ``metrics.json`` is in place, so the folder always matches its metrics.
+    """
+    keep = set()
+    for v in files.values():
+        if isinstance(v, str):
+            keep.add(v)
+        elif isinstance(v, dict):
+            keep.update(x for x in v.values() if isinstance(x, str))
+        elif isinstance(v, (list, tuple)):
+            keep.update(x for x in v if isinstance(x, str))
+    for pattern in ("estimate_*.exr", "errors_*.png", "convergence.png", "sphere.png"):
+        for p in outdir.glob(pattern):
+            if p.name not in keep:
+                p.unlink(missing_ok=True)
+
+
+def _convergence_picture(result, outdir: Path, notes: list) -> str | None:
+    conv = result.convergence
+    shown = {k: conv["relative_rmse"][k] for k in conv["plotted"]}
+    if not any(v is not None and v > 0 for vals in shown.values() for v in vals):
+        # A black map (or exact estimates everywhere) leaves nothing to draw on log axes.
+        notes.append("no positive relative error to plot: convergence.png not written")
+        return None
+    convergence_plot(conv["spp"], shown, path=outdir / "convergence.png",
+                     xlabel="samples per normal", ylabel="relative RMSE of irradiance (luminance)",
+                     title=f"convergence on {conv['normals'][0]}x{conv['normals'][1]} normals")
+    return "convergence.png"
+
+
+def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> dict:
+    """Write a :class:`~envsample.validation.render.ValidationResult` into ``outdir``; return ``metrics.json``'s content.
+
+    ``outdir`` is created if missing.  ``source`` describes where the table came from
+    (``metrics.json["source"]``).  ``sphere=False`` skips ``sphere.png``.
+    """
+    outdir = Path(outdir)
+    try:
+        outdir.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise EnvsampleError(f"{outdir}: cannot create the output folder ({exc.strerror or exc}); choose another -o") from None
+    table = result.table
+    w, h = result.grid
+    notes = list(result.notes)
+    files = {"map": "map.png", "reference": "reference.exr", "estimates": {}}
+    write_png(outdir / "map.png", thumbnail(table.image, width=min(1024, table.width)))
+    write_map(outdir / "reference.exr", result.reference.reshape(h, w, 3), pixel_type="float")
+    panels = []
+    for name, est in result.estimates.items():
+        fname = f"estimate_{name}.exr"
+        write_map(outdir / fname, est.reshape(h, w, 3), pixel_type="float")
+        result.entries[name]["file"] = fname
+        files["estimates"][name] = fname
+        panels.append((name, result.relative_error_image(name)))
+    files["errors"] = _error_pictures(outdir, panels, table.rotation_deg)
+    picture = _convergence_picture(result, outdir, notes)
+    if picture:
+        files["convergence"] = picture
+    best = result.recommended["estimator"]
+    if sphere and best is not None:
+        ref_pic, est_pic = _sphere_picture(result.reference, result.estimates[best], result.grid, table)
+        image_panels([("exact reference", ref_pic), (f"{best}, {result.spp} spp", est_pic)],
+                     path=outdir / "sphere.png", title="white diffuse sphere lit by the map (one exposure)")
+        files["sphere"] = "sphere.png"
+    doc = result.metrics(source=source, files=files)
+    doc["notes"] = notes
+    atomic_write_text(outdir / "metrics.json", json.dumps(doc, indent=2, allow_nan=False) + "\n")
+    _remove_stale_outputs(outdir, files)
+    return doc

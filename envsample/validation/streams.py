@@ -1,0 +1,53 @@
+"""Random streams and argument checks shared by the validation render, the glossy check and tuning.
+
+Every run of an estimator draws its uniforms from
+``numpy.random.SeedSequence(seed, spawn_key=(purpose, crc32(estimator name), index))``,
+so the same ``seed`` gives bit-identical estimates and adding or removing an estimator
+does not change the others.
+"""
+
+from __future__ import annotations
+
+import zlib
+
+import numpy as np
+
+from envsample.core.latlong import parse_size
+
+__all__ = ["STREAM_PURPOSES", "stream", "check_seed", "check_spp", "check_normals"]
+
+#: Purposes of the random streams (first word of the SeedSequence spawn key).
+STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6}
+
+
+def stream(seed: int, purpose: str, name: str, index: int = 0) -> np.random.SeedSequence:
+    """An independent, reproducible random stream for one run of one estimator."""
+    key = (STREAM_PURPOSES[purpose], zlib.crc32(name.encode("utf-8")), int(index))
+    return np.random.SeedSequence(seed, spawn_key=key)
+
+
+def check_seed(seed) -> int:
+    """A non-negative int seed; None draws fresh entropy (returned, so the run can be repeated bit for bit)."""
+    if seed is None:
+        return int(np.random.SeedSequence().entropy)
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise ValueError(f"seed must be a non-negative integer or None, got {seed!r}")
+    return int(seed)
+
+
+def check_spp(spp, name: str = "spp") -> int:
+    """Samples per normal: an int >= 2 (variances need two samples per normal)."""
+    if isinstance(spp, bool) or not isinstance(spp, (int, np.integer)) or spp < 2:
+        raise ValueError(f"{name} must be an integer >= 2 (variances need two samples per normal), got {spp!r}")
+    return int(spp)
+
+
+def check_normals(normals, name: str = "normals") -> tuple[int, int]:
+    """A normal grid ``(width, height)`` or ``"WxH"`` of at least 2 x 1."""
+    try:
+        wh = parse_size(normals)
+    except (TypeError, ValueError, IndexError) as exc:
+        raise ValueError(f"{name} must be (width, height) or 'WxH', e.g. 128x64 ({exc})") from None
+    if wh is None or wh[0] < 2 or wh[1] < 1:
+        raise ValueError(f"{name} must be at least 2x1 normals, got {normals!r}")
+    return wh
