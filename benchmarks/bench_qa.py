@@ -16,7 +16,8 @@ import time
 
 import numpy as np
 
-from envsample.qa.checks import CHECKS, check_map
+from envsample.qa.checks import CHECKS
+from envsample.qa.run import check_map
 from envsample.sampling.table import build_table
 from envsample.synth.skies import make_sky
 

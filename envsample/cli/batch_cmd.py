@@ -37,7 +37,7 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
     error, 130 interrupted.
     """
     from envsample.pipeline.batch import BatchInterrupted, run_batch
-    from envsample.qa.checks import load_profile
+    from envsample.qa.profile import load_profile
 
     profile = load_profile(profile_path)
     options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,

@@ -30,7 +30,9 @@ def check(maps, profile_path, json_path, html_path, strict, only):
     (with --strict also any warn), 2 unreadable input or usage error.
     Light levels are estimates for asset preparation, not certified lighting calculations.
     """
-    from envsample.qa.checks import check_map, format_report, load_profile, report_to_json
+    from envsample.qa.profile import load_profile
+    from envsample.qa.report import format_report, report_to_json
+    from envsample.qa.run import check_map
 
     profile = load_profile(profile_path)
     ids = None if only is None else [c.strip() for c in only.split(",") if c.strip()]

@@ -26,6 +26,7 @@ __all__ = [
     "PRIMARIES",
     "luminance_weights",
     "SUN_ANGULAR_DIAMETER_RAD",
+    "SUN_ANGULAR_DIAMETER_DEG",
     "SUN_SOLID_ANGLE_SR",
     "FOUR_PI",
     "HALF_FLOAT_MAX",
@@ -38,6 +39,9 @@ HALF_FLOAT_MAX = 65504.0
 
 #: Mean angular diameter of the solar disk seen from Earth, radians (0.533 deg, from memory).
 SUN_ANGULAR_DIAMETER_RAD = math.radians(0.533)
+
+#: The same diameter in degrees (0.533, from memory).
+SUN_ANGULAR_DIAMETER_DEG = math.degrees(SUN_ANGULAR_DIAMETER_RAD)
 
 #: Solid angle of that disk, steradians: 2*pi*(1 - cos(d/2)) ~= 6.8e-5 sr.
 SUN_SOLID_ANGLE_SR = 2.0 * math.pi * (1.0 - math.cos(SUN_ANGULAR_DIAMETER_RAD / 2.0))

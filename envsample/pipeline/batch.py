@@ -495,7 +495,7 @@ def _files_of(folder: Path) -> dict:
 def _build_outputs(task: Mapping, work: Path) -> dict:
     """Write check.json, thumb.png, the table and verify/ into ``work``; return the summary row."""
     from envsample.io.maps import read_map, validate_map
-    from envsample.qa.checks import check_map
+    from envsample.qa.run import check_map
     from envsample.reports.pictures import thumbnail, write_png
     from envsample.sampling.table import build_table
 
@@ -900,7 +900,7 @@ def run_batch(
         batch, or dask missing.  ValueError / ProfileError: bad options.
     """
     from envsample._version import __version__
-    from envsample.qa.checks import load_profile
+    from envsample.qa.profile import load_profile
 
     opts = normalize_options(options)
     prof = load_profile(profile)

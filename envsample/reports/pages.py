@@ -69,7 +69,7 @@ import numpy as np
 from envsample.core.files import atomic_write_bytes
 from envsample.core.text import caution, number
 from envsample.errors import EnvsampleError, MapValidationError
-from envsample.qa.checks import SEVERITIES, Report
+from envsample.qa.results import SEVERITIES, Report
 
 __all__ = [
     "THUMB_WIDTH",
@@ -382,7 +382,7 @@ def _pixels(rep: dict, image):
 
 def _primaries(profile: dict) -> str:
     """Luminance primaries of the report's profile (the defaults when it cannot be loaded again)."""
-    from envsample.qa.checks import load_profile
+    from envsample.qa.profile import load_profile
 
     try:
         return load_profile(profile.get("path")).primaries

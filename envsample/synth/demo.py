@@ -151,7 +151,7 @@ DEMO_VERIFY_SEED = 7
 
 def _check_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.qa.checks import check_map
+        from envsample.qa.run import check_map
         from envsample.reports.pages import check_page
 
         info = ctx.scenes[scene.name]

@@ -30,7 +30,8 @@ import pytest
 
 from envsample.errors import EnvsampleError
 from envsample.io.maps import write_map
-from envsample.qa.checks import CHECKS, check_map
+from envsample.qa.checks import CHECKS
+from envsample.qa.run import check_map
 from envsample.reports.pages import CAUTION, INDEX_ROW_KEYS, THUMB_WIDTH, check_page, index_page, report_row
 from envsample.synth.skies import make_sky
 

@@ -1,0 +1,114 @@
+"""Checks of the light: ``dynamic-range``, ``sun``, ``light-level``.
+
+Horizontal irradiance ``E = integral of L cos(theta) d omega`` over the upper hemisphere,
+exact per pixel row (cos-weighted solid angle of a latitude band,
+``pi/W (sin^2 theta_1 - sin^2 theta_0)``; textbook calculus).  With luminance in cd/m2 this
+is illuminance in lux (CIE S 017/E:2020, ILV, terms 17-21-060 and 17-21-050, from memory).
+Photometric values are estimates for asset preparation, not certified lighting calculations.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from envsample.core.constants import SUN_ANGULAR_DIAMETER_DEG
+from envsample.core.latlong import row_channel_sums
+from envsample.core.text import CAUTION, caution
+from envsample.qa.context import CheckContext
+from envsample.qa.messages import deg, fmt, pct
+from envsample.qa.results import CheckResult
+
+
+def check_dynamic_range(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("dynamic-range")
+    hi = ctx.quantile(s["high_percentile"] / 100.0)
+    lo = ctx.quantile(s["low_percentile"] / 100.0)
+    peak = float(ctx.luminance.max())
+    details = {"high": hi, "low": lo, "max": peak,
+               "high_percentile": s["high_percentile"], "low_percentile": s["low_percentile"]}
+    names = f"p{fmt(s['high_percentile'], 4)}/p{fmt(s['low_percentile'], 4)}"
+    if not hi > 0.0:
+        return CheckResult("dynamic-range", "warn", value=None, threshold=s["warn_below_stops"],
+                           message=f"luminance is zero up to the {names.split('/')[0]}: the map is (nearly) black",
+                           remedy="check the exposure of the export", details=details)
+    if not lo > 0.0:
+        return CheckResult("dynamic-range", "pass", value=None, threshold=s["warn_below_stops"],
+                           message=f"{fmt(s['low_percentile'])}% of the sphere or more is black; {names} undefined",
+                           details=details)
+    stops = math.log2(hi / lo)
+    details["max_stops"] = math.log2(peak / lo)
+    msg = f"{fmt(stops)} stops between {names} of luminance ({fmt(details['max_stops'])} to the maximum)"
+    if stops < s["warn_below_stops"]:
+        return CheckResult("dynamic-range", "warn", value=stops, threshold=s["warn_below_stops"],
+                           message=msg + ": a flat map, its light has no direction",
+                           remedy="check that this is the HDR capture and not a flat placeholder", details=details)
+    return CheckResult("dynamic-range", "pass", value=stops, threshold=s["warn_below_stops"], message=msg,
+                       details=details)
+
+
+def check_sun(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("sun")
+    listed = [e for e in ctx.emitters if e.share >= s["min_share"]][: s["max_listed"]]
+    sunlike = [e for e in listed if e.diameter_deg <= s["compact_max_deg"]]
+    details = {"emitters": [e.to_dict() | {"sun_like": e.diameter_deg <= s["compact_max_deg"]} for e in listed],
+               "sun_diameter_deg": SUN_ANGULAR_DIAMETER_DEG}
+    if not sunlike:
+        if listed:
+            e = listed[0]
+            msg = (f"no sun-like emitter; brightest region at azimuth {deg(e.azimuth_deg)} deg, elevation "
+                   f"{deg(e.elevation_deg)} deg is {deg(e.diameter_deg)} deg across with {pct(e.share)} of the light")
+        else:
+            msg = "no compact emitter stands out (diffuse light)"
+        return CheckResult("sun", "pass", value=None, threshold=s["warn_diameter_deg"], message=msg, details=details)
+    e = sunlike[0]
+    if e.resolved:
+        size = (f"{deg(e.diameter_deg)} deg across, {fmt(e.diameter_deg / SUN_ANGULAR_DIAMETER_DEG)}x the sun's "
+                f"{SUN_ANGULAR_DIAMETER_DEG:.3f} deg")
+    else:
+        size = (f"unresolved in {e.pixels} px (one pixel is {deg(e.pixel_diameter_deg)} deg, "
+                f"the sun {SUN_ANGULAR_DIAMETER_DEG:.3f} deg)")
+    msg = (f"sun-like emitter at azimuth {deg(e.azimuth_deg)} deg, elevation {deg(e.elevation_deg)} deg: "
+           f"{pct(e.share)} of the light, {fmt(e.solid_angle_sr)} sr, {size}")
+    if e.resolved and e.diameter_deg > s["warn_diameter_deg"]:
+        return CheckResult("sun", "warn", value=e.diameter_deg, threshold=s["warn_diameter_deg"],
+                           message=msg + ": glare, bloom or blur spread it",
+                           remedy="expect soft shadows; separate the sun into an analytic light of 0.533 deg for sharp ones",
+                           details=details)
+    return CheckResult("sun", "pass", value=e.diameter_deg, threshold=s["warn_diameter_deg"], message=msg,
+                       details=details)
+
+
+def _cos_weights(height: int, width: int) -> np.ndarray:
+    """Integral of cos(theta) over one pixel of each row above the horizon, sr (H,): pi/W (sin^2 b - sin^2 a)."""
+    edges = np.minimum(np.pi * np.arange(height + 1) / height, math.pi / 2.0)
+    s2 = np.sin(edges) ** 2
+    return (math.pi / width) * np.diff(s2)
+
+
+def check_light_level(ctx: CheckContext) -> CheckResult:
+    s = ctx.settings("light-level")
+    cw = _cos_weights(ctx.height, ctx.width)
+    e = float(ctx.luminance.sum(axis=1, dtype=np.float64) @ cw) * s["scale"]
+    e_rgb = (row_channel_sums(ctx.rgb) * cw[:, None]).sum(axis=0) * s["scale"]
+    details = {"irradiance_up": e, "irradiance_up_rgb": e_rgb.tolist(), "calibrated": s["calibrated"],
+               "caution": caution("light levels")}
+    if not e > 0.0:
+        return CheckResult("light-level", "warn", value=e, threshold=None,
+                           message="no light reaches an up-facing surface: the upper hemisphere is black",
+                           remedy="check the exposure and the orientation of the map", details=details)
+    if not s["calibrated"]:
+        return CheckResult("light-level", "pass", value=e, threshold=None,
+                           message=(f"irradiance on an up-facing surface {fmt(e)} (map units x sr; "
+                                    f"{CAUTION})"),
+                           details=details)
+    details["unit"] = "lx"
+    msg = f"about {fmt(e)} lux on an up-facing surface ({CAUTION})"
+    lo, hi = s["warn_below_lux"], s["warn_above_lux"]
+    if e < lo or e > hi:
+        return CheckResult("light-level", "warn", value=e, threshold=lo if e < lo else hi,
+                           message=msg + f": outside {fmt(lo)}..{fmt(hi)} lux",
+                           remedy="check the calibration scale (cd/m2 per map unit) in the profile",
+                           details=details)
+    return CheckResult("light-level", "pass", value=e, threshold=[lo, hi], message=msg, details=details)

@@ -1,0 +1,78 @@
+"""Tests of envsample.qa.checks.geometry: aspect, resolution, seam, poles, orientation.
+
+Sources of the expected values (named again beside each test):
+- The traditional overcast sky L = Lz (1 + 2 cos theta) / 3 (Moon & Spencer 1942,
+  CIE standard overcast sky, CIE S 003/E:1996): horizontal irradiance 7 pi / 9 Lz
+  (closed form; cross-checked with scipy.integrate.quad).
+- A uniform sky L: irradiance pi L on any surface (textbook).
+- Moments of uniform-sphere sampling of the clamped cosine, E[max(0, cos)^k] = 1/(2(k+1))
+  (textbook), for the relative RMSE of table-only sampling of a uniform map.
+- The balance heuristic (Veach 1997, eq. 9.4 and section 9.2): in multi-sample MIS
+  with half the samples from the table, a sample term is at most twice the table-only
+  term L cos / p_table <= 2 integral(L).
+- IEEE 754 binary16: largest finite value 65504.  IEC 61966-2-1: the sRGB encoding.
+- The sun's mean angular diameter 0.533 deg (from memory; envsample.constants).
+
+Maps are 256x128 or smaller except where a resolved sun disk is needed.  The test
+profile lowers the resolution floor to these sizes; everything else is the default.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
+
+from envsample.qa.run import check_map
+
+
+def test_seam_from_an_exposure_ramp_that_does_not_wrap(profile):
+    """Stitched halves of different exposure, blended inside the image: the only step is at the seam."""
+    u = (np.arange(W) + 0.5) / W
+    img = sunny() * (1.0 + 0.3 * u)[None, :, None].astype(np.float32)  # a 23 % step at the seam
+    report = check_map(img, profile=profile)
+    assert non_pass(report) == {"seam": "fail"}
+    assert report["seam"].value > 0.9  # nearly every lit row steps
+    assert report["seam"].remedy
+
+
+
+def test_seam_not_raised_by_rolling_the_map(profile):
+    """np.roll keeps the wrap-around continuous: moving the seam elsewhere must not create one."""
+    img = np.roll(sunny(), W // 3, axis=1)
+    assert check_map(img, profile=profile)["seam"].severity == "pass"
+
+
+
+def test_upside_down_map_warns_orientation_only(profile):
+    report = check_map(np.flipud(sunny()).copy(), profile=profile)
+    assert non_pass(report) == {"orientation": "warn"}
+    assert report["orientation"].value < 0.5
+    assert report.exit_code() == 0 and report.exit_code(strict=True) == 1
+
+
+
+def test_square_map_fails_aspect_only(profile):
+    report = check_map(sunny(128, 128), profile=profile)
+    assert non_pass(report) == {"aspect": "fail"}
+    assert report["aspect"].value == 1.0
+
+
+
+def test_non_constant_pole_row_fails_poles_only(profile):
+    img = sunny()
+    phi = (np.arange(W) + 0.5) / W * 2 * np.pi - np.pi
+    img[0] *= (1.0 + 0.9 * np.sin(phi))[:, None].astype(np.float32)
+    report = check_map(img, profile=profile)
+    assert non_pass(report) == {"poles": "fail"}
+    # std/mean of 1 + 0.9 sin(phi) over a full period is 0.9 / sqrt(2).
+    assert report["poles"].details["top_cv"] == pytest.approx(0.9 / math.sqrt(2), rel=1e-3)
+
+
+
+def test_dark_low_resolution_map_fails_resolution_with_defaults():
+    report = check_map(sunny(32), checks=["resolution"])
+    assert report["resolution"].severity == "fail"
+    assert check_map(sunny(128), checks=["resolution"])["resolution"].severity == "warn"

@@ -1,0 +1,60 @@
+"""Tests of envsample.qa.checks.pixels: nan, inf, negative.
+
+Sources of the expected values (named again beside each test):
+- The traditional overcast sky L = Lz (1 + 2 cos theta) / 3 (Moon & Spencer 1942,
+  CIE standard overcast sky, CIE S 003/E:1996): horizontal irradiance 7 pi / 9 Lz
+  (closed form; cross-checked with scipy.integrate.quad).
+- A uniform sky L: irradiance pi L on any surface (textbook).
+- Moments of uniform-sphere sampling of the clamped cosine, E[max(0, cos)^k] = 1/(2(k+1))
+  (textbook), for the relative RMSE of table-only sampling of a uniform map.
+- The balance heuristic (Veach 1997, eq. 9.4 and section 9.2): in multi-sample MIS
+  with half the samples from the table, a sample term is at most twice the table-only
+  term L cos / p_table <= 2 integral(L).
+- IEEE 754 binary16: largest finite value 65504.  IEC 61966-2-1: the sRGB encoding.
+- The sun's mean angular diameter 0.533 deg (from memory; envsample.constants).
+
+Maps are 256x128 or smaller except where a resolved sun disk is needed.  The test
+profile lowers the resolution floor to these sizes; everything else is the default.
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
+
+from envsample.qa.run import check_map
+
+
+def test_nan_pixels_fail_nan_only(profile):
+    img = sunny()
+    img[10, 20, 1] = np.nan
+    img[90, 200] = np.nan
+    report = check_map(img, profile=profile)
+    assert non_pass(report) == {"nan": "fail"}
+    c = report["nan"]
+    assert c.value == 2 and c.details["first_row"] == 10 and c.details["first_column"] == 20
+    # The JSON report stays valid JSON (no NaN literals).
+    json.dumps(report.to_dict(), allow_nan=False)
+
+
+
+def test_inf_pixels_fail_inf_only(profile):
+    img = sunny()
+    img[5, 5, 0] = np.inf
+    report = check_map(img, profile=profile)
+    assert non_pass(report) == {"inf": "fail"}
+
+
+
+def test_negative_values_warn_then_fail_with_area(profile):
+    img = sunny()
+    img[60, 10, 2] = -0.01
+    assert non_pass(check_map(img, profile=profile)) == {"negative": "warn"}
+    img[50:70, :, 2] = -0.01  # about 24 % of the sphere
+    report = check_map(img, profile=profile)
+    assert report["negative"].severity == "fail"
+    # Rows 50..69 cover (cos theta_50 - cos theta_70) / 2 of the sphere (exact band area / 4 pi).
+    assert report["negative"].value == pytest.approx((np.cos(np.pi * 50 / 128) - np.cos(np.pi * 70 / 128)) / 2)
