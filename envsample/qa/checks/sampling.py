@@ -15,10 +15,14 @@ import numpy as np
 
 from envsample.core.color import luminance
 from envsample.core.constants import SUN_ANGULAR_DIAMETER_DEG, SUN_SOLID_ANGLE_SR
+from envsample.core.latlong import reduce_power
 from envsample.qa.context import CheckContext
 from envsample.qa.emitters import Emitter
 from envsample.qa.messages import fmt, pct
 from envsample.qa.results import CheckResult
+from envsample.reference.irradiance import reference_irradiance
+from envsample.sampling.table import build_table
+from envsample.validation.render import render_estimates
 
 #: The MIS estimator the sampling check always reports (multi-sample, balance heuristic; Veach 1997, ch. 9).
 RECOMMENDED_ESTIMATOR = "mis-balance"
@@ -34,32 +38,36 @@ def _fibonacci_normals(n: int) -> np.ndarray:
     return np.column_stack([r * np.cos(phi), y, r * np.sin(phi)])
 
 
-def _estimate_errors(table, normals, ref, *, estimator, spp, repeats, seed, primaries) -> dict:
-    """Relative RMSE and peak sample share of one estimator over ``repeats`` independent estimates per normal.
+#: Figures of each estimator the check reports (those of the validation render that do not depend on timing).
+_FIGURES = ("relative_rmse", "mean_bias", "mean_bias_se", "peak_sample_share", "firefly_index")
 
-    Both are pooled over the normals and scaled by the mean reference irradiance, so a
-    normal facing black ground (E ~ 0) does not make them meaningless:
+
+def _estimate_errors(table, normals, reference, names, *, spp: int, repeats: int, seed: int) -> dict:
+    """Figures of each estimator over ``repeats`` independent estimates per normal, from the validation render.
+
+    :func:`envsample.validation.render.render_estimates` runs the estimators (the code
+    ``envsample verify`` uses) on every normal repeated ``repeats`` times with equal
+    weights, so its figures pool normals and repeats and are scaled by the mean
+    reference irradiance; a normal facing black ground (E ~ 0) does not make them
+    meaningless:
 
     * relative RMSE = sqrt(mean over normals and repeats of (E_est - E_ref)^2) / mean(E_ref);
     * peak sample share = largest single-sample term of one estimate (contribution / spp)
       divided by mean(E_ref): above 1, one sample alone outshines a typical pixel;
-    * firefly index = largest sample / mean sample, pooled (:func:`envsample.mis.firefly_index`,
-      the same figure ``envsample verify`` reports).
+    * firefly index = largest sample / mean sample, pooled (the figure ``envsample verify`` reports).
     """
-    from envsample.estimation.estimators import estimate_irradiance, firefly_index
-
     n = normals.shape[0]
-    est, samples = estimate_irradiance(table, np.repeat(normals, repeats, axis=0), estimator=estimator, spp=spp,
-                                       seed=seed, return_samples=True)
-    y = luminance(est.astype(np.float32), primaries).astype(np.float64).reshape(n, repeats)
-    mse = np.mean((y - ref[:, None]) ** 2, axis=1)
-    scale = float(ref.mean())
-    return {
-        "relative_rmse": float(math.sqrt(mse.mean()) / scale),
-        "peak_sample_share": float(np.max(samples.contributions) / spp / scale),
-        "firefly_index": float(firefly_index(samples.contributions)),
-        "worst_normal": int(np.argmax(mse)),
-    }
+    many = np.repeat(normals, repeats, axis=0)
+    ref = np.repeat(np.asarray(reference, dtype=np.float32), repeats, axis=0)
+    results = render_estimates(table, many, np.ones(n * repeats), ref, names, spp=spp, seed=seed, purpose="qa")
+    y_ref = luminance(np.asarray(reference, dtype=np.float32), table.primaries, dtype=np.float64)
+    out = {}
+    for name, r in results.items():
+        y = luminance(r.estimate, table.primaries, dtype=np.float64).reshape(n, repeats)
+        figures = {k: r.entry[k] for k in _FIGURES}
+        figures["worst_normal"] = int(np.argmax(np.mean((y - y_ref[:, None]) ** 2, axis=1)))
+        out[name] = figures
+    return out
 
 
 def _min_table_width(e: Emitter) -> int:
@@ -77,14 +85,10 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
     """Noise of cosine-only, table-only and MIS irradiance estimates on a reduced copy of the map.
 
     The map and its table are reduced together (power-preserving box filter of
-    :func:`envsample.table.reduce_power`): the table then matches its map, as the
+    :func:`envsample.core.latlong.reduce_power`): the table then matches its map, as the
     default full-resolution table matches the full map, and the cost does not grow
-    with the map.  References are exact (:func:`envsample.reference.reference_irradiance`).
+    with the map.  References are exact (:func:`envsample.reference.irradiance.reference_irradiance`).
     """
-    from envsample.core.latlong import reduce_power
-    from envsample.reference.irradiance import reference_irradiance
-    from envsample.sampling.table import build_table
-
     s = ctx.settings("sampling")
     prim = ctx.profile.primaries
     size = (min(s["table_width"], ctx.width), min(s["table_height"], ctx.height))
@@ -94,13 +98,10 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
     small = ctx.rgb if size == (ctx.width, ctx.height) else reduce_power(ctx.rgb, size)
     table = build_table(small, primaries=prim)
     normals = _fibonacci_normals(s["normals"])
-    ref = luminance(reference_irradiance(small, normals).astype(np.float32), prim).astype(np.float64)
+    ref = reference_irradiance(small, normals)
     graded = s["estimator"]
     names = list(dict.fromkeys(["cosine", "table", RECOMMENDED_ESTIMATOR, graded]))
-    seeds = np.random.SeedSequence(s["seed"]).spawn(len(names))
-    errors = {name: _estimate_errors(table, normals, ref, estimator=name, spp=s["spp"], repeats=s["repeats"],
-                                     seed=seed, primaries=prim)
-              for name, seed in zip(names, seeds)}
+    errors = _estimate_errors(table, normals, ref, names, spp=s["spp"], repeats=s["repeats"], seed=s["seed"])
     rec = errors[graded]
     advice = []
     mis = errors[RECOMMENDED_ESTIMATOR]
@@ -119,7 +120,8 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
                           f"of {SUN_ANGULAR_DIAMETER_DEG:.3f} deg and remove it from the map")
     details = {"spp": s["spp"], "repeats": s["repeats"], "normals": s["normals"], "seed": s["seed"],
                "table_size": list(size), "estimator": graded,
-               "mean_reference": float(ref.mean()), "estimators": errors, "advice": advice}
+               "mean_reference": float(luminance(ref.astype(np.float32), prim, dtype=np.float64).mean()),
+               "estimators": errors, "advice": advice}
     summary = ", ".join(f"{k} {fmt(v['relative_rmse'])}" for k, v in errors.items())
     ff = ", ".join(f"{k} {fmt(v['firefly_index'])}" for k, v in errors.items())
     ps = ", ".join(f"{k} {fmt(v['peak_sample_share'])}" for k, v in errors.items())
