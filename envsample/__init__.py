@@ -69,7 +69,7 @@ _EXPORTS = {
     "estimate_irradiance": "estimation.estimators",
     "estimate_glossy": "estimation.estimators",
     "estimators": "estimation.estimators",
-    "mis_weights": "estimation.estimators",
+    "mis_weights": "estimation.heuristics",
     "firefly_index": "estimation.estimators",
     "EstimatorSamples": "estimation.estimators",
     # QA
