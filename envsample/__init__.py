@@ -64,7 +64,7 @@ _EXPORTS = {
     "write_png": "reports.pictures",
     # strategies and MIS
     "make_strategy": "sampling.strategies",
-    "make_frame": "sampling.strategies",
+    "make_frame": "sampling.frames",
     "TableStrategy": "sampling.strategies",
     "estimate_irradiance": "estimation.estimators",
     "estimate_glossy": "estimation.estimators",

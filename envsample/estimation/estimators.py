@@ -58,15 +58,9 @@ import numpy as np
 from envsample.core.color import luminance
 from envsample.core.compat import renamed_keywords
 from envsample.estimation.heuristics import heuristic_name, mis_weights, sample_counts
-from envsample.sampling.strategies import (
-    CosineHemisphere,
-    Frame,
-    GGXReflection,
-    TableStrategy,
-    UniformHemisphere,
-    UniformSphere,
-    make_frame,
-)
+from envsample.sampling.frames import Frame, make_frame
+from envsample.sampling.ggx import GGXReflection
+from envsample.sampling.strategies import CosineHemisphere, TableStrategy, UniformHemisphere, UniformSphere
 
 __all__ = [
     "Combination",

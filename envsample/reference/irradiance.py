@@ -125,7 +125,8 @@ from envsample.core.latlong import parse_size, reduce_power
 from envsample.core.sphere import UP_AXES, orthonormal_basis, row_solid_angles
 from envsample.errors import MapValidationError
 from envsample.io.maps import map_pixels
-from envsample.sampling.strategies import MIN_ROUGHNESS, Frame, GGXReflection
+from envsample.sampling.frames import MIN_ROUGHNESS, Frame
+from envsample.sampling.ggx import GGXReflection
 
 __all__ = [
     "reference_irradiance",
