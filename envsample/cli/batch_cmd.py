@@ -36,7 +36,8 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
     1 any map failed or could not be read (with --strict also any warning), 2 usage
     error, 130 interrupted.
     """
-    from envsample.pipeline.batch import BatchInterrupted, run_batch
+    from envsample.pipeline.outcomes import BatchInterrupted
+    from envsample.pipeline.batch import run_batch
     from envsample.qa.profile import load_profile
 
     profile = load_profile(profile_path)

@@ -12,7 +12,8 @@ import warnings
 
 import click
 
-from envsample.cli.app import flags, one_line
+from envsample.cli.app import flags
+from envsample.core.text import one_line
 from envsample.errors import EnvsampleWarning
 
 
