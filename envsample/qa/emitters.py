@@ -121,7 +121,9 @@ def find_emitters(ctx: CheckContext) -> list[Emitter]:
     labels, n = ctx.emitter_labels
     if n == 0:
         return []
-    rows, cols = np.nonzero(labels)
+    band = ctx.emitter_rows  # labels are zero outside these rows
+    local, cols = np.nonzero(labels[band])
+    rows = band[local]
     lab = labels[rows, cols]
     y = lum[rows, cols].astype(np.float64)
     omega_px = ctx.row_solid_angles[rows]
@@ -174,6 +176,12 @@ def ring(mask: np.ndarray) -> np.ndarray:
     return grown & ~mask
 
 
-def emitter_mask(ctx: CheckContext, e: Emitter) -> np.ndarray | None:
-    region = ctx.emitter_labels[0] == e.label
-    return region if region.any() else None
+def emitter_mask(ctx: CheckContext, e: Emitter) -> tuple[np.ndarray, np.ndarray] | None:
+    """``(rows, mask)``: the rows (int, ascending) that hold the emitter and its mask there (bool (n, W))."""
+    labels = ctx.emitter_labels[0]
+    rows = ctx.emitter_rows
+    if rows.size == 0:
+        return None
+    band = labels[rows] == e.label
+    keep = band.any(axis=1)
+    return (rows[keep], band[keep]) if keep.any() else None

@@ -49,8 +49,17 @@ def test_seam_not_raised_by_rolling_the_map(profile):
 def test_upside_down_map_warns_orientation_only(profile):
     report = check_map(np.flipud(sunny()).copy(), profile=profile)
     assert non_pass(report) == {"orientation": "warn"}
-    assert report["orientation"].value < 0.5
+    assert report["orientation"].value < 50.0 and report["orientation"].unit == "%"
+    assert "envsample fix --flip" in report["orientation"].remedy
     assert report.exit_code() == 0 and report.exit_code(strict=True) == 1
+
+
+def test_profile_sets_the_severity_of_an_upside_down_map(profile_path, tmp_path):
+    """Issue 9: a library that never takes upside-down maps can make the check fail."""
+    p = tmp_path / "strict.toml"
+    p.write_text(profile_path.read_text() + '\n[orientation]\nseverity = "fail"\n')
+    report = check_map(np.flipud(sunny()).copy(), profile=p)
+    assert non_pass(report) == {"orientation": "fail"}
 
 
 

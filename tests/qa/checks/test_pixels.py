@@ -56,5 +56,6 @@ def test_negative_values_warn_then_fail_with_area(profile):
     img[50:70, :, 2] = -0.01  # about 24 % of the sphere
     report = check_map(img, profile=profile)
     assert report["negative"].severity == "fail"
-    # Rows 50..69 cover (cos theta_50 - cos theta_70) / 2 of the sphere (exact band area / 4 pi).
-    assert report["negative"].value == pytest.approx((np.cos(np.pi * 50 / 128) - np.cos(np.pi * 70 / 128)) / 2)
+    # Rows 50..69 cover (cos theta_50 - cos theta_70) / 2 of the sphere (exact band area / 4 pi), in percent.
+    assert report["negative"].unit == "%"
+    assert report["negative"].value == pytest.approx(50 * (np.cos(np.pi * 50 / 128) - np.cos(np.pi * 70 / 128)))
