@@ -131,13 +131,13 @@ class CheckContext:
         mask = np.zeros((self.height, self.width), dtype=bool)
         rows = self.emitter_rows
         if rows.size:
-            mask[rows] = self.luminance[rows] > emitter_level(self)
+            mask[rows] = self.luminance[rows] > np.float64(emitter_level(self))
         return label_wrapped(mask)
 
     @functools.cached_property
     def emitter_rows(self) -> np.ndarray:
         """int (n,): rows that hold a pixel above the emitter level (ascending)."""
-        return np.nonzero(self.scan.row_luminance_max > emitter_level(self))[0]
+        return np.nonzero(self.scan.row_luminance_max > np.float64(emitter_level(self)))[0]
 
     @functools.cached_property
     def pixel_directions(self) -> tuple[np.ndarray, np.ndarray]:
