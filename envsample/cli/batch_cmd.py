@@ -22,13 +22,15 @@ from envsample.qa.profile import load_profile
               help="Worker processes (default: the cores available; 0 runs in this process).")
 @click.option("--verify", is_flag=True, help="Also run a small validation render per map.")
 @click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
+@click.option("--fix", is_flag=True, help="Apply the safe remedies of 'envsample fix --auto' before building "
+              "(the sources are never changed; fixed.exr and fix.json join each repaired map's folder).")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
               help="QA thresholds (TOML); default: the built-in profile.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
 @table_options
-def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
+def batch(sources, outdir, workers, verify, force, fix, scheduler, profile_path, strict, size, primaries, mapping,
           uniform_mix, up, rotation_deg):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
@@ -54,7 +56,7 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
 
     try:
         with bar:
-            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force,
+            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force, fix=fix,
                                scheduler=scheduler, options=options, profile=profile, progress=progress)
     except BatchInterrupted as e:
         c = e.result.counts

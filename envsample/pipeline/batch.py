@@ -346,6 +346,7 @@ def run_batch(
     workers: int | None = None,
     verify: bool = False,
     force: bool = False,
+    fix: bool = False,
     scheduler=None,
     options: Mapping | None = None,
     profile=None,
@@ -371,6 +372,9 @@ def run_batch(
         :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.
     force : bool
         Redo maps whose outputs are up to date.
+    fix : bool
+        Apply the safe remedies of ``envsample fix --auto`` to each map before its table is
+        built (the source is never changed; ``fixed.exr`` and ``fix.json`` join its folder).
     scheduler : str or dask.distributed.Client, optional
         Send the tasks to a Dask cluster (``"tcp://host:8786"`` or a Client) instead
         of local processes; needs ``pip install envsample[dask]`` and a file system
@@ -425,6 +429,7 @@ def run_batch(
         "tool_version": __version__,
         "build": opts,
         "verify": dict(VERIFY_SETTINGS) if verify else None,
+        "fix": bool(fix),
         "thumb_width": THUMB_WIDTH,
         "profile": prof.to_dict()["settings"],
     }
@@ -460,7 +465,7 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
         tasks = [(i, {"source": os.fspath(paths[i].resolve()), "display": os.fspath(paths[i]),
                       "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(out),
                       "staging": os.fspath(staging), "options": key_doc["build"],
-                      "verify": key_doc["verify"] is not None, "profile": profile, "key": key,
+                      "verify": key_doc["verify"] is not None, "fix": key_doc["fix"], "profile": profile, "key": key,
                       "key_doc": key_doc, "version": version})
                  for i in plan.todo]
         jobs = runner(tasks, task)
