@@ -67,6 +67,24 @@ def _fit_lattice(levels: np.ndarray, *, max_code: int | None = None) -> dict | N
     return None
 
 
+def _fit_linear_16(levels: np.ndarray) -> dict | None:
+    """The linear lattice (step ``d``, at most 65536 steps up to the brightest level) the levels sit on, or None.
+
+    Every gap between neighbouring levels must be a whole multiple of the smallest gap (within
+    :data:`_FIT_TOLERANCE`).  Gaps are compared rather than the levels themselves because a
+    gap of a few codes keeps its precision in float32 (24 significant bits) while the code of a
+    level near 65535 does not.
+    """
+    gaps = np.diff(levels)
+    step = float(np.min(gaps))
+    if not step > 0 or levels[-1] / step > 65536.0 * 1.01:
+        return None
+    m = gaps / step
+    if float(np.max(np.abs(m - np.round(m)))) > _FIT_TOLERANCE:
+        return None
+    return {"lattice": "linear 16-bit (k/65535)", "scale": step * 65535.0, "fitted_levels": int(levels.size)}
+
+
 def lattice_evidence(ctx: CheckContext, s: dict) -> list[dict]:
     """Per channel with a coarse lattice: its level count, span in stops and the fitted lattice."""
     sub = ctx.subsample
@@ -90,10 +108,11 @@ def lattice_evidence(ctx: CheckContext, s: dict) -> list[dict]:
             entry["bits"] = 8
             entry.update(fit)
             out.append(entry)
-        elif (ctx.image.pixel_type == "float" and n <= s["max_levels_16bit"]
-              and sub.shape[0] >= 4 * s["max_levels_16bit"]):
-            entry.update(bits=16, lattice="at most 65536 levels (16-bit)")
-            out.append(entry)
+        elif ctx.image.pixel_type == "float" and n <= s["max_levels_16bit"]:
+            fit = _fit_linear_16(levels)
+            if fit is not None:
+                entry.update(bits=16, **fit)
+                out.append(entry)
     return out
 
 
