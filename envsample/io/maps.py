@@ -751,7 +751,8 @@ def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", 
     a = None if alpha is None else _as_alpha(alpha, arr.shape[:2])
     chroma = None if chromaticities is None else _check_chromaticities(chromaticities)
     if ext in _EXR_EXTENSIONS:
-        writer = _exr_writer(p, arr, pixel_type, compression, chroma, a, attributes)
+        extra = {"attributes": attributes} if attributes else {}
+        writer = _exr_writer(p, arr, pixel_type, compression, chroma, a, **extra)
     else:
         writer = _hdr_writer(p, arr, chroma, a)
     parent = p.parent

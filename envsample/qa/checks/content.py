@@ -61,8 +61,11 @@ def _fit_lattice(levels: np.ndarray, *, max_code: int | None = None) -> dict | N
                 k = k[k < max_code]
             if k.size < min(_MIN_FITTED, levels.size):
                 continue
-            # Every level is a positive code (code 0 is black, left out of the levels).
-            if np.round(k).min() >= 1 and float(np.max(np.abs(k - np.round(k)))) <= _FIT_TOLERANCE:
+            # Every level is its own positive code (code 0 is black, left out of the levels; levels
+            # crowding into one code are no lattice).
+            nearest = np.round(k)
+            if (nearest.min() >= 1 and float(np.max(np.abs(k - nearest))) <= _FIT_TOLERANCE
+                    and np.unique(nearest).size == nearest.size):
                 return {"lattice": name, "scale": scale, "brightest_code": int(kmax), "fitted_levels": int(k.size)}
     return None
 
