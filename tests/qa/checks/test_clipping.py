@@ -125,3 +125,11 @@ def test_a_smooth_unclipped_maximum_is_no_pile_up(profile):
     """Near a smooth maximum the values thin out evenly (textbook calculus): no excess in the top band."""
     c = check_map(_glare_sky(512).astype(np.float32), profile=profile, checks=["clipping"])["clipping"]
     assert c.severity == "pass" and "no pile-up" in c.message
+
+
+def test_low_and_white_balanced_clips_fail_clipping_and_nothing_else(profile):
+    img = _glare_sky(256)
+    low = np.minimum(img, np.quantile(img.max(axis=2), 0.95)).astype(np.float32)
+    balanced = (np.minimum(img, 20.0) * np.array([1.0, 0.8, 0.55])).astype(np.float32)
+    for m in (low, balanced):
+        assert non_pass(check_map(m, profile=profile)) == {"clipping": "fail"}

@@ -102,3 +102,8 @@ def test_an_upper_hemisphere_stretched_to_two_to_one_is_recognised(profile):
 def test_a_full_sphere_is_not_a_hemisphere(profile):
     c = check_map(sunny(), profile=profile)["hemisphere"]
     assert c.severity == "pass" and c.unit == "ratio"
+
+
+def test_an_upper_hemisphere_fails_aspect_and_hemisphere_only(profile):
+    report = check_map(sunny(ground_albedo=0.0)[: H // 2].copy(), profile=profile)
+    assert non_pass(report) == {"aspect": "fail", "hemisphere": "fail"}
