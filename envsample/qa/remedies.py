@@ -7,8 +7,7 @@ identical).  :data:`REMEDIES` maps each name to its function, :func:`apply_remed
 :data:`FIXES` says which remedy answers which check and whether ``--auto`` may apply it.
 
 Methods: nearest-pixel filling by the Euclidean distance transform (``scipy.ndimage
-.distance_transform_edt``; Maurer, C. R., Qi, R. and Raghavan, V. (2003). A linear time algorithm
-for computing exact Euclidean distance transforms. IEEE TPAMI 25(2), 265-270); the pole rows set to
+.distance_transform_edt``; Maurer, Qi & Raghavan 2003, see ``docs/references.md``); the pole rows set to
 their mean (each pole row images one direction); a linear cross-fade of the seam (common practice);
 a Lambertian ground under a padded sky, radiance albedo x E / pi (textbook); exposure scaled so that
 a white diffuse surface facing up reflects the target radiance E / pi.
@@ -22,6 +21,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from envsample.core.constants import luminance_weights
 
 
 @dataclass
@@ -161,10 +161,11 @@ def _irradiance_up(rgb: np.ndarray, weights: np.ndarray) -> float:
     return float((sums @ weights) @ cw[rows])
 
 
-def scale_exposure(rgb, *, target: float = 1.0, weights=(0.2126, 0.7152, 0.0722)) -> Repair:
+def scale_exposure(rgb, *, target: float = 1.0, weights=None) -> Repair:
     """Scale the map so that a white diffuse surface facing up reflects ``target`` (E / pi = target).
 
-    ``weights`` are the luminance weights (BT.709 by default).  The scale is computed in
+    ``weights`` are the luminance weights (default: BT.709, :func:`envsample.core.constants.luminance_weights`).
+    The scale is computed in
     float64 and applied in float64 bands, so maps near the float32 limits (1e-45, 3e38) are
     rescaled without overflow.  Every pixel changes.
     """
@@ -173,7 +174,8 @@ def scale_exposure(rgb, *, target: float = 1.0, weights=(0.2126, 0.7152, 0.0722)
         raise ValueError(f"target must be a positive number, got {target!r}")
     with np.errstate(invalid="ignore", over="ignore"):
         clean = np.where(np.isfinite(a) & (a > 0), a, 0.0)
-        e = _irradiance_up(clean, np.asarray(weights, dtype=np.float64))
+        w = luminance_weights("bt709") if weights is None else weights
+        e = _irradiance_up(clean, np.asarray(w, dtype=np.float64))
     if not e > 0:
         raise ValueError("no light reaches an up-facing surface (the upper hemisphere is black): "
                          "the exposure cannot be set; flip or re-export the map")

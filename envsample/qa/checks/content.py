@@ -127,13 +127,17 @@ def display_evidence(ctx: CheckContext, s: dict) -> dict:
         rows = np.nonzero(ctx.scan.row_channel_max.max(axis=1) >= 1.0)[0]
         at_max = (ctx.rgb[rows] >= 1.0).any(axis=2)
         share = float((at_max * ctx.row_solid_angles[rows, None]).sum() / (4.0 * math.pi))
-    hi, lo = ctx.quantile(0.999, lit=True), ctx.quantile(0.01, lit=True)
+    # The same percentiles as the dynamic-range check, so that the two messages agree.
+    dr = ctx.settings("dynamic-range")
+    hi = ctx.quantile(dr["high_percentile"] / 100.0, lit=True)
+    lo = ctx.quantile(dr["low_percentile"] / 100.0, lit=True)
     stops = math.log2(hi / lo) if lo > 0 and hi > 0 else None
     # A map of a few flat regions (a furnace test, a synthetic studio) is not a picture.
     levels = max(int(np.unique(ctx.subsample[:, c]).size) for c in range(3)) if top == 1.0 else 0
     signs = (top == 1.0 and share >= s["display_max_share"] and levels >= s["min_levels"]
              and stops is not None and stops < s["display_max_stops"])
-    return {"max": top, "share_at_max": share, "stops_p99.9_p1": stops, "display_referred": bool(signs)}
+    names = f"p{fmt(dr['high_percentile'], 4)}/p{fmt(dr['low_percentile'], 4)}"
+    return {"max": top, "share_at_max": share, "stops": stops, "percentiles": names, "display_referred": bool(signs)}
 
 
 def check_hdr(ctx: CheckContext) -> CheckResult:
@@ -160,14 +164,14 @@ def check_hdr(ctx: CheckContext) -> CheckResult:
         return CheckResult(
             "hdr", "fail", value=False, threshold=True,
             message=(f"{im.pixel_type} data from a {e['bits']}-bit pipeline: distinct levels per channel {chans} "
-                     f"over {fmt(e['span_stops'])} stops, on the {what}{extra}"),
+                     f"spanning {fmt(e['span_stops'])} stops, on the {what}{extra}"),
             remedy=remedy, details=details)
     if display["display_referred"]:
         return CheckResult(
             "hdr", "fail", value=False, threshold=True,
             message=(f"{im.pixel_type} data look display-referred: maximum exactly 1.0 over "
-                     f"{pct(display['share_at_max'])} of the sphere and only {fmt(display['stops_p99.9_p1'])} stops "
-                     "between the 99.9th and 1st percentiles of lit luminance"),
+                     f"{pct(display['share_at_max'])} of the sphere and only {fmt(display['stops'])} stops "
+                     f"between {display['percentiles']} of lit luminance (as dynamic-range measures)"),
             remedy=remedy, details=details)
     return CheckResult("hdr", "pass", value=True, threshold=True,
                        message=f"scene-referred high dynamic range data ({im.pixel_type}), brightest value {fmt(peak)}",
