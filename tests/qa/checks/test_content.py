@@ -82,3 +82,14 @@ def test_rgbe_hdr_files_pass_hdr(tmp_path, profile, make):
     report = check_map(path, profile=profile)
     assert report.image["pixel_type"] == "rgbe"
     assert report["hdr"].severity == "pass", report["hdr"].message
+
+
+@pytest.mark.parametrize("scale", [1.0, 20.0])
+def test_linear_eight_bit_data_in_an_rgbe_file_fails_hdr(tmp_path, profile, scale):
+    """The fit runs on the levels RGBE keeps exactly enough (codes below 32): 8-bit data stay 8-bit data.
+    (sRGB-coded 8-bit data in RGBE are caught only when display-referred signs remain: few of their
+    levels fall below code 32.)"""
+    path = tmp_path / "ldr.hdr"
+    write_map(path, eight_bit(_rooftop(512), scale=scale))
+    c = check_map(path, profile=profile, checks=["hdr"])["hdr"]
+    assert c.severity == "fail" and "8-bit pipeline" in c.message
