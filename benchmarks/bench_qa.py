@@ -69,7 +69,7 @@ def main():
         print(f"  envsample check        {t_cli:7.3f} s   {t_cli / t_decode:5.2f}x decoding (goal <= 2x)")
     # Each check alone (checks share the scan and other lazily computed quantities, so alone they cost more).
     for cid in [c for c in CHECKS if c != "read"]:
-        t = best(lambda: check_map(rgb, checks=[cid]), repeats=1)
+        t = best(lambda cid=cid: check_map(rgb, checks=[cid]), repeats=1)
         print(f"  {cid:<16} alone {t:7.3f} s")
 
 

@@ -14,12 +14,14 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from envsample.core.constants import luminance_weights
+import numpy as np
+
+from envsample.core.constants import HALF_FLOAT_MAX, luminance_weights
 from envsample.core.files import atomic_write_text, refuse_inputs_as_outputs
 from envsample.core.schema import Schema
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError
-from envsample.io.maps import file_sha256, read_map, write_map
+from envsample.io.maps import read_map, write_map
 from envsample.qa.profile import load_profile
 from envsample.qa.remedies import UNFIXABLE, apply_remedy, plan_remedies
 from envsample.qa.run import check_map
@@ -68,6 +70,13 @@ class FixResult:
             "after": summary(self.after),
             "caution": caution("photometric values"),
         }
+
+
+def output_pixel_type(image, rgb) -> str:
+    """EXR pixel type of a repaired map: half when the source was half and the result fits, else float."""
+    with np.errstate(invalid="ignore"):
+        fits = image.pixel_type == "half" and bool(np.nanmax(np.where(np.isfinite(rgb), rgb, 0.0)) < HALF_FLOAT_MAX)
+    return "half" if fits else "float"
 
 
 def header_record(image, records: list) -> str:
@@ -176,8 +185,7 @@ def fix_map(source, output, *, remedies: Mapping | None = None, auto: bool = Fal
         why = f" ({'; '.join(k['reason'] for k in skipped)})" if skipped else ""
         raise ValueError(f"{src}: no remedy to apply{why}: the checks propose none that --auto may apply{hint}")
     if pixel_type is None:
-        fits = image.pixel_type == "half" and float(rgb.max(initial=0.0)) < 65504.0
-        pixel_type = "half" if fits else "float"
+        pixel_type = output_pixel_type(image, rgb)
     write_map(out, rgb, pixel_type=pixel_type, chromaticities=image.chromaticities,
               attributes={HEADER_ATTRIBUTE: header_record(image, records)})
     after = check_map(out, profile=prof)

@@ -153,7 +153,14 @@ def _auto_fix(image, report, work: Path, profile):
     import dataclasses
 
     from envsample.io.maps import write_map
-    from envsample.pipeline.fix import FIX_LOG_SCHEMA, HEADER_ATTRIBUTE, FixRefusedError, header_record, repair_image
+    from envsample.pipeline.fix import (
+        FIX_LOG_SCHEMA,
+        HEADER_ATTRIBUTE,
+        FixRefusedError,
+        header_record,
+        output_pixel_type,
+        repair_image,
+    )
     from envsample.qa.run import check_map
 
     try:
@@ -162,7 +169,7 @@ def _auto_fix(image, report, work: Path, profile):
         return image, report, "not fixed: " + str(e).split(": ", 1)[-1]
     if not records:
         return image, report, None
-    write_map(work / "fixed.exr", rgb, pixel_type="float",
+    write_map(work / "fixed.exr", rgb, pixel_type=output_pixel_type(image, rgb),
               attributes={HEADER_ATTRIBUTE: header_record(image, records)})
     fixed = dataclasses.replace(image, rgb=rgb)
     after = check_map(fixed, profile=profile)

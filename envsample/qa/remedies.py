@@ -63,7 +63,7 @@ def rotate(rgb, *, degrees: float) -> Repair:
     a = _as_map(rgb)
     if not math.isfinite(degrees):
         raise ValueError(f"degrees must be a finite number, got {degrees!r}")
-    shift = int(round(degrees / 360.0 * a.shape[1])) % a.shape[1]
+    shift = round(degrees / 360.0 * a.shape[1]) % a.shape[1]
     done = shift * 360.0 / a.shape[1]
     return Repair(np.roll(a, shift, axis=1), _record("rotate", {"degrees": degrees},
                                                      {"all": True, "columns_shifted": shift},

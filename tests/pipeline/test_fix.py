@@ -87,5 +87,5 @@ def test_sun_azimuth_rotation_puts_the_sun_there(tmp_path, profile_file):
     src = tmp_path / "m.exr"
     write_map(src, sunny(), pixel_type="float")
     result = fix_map(src, tmp_path / "r.exr", remedies={"rotate": {"sun_azimuth": -100.0}}, profile=profile_file)
-    az = [e for e in result.after["sun"].details["emitters"] if e["sun_like"]][0]["azimuth_deg"]
+    az = next(e for e in result.after["sun"].details["emitters"] if e["sun_like"])["azimuth_deg"]
     assert abs(az + 100.0) <= 360.0 / 256

@@ -10,8 +10,8 @@ import pytest
 from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
 
 from envsample.qa.checks import CHECKS
-from envsample.qa.report import format_report
 from envsample.qa.messages import fmt
+from envsample.qa.report import format_report
 from envsample.qa.run import check_map
 from envsample.synth import skies
 

@@ -116,6 +116,6 @@ def test_check_map_never_raises_on_hostile_values(profile):
         mask = rng.random(img.shape) < rng.choice([0.0, 0.01, 0.3, 1.0])
         img[mask] = rng.choice(specials, size=int(mask.sum()))
         report = check_map(img, profile=profile)
-        assert report.readable and [c.id for c in report.checks][0] == "read"
+        assert report.readable and report.checks[0].id == "read"
         assert not [c.message for c in report.checks if c.message.startswith("could not run")]
         json.dumps(report.to_dict(), allow_nan=False)
