@@ -125,30 +125,36 @@ def _luminance_planar(p: np.ndarray, key: str, w: np.ndarray | None, out: np.nda
         out += p[2]
         out *= np.float32(1.0 / 3.0)
     else:
-        np.multiply(p[0], w[0], out=out)
-        out += p[1] * w[1]
-        out += p[2] * w[2]
+        np.einsum("c,crw->rw", w, p, out=out)  # one pass (measured faster than three multiply-adds)
     np.maximum(out, np.float32(0.0), out=out)
     return out
 
 
-def _clean_band(band: np.ndarray, is_hdr: bool) -> tuple[np.ndarray, bool, bool, float]:
-    """The band with NaN/Inf and negatives set to 0 (sRGB-decoded if not HDR); its flags and finite max."""
-    lo, hi = float(band.min()), float(band.max())
-    finite = math.isfinite(lo) and math.isfinite(hi)
-    nonneg = (lo >= 0.0) if finite else None
+def _clean_planar(p: np.ndarray, row_max: np.ndarray, is_hdr: bool) -> tuple[bool, bool, float]:
+    """Clean planar channels in place (NaN/Inf and negatives to 0; sRGB-decoded if not HDR) and their row maxima.
+
+    ``row_max`` (3, r) holds the raw row maxima on entry (NaN if a row has a NaN) and the cleaned
+    ones on return.  Returns (finite, non-negative, largest finite raw value).
+    """
+    finite = bool(np.isfinite(row_max).all())
+    lo = float(p.min())
+    finite = finite and math.isfinite(lo)
+    nonneg = lo >= 0.0
     if finite:
-        top = hi
+        top = float(row_max.max())
     else:
-        fin = np.isfinite(band)
-        top = float(band[fin].max()) if fin.any() else 0.0
-        nonneg = bool((band[fin] >= 0).all())
-    if not is_hdr:
-        band = srgb_decode(np.where(np.isfinite(band), band, 0.0))
-    elif not (finite and nonneg):
         with np.errstate(invalid="ignore"):
-            band = np.where(np.isfinite(band) & (band > 0), band, np.float32(0.0)).astype(np.float32)
-    return band, finite, bool(nonneg), top
+            fin = np.isfinite(p)
+            top = float(np.max(p, where=fin, initial=0.0))
+            nonneg = bool(np.all(p >= 0, where=fin))
+    if not (finite and nonneg):
+        with np.errstate(invalid="ignore"):
+            np.copyto(p, np.float32(0.0), where=~(np.isfinite(p) & (p > 0)))
+    if not is_hdr:
+        p[...] = srgb_decode(p)
+    if not (finite and nonneg) or not is_hdr:
+        np.max(p, axis=2, out=row_max)
+    return finite, nonneg, top
 
 
 def scan_map(raw: np.ndarray, *, primaries: str = "bt709", is_hdr: bool = True,
@@ -178,27 +184,28 @@ def scan_map(raw: np.ndarray, *, primaries: str = "bt709", is_hdr: bool = True,
     row_cmax = np.empty((H, 3), dtype=np.float32)
     hist = np.zeros(_BUCKETS)
     planar = np.empty((3, rows, W), dtype=np.float32)
+    band_max = np.empty((3, rows), dtype=np.float32)
     keys = np.empty((rows, W), dtype=np.uint32)
     weights = np.empty((rows, W))
     reduced = np.zeros((H // fy, W // fx, 3)) if fy else None
     finite = nonneg = True
     top = 0.0
     for r0 in range(0, H, rows):
-        band, ok, pos, t = _clean_band(raw[r0:r0 + rows], is_hdr)
+        band = raw[r0:r0 + rows]
+        r = band.shape[0]
+        p, m = planar[:, :r], band_max[:, :r]
+        np.copyto(p, band.transpose(2, 0, 1))
+        np.max(p, axis=2, out=m)
+        ok, pos, t = _clean_planar(p, m, is_hdr)
         finite &= ok
         nonneg &= pos
         top = max(top, t)
-        r = band.shape[0]
-        p = planar[:, :r]
-        np.copyto(p, band.transpose(2, 0, 1))
-        row_cmax[r0:r0 + r] = p.max(axis=2).T
+        row_cmax[r0:r0 + r] = m.T
         if fy:
-            # Column blocks (fx values each), then rows weighted by their solid angle, all in float64;
-            # the row sums per channel follow from the column blocks without another pass.
-            cols = p.reshape(3, r, W // fx, fx).sum(axis=3, dtype=np.float64)
-            row_csum[r0:r0 + r] = cols.sum(axis=2).T
-            weighted = (cols * sa[r0:r0 + r][None, :, None]).reshape(3, r // fy, fy, W // fx).sum(axis=2)
-            reduced[r0 // fy:(r0 + r) // fy] = weighted.transpose(1, 2, 0)
+            # Column blocks in float32 (fx values each), then float64: the row sums and the reduced map.
+            blocks = _block_sums(p, fx)
+            row_csum[r0:r0 + r] = blocks.sum(axis=2, dtype=np.float64).T
+            _reduce_band(blocks, fy, sa[r0:r0 + r], out=reduced[r0 // fy:(r0 + r) // fy])
         else:
             row_csum[r0:r0 + r] = p.sum(axis=2, dtype=np.float64).T
         L = _luminance_planar(p, key, weights_rgb, lum[r0:r0 + r])
@@ -220,3 +227,17 @@ def scan_map(raw: np.ndarray, *, primaries: str = "bt709", is_hdr: bool = True,
     return MapScan(luminance=lum, row_luminance_sum=row_lsum, row_luminance_max=row_lmax,
                    row_channel_sum=row_csum, row_channel_max=row_cmax, histogram=LogHistogram(hist),
                    finite=finite, nonnegative=nonneg, raw_max=top, reduced=out_reduced)
+
+
+def _block_sums(p: np.ndarray, fx: int) -> np.ndarray:
+    """Sums of ``fx`` neighbouring columns of planar (3, r, W) channels: (3, r, W // fx), float32 over at most
+    ``fx`` values (``einsum``: measured several times faster here than ``sum(axis=-1)``)."""
+    c, r, W = p.shape
+    return np.einsum("ij->i", p.reshape(-1, fx)).reshape(c, r, W // fx)
+
+
+def _reduce_band(blocks: np.ndarray, fy: int, sa: np.ndarray, *, out: np.ndarray) -> None:
+    """Power-preserving box filter of a band (:func:`envsample.core.latlong.reduce_power` when sizes divide)
+    from its column-block sums (3, r, w): sums of L x dOmega over fy rows in float64, into ``out`` (r // fy, w, 3)."""
+    c, r, w = blocks.shape
+    out[...] = (blocks.astype(np.float64) * sa[None, :, None]).reshape(c, r // fy, fy, w).sum(axis=2).transpose(1, 2, 0)
