@@ -10,8 +10,8 @@ from envsample.cli.app import main
 from envsample.pipeline.fix import fix_map
 
 
-def _requested(flip, rotate, sun_azimuth, fill_nonfinite, clamp_negative, poles, seam, exposure, pad_hemisphere,
-               ground_albedo) -> dict:
+def _requested(flip, rotate, sun_azimuth, fill_nonfinite, clamp_negative, poles, seam, exposure, irradiance,
+               pad_hemisphere, ground_albedo) -> dict:
     """Remedy name -> options from the command-line flags."""
     out = {}
     if fill_nonfinite:
@@ -30,8 +30,12 @@ def _requested(flip, rotate, sun_azimuth, fill_nonfinite, clamp_negative, poles,
         out["poles"] = {}
     if seam is not None:
         out["seam"] = {"columns": seam}
+    if exposure is not None and irradiance is not None:
+        raise click.UsageError("--exposure and --irradiance both set the light level; give one of them")
     if exposure is not None:
         out["exposure"] = {"target": exposure}
+    if irradiance is not None:
+        out["exposure"] = {"irradiance": irradiance}
     return out
 
 
@@ -54,13 +58,15 @@ def _requested(flip, rotate, sun_azimuth, fill_nonfinite, clamp_negative, poles,
               help="Blend the left/right seam over COLUMNS columns on each side.")
 @click.option("--exposure", type=click.FloatRange(min=0.0, min_open=True), default=None, metavar="TARGET",
               help="Scale so that a white surface facing up reflects TARGET (E/pi; 1 = display white).")
+@click.option("--irradiance", type=click.FloatRange(min=0.0, min_open=True), default=None, metavar="E",
+              help="Scale so that the irradiance on an up-facing surface is E (map units x sr; lux for cd/m2 maps).")
 @click.option("--pad-hemisphere", is_flag=True, help="Treat the map as an upper hemisphere and pad the lower one.")
 @click.option("--ground-albedo", type=click.FloatRange(0.0, 1.0), default=0.2, show_default=True,
               help="Albedo of the uniform ground of --pad-hemisphere.")
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
               help="QA profile (TOML) for the checks before and after.")
 def fix(source, output, auto, flip, rotate, sun_azimuth, fill_nonfinite, clamp_negative, poles, seam, exposure,
-        pad_hemisphere, ground_albedo, profile_path):
+        irradiance, pad_hemisphere, ground_albedo, profile_path):
     """Repair a map with the remedies its checks propose, then check the result.
 
     The source file is never changed.  Every step is recorded in the output's EXR
@@ -70,7 +76,7 @@ def fix(source, output, auto, flip, rotate, sun_azimuth, fill_nonfinite, clamp_n
     still fails, 2 refused or bad input.
     """
     requested = _requested(flip, rotate, sun_azimuth, fill_nonfinite, clamp_negative, poles, seam, exposure,
-                           pad_hemisphere, ground_albedo)
+                           irradiance, pad_hemisphere, ground_albedo)
     if sun_azimuth is not None:
         requested["rotate"] = {"sun_azimuth": sun_azimuth}
     if not requested and not auto:

@@ -40,6 +40,10 @@ def _record(name: str, options: dict, changed: dict, message: str) -> dict:
     return {"remedy": name, "options": options, "changed": changed, "message": message}
 
 
+def _s(n: int) -> str:
+    return "" if n == 1 else "s"
+
+
 def _as_map(rgb) -> np.ndarray:
     a = np.asarray(rgb)
     if a.ndim != 3 or a.shape[2] != 3 or a.shape[0] < 1 or a.shape[1] < 1:
@@ -105,7 +109,7 @@ def fill_nonfinite(rgb) -> Repair:
     yy, xx = np.nonzero(sel)
     out[yy + r0, xx] = a[src_rows[yy, xx + pad], src_cols[yy, xx + pad]]
     return Repair(out, _record("fill-nonfinite", {}, {"pixels": n, "rows": [lo, hi - 1]},
-                               f"filled {n} NaN/Inf pixels from their nearest finite neighbours"))
+                               f"filled {n} NaN/Inf pixel{_s(n)} from the nearest finite pixels"))
 
 
 def clamp_negative(rgb) -> Repair:
@@ -115,7 +119,7 @@ def clamp_negative(rgb) -> Repair:
         neg = a < 0
     n = int(neg.any(axis=2).sum())
     out = np.where(neg, np.float32(0.0), a).astype(np.float32)
-    return Repair(out, _record("clamp-negative", {}, {"pixels": n}, f"clamped {n} pixels with negative channels to 0"))
+    return Repair(out, _record("clamp-negative", {}, {"pixels": n}, f"clamped {n} pixel{_s(n)} with negative channels to 0"))
 
 
 def constant_poles(rgb, *, rows: int = 1) -> Repair:
@@ -161,17 +165,20 @@ def _irradiance_up(rgb: np.ndarray, weights: np.ndarray) -> float:
     return float((sums @ weights) @ cw[rows])
 
 
-def scale_exposure(rgb, *, target: float = 1.0, weights=None) -> Repair:
-    """Scale the map so that a white diffuse surface facing up reflects ``target`` (E / pi = target).
+def scale_exposure(rgb, *, target: float | None = None, irradiance: float | None = None, weights=None) -> Repair:
+    """Scale the map so that a white diffuse surface facing up reflects ``target`` (E / pi = target, default 1),
+    or so that the irradiance on it is ``irradiance`` (E, map units x sr; lux for a map in cd/m2).
 
     ``weights`` are the luminance weights (default: BT.709, :func:`envsample.core.constants.luminance_weights`).
-    The scale is computed in
-    float64 and applied in float64 bands, so maps near the float32 limits (1e-45, 3e38) are
-    rescaled without overflow.  Every pixel changes.
+    The scale is computed in float64 and applied in float64 bands, so maps near the float32
+    limits (1e-45, 3e38) are rescaled without overflow.  Every pixel changes.
     """
     a = _as_map(rgb)
-    if not (math.isfinite(target) and target > 0):
-        raise ValueError(f"target must be a positive number, got {target!r}")
+    if target is not None and irradiance is not None:
+        raise ValueError("give target (E/pi) or irradiance (E), not both")
+    goal_e = math.pi * (1.0 if target is None else target) if irradiance is None else irradiance
+    if not (math.isfinite(goal_e) and goal_e > 0):
+        raise ValueError(f"the target must be a positive number, got {target if irradiance is None else irradiance!r}")
     with np.errstate(invalid="ignore", over="ignore"):
         clean = np.where(np.isfinite(a) & (a > 0), a, 0.0)
         w = luminance_weights("bt709") if weights is None else weights
@@ -179,15 +186,17 @@ def scale_exposure(rgb, *, target: float = 1.0, weights=None) -> Repair:
     if not e > 0:
         raise ValueError("no light reaches an up-facing surface (the upper hemisphere is black): "
                          "the exposure cannot be set; flip or re-export the map")
-    factor = target * math.pi / e
+    factor = goal_e / e
     out = np.empty_like(a)
     step = max(1, (1 << 20) // max(1, a.shape[1] * 3))
     with np.errstate(over="ignore", invalid="ignore"):
         for r0 in range(0, a.shape[0], step):
             out[r0:r0 + step] = (a[r0:r0 + step].astype(np.float64) * factor).astype(np.float32)
     stops = math.log2(factor)
-    return Repair(out, _record("exposure", {"target": target}, {"all": True, "scale": factor},
-                               f"scaled by {factor:.6g} ({stops:+.2f} stops) so that E/pi = {target:g}"))
+    goal = f"E = {goal_e:g}" if irradiance is not None else f"E/pi = {goal_e / math.pi:g}"
+    options = {"irradiance": irradiance} if irradiance is not None else {"target": goal_e / math.pi}
+    return Repair(out, _record("exposure", options, {"all": True, "scale": factor},
+                               f"scaled by {factor:.6g} ({stops:+.2f} stops) so that {goal} on an up-facing surface"))
 
 
 def pad_hemisphere(rgb, *, ground_albedo: float = 0.2) -> Repair:

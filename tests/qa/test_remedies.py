@@ -92,6 +92,14 @@ def test_exposure_scaling_makes_the_exposure_check_pass(profile, stops):
     assert c.severity == "pass" and abs(c.value) < 1e-4
 
 
+def test_exposure_scaling_to_an_irradiance():
+    """A uniform sky L gives E = pi L on an up-facing surface (textbook): E = 1000 makes L = 1000 / pi."""
+    rep = remedies.scale_exposure(np.full((32, 64, 3), 0.25, np.float32), irradiance=1000.0)
+    assert np.allclose(rep.rgb, 1000.0 / math.pi, rtol=1e-5)
+    with pytest.raises(ValueError, match="not both"):
+        remedies.scale_exposure(rep.rgb, target=1.0, irradiance=1.0)
+
+
 @pytest.mark.parametrize("value", [1e-45, 3e38])
 def test_exposure_scaling_rescues_maps_at_the_float32_limits(profile, value):
     img = np.full((64, 128, 3), value, np.float32)
