@@ -16,7 +16,7 @@ import numpy as np
 from envsample.core.color import luminance
 from envsample.core.latlong import reduce_power
 from envsample.estimation.estimators import estimate_glossy
-from envsample.reference.irradiance import reference_glossy, reference_glossy_accuracy
+from envsample.reference.glossy import reference_glossy, reference_glossy_accuracy
 from envsample.sampling.table import build_table
 from envsample.validation.grid import normal_grid, view_directions
 from envsample.validation.metrics import BIAS_SIGMAS, error_metrics, json_number, sample_statistics
