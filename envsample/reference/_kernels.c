@@ -2,6 +2,8 @@
  * Optional compiled kernel of the exact reference irradiance (built by setup.py when a C
  * compiler is available; envsample.reference.boundary holds the numpy code used otherwise).
  *
+ * ggx_rects       : the integrand of the glossy reference (envsample.reference.glossy)
+ *                   integrated over (theta, phi) rectangles by 2x2 Gauss-Legendre.
  * irradiance_rows : the boundary form of E(n) = integral of L(w) max(0, n.w) dw
  *                   (Stokes' theorem on the sphere, Arvo 1995; derivation in
  *                   envsample/reference/irradiance.py) restricted to the map rows
@@ -118,7 +120,7 @@ static void edge_data(const map_t *m, Py_ssize_t k, double nz, double nh, edge_t
     }
 }
 
-static void span_of(const map_t *m, const normal_t *q, const edge_t *e, span_t *sp) {
+static void span_of(const normal_t *q, const edge_t *e, span_t *sp) {
     if (e->state == EDGE_EMPTY) {
         sp->jm = sp->jp = q->f0;
     } else if (e->state == EDGE_FULL) {
@@ -135,7 +137,6 @@ static void span_of(const map_t *m, const normal_t *q, const edge_t *e, span_t *
         sp->sm = q->hy * e->x - q->hx * e->sinb;
         sp->cm = q->hx * e->x + q->hy * e->sinb;
     }
-    (void)m;
 }
 
 /* Row tables, per column j (TAB doubles): exclusive prefixes at meridian j of
@@ -286,8 +287,8 @@ static void row_normal(const row_t *R, const normal_t *q, double nz, double nh, 
     acc[0] = acc[1] = acc[2] = 0.0;
     if (et->state == EDGE_EMPTY && eb->state == EDGE_EMPTY) return; /* wholly below the horizon */
     span_t st, sb;
-    span_of(m, q, et, &st);
-    span_of(m, q, eb, &sb);
+    span_of(q, et, &st);
+    span_of(q, eb, &sb);
     /* (a) latitude edges r (top, jump enters with -) and r + 1 (bottom, +) */
     const edge_t *es[2] = {et, eb};
     const span_t *ss[2] = {&st, &sb};
@@ -339,6 +340,7 @@ static void row_normal(const row_t *R, const normal_t *q, double nz, double nh, 
  *                 gid: int64 [N] (group of each normal), groups: float64 [G*2] (n_z, n_h),
  *                 row0, row1, out: float64 [N*3] (written: this row range's share of E)) */
 static PyObject *irradiance_rows(PyObject *self, PyObject *args) {
+    (void)self;
     Py_buffer lb, gb, hb, ib, pb, ob;
     int dbl;
     Py_ssize_t H, W, row0, row1;
@@ -418,9 +420,76 @@ static PyObject *irradiance_rows(PyObject *self, PyObject *args) {
     Py_RETURN_NONE;
 }
 
+/* ---- glossy reference: GGX (F = 1) f(wi, wo) max(0, n.wi), 2x2 Gauss-Legendre per rectangle ---- */
+
+/* The integrand of envsample.sampling.strategies.GGXReflection.eval times the cosine, in the
+   local frame of the normal (z along n): D of Walter et al. (2007), height-correlated Smith
+   G2 of Heitz (2014), written as in strategies.ggx_d / ggx_lambda / ggx_g2. */
+static inline double ggx_kernel(const double wi[3], const double wo[3], double a2) {
+    if (wi[2] <= 0.0 || wo[2] <= 0.0) return 0.0;
+    double hx = wi[0] + wo[0], hy = wi[1] + wo[1], hz = wi[2] + wo[2];
+    double norm = sqrt(hx * hx + hy * hy + hz * hz);
+    if (!(norm > 1e-12)) return 0.0;
+    hz /= norm;
+    if (hz <= 0.0) return 0.0;
+    double denom = hz * hz * (a2 - 1.0) + 1.0;
+    double d = a2 / (M_PI * denom * denom);
+    double zi = wi[2] * wi[2], zo = wo[2] * wo[2];
+    double li = 0.5 * (sqrt(zi + a2 * fmax(0.0, 1.0 - zi)) / fmax(fabs(wi[2]), 1e-300) - 1.0);
+    double lo = 0.5 * (sqrt(zo + a2 * fmax(0.0, 1.0 - zo)) / fmax(fabs(wo[2]), 1e-300) - 1.0);
+    double g2 = 1.0 / (1.0 + li + lo);
+    return d * g2 / (4.0 * (wi[2] * wo[2])) * wi[2];
+}
+
+/* ggx_rects(t0, t1, p0, p1: float64[m] (theta, phi rectangles in the map frame),
+ *           rot: float64[9] (rows: the normal's local axes in map-frame coordinates),
+ *           wo: float64[3] (local), alpha, out: float64[m])
+ * out = integral over each rectangle of the kernel, 2x2 Gauss-Legendre in (theta, phi) with
+ * the sin(theta) weight (Abramowitz & Stegun 25.4.29 nodes +-1/sqrt 3). */
+static PyObject *ggx_rects(PyObject *self, PyObject *args) {
+    (void)self;
+    Py_buffer b0, b1, b2, b3, rb, wb, ob;
+    double alpha;
+    if (!PyArg_ParseTuple(args, "y*y*y*y*y*y*dw*", &b0, &b1, &b2, &b3, &rb, &wb, &alpha, &ob)) return NULL;
+    Py_buffer *all[7] = {&b0, &b1, &b2, &b3, &rb, &wb, &ob};
+    Py_ssize_t m = ob.len / (Py_ssize_t)sizeof(double), bytes = m * (Py_ssize_t)sizeof(double);
+    if (b0.len != bytes || b1.len != bytes || b2.len != bytes || b3.len != bytes ||
+        rb.len != 9 * (Py_ssize_t)sizeof(double) || wb.len != 3 * (Py_ssize_t)sizeof(double)) {
+        for (int k = 0; k < 7; k++) PyBuffer_Release(all[k]);
+        PyErr_SetString(PyExc_ValueError, "ggx_rects: buffer sizes do not match");
+        return NULL;
+    }
+    const double *t0 = (const double *)b0.buf, *t1 = (const double *)b1.buf;
+    const double *p0 = (const double *)b2.buf, *p1 = (const double *)b3.buf;
+    const double *R = (const double *)rb.buf, *wo = (const double *)wb.buf;
+    double *out = (double *)ob.buf;
+    double a2 = alpha * alpha, g = 1.0 / sqrt(3.0), nodes[2] = {-g, g};
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t k = 0; k < m; k++) {
+        double tc = 0.5 * (t0[k] + t1[k]), th = 0.5 * (t1[k] - t0[k]);
+        double pc = 0.5 * (p0[k] + p1[k]), ph = 0.5 * (p1[k] - p0[k]);
+        double acc = 0.0;
+        for (int a = 0; a < 2; a++) {
+            double t = tc + th * nodes[a], st = sin(t), ct = cos(t);
+            for (int b = 0; b < 2; b++) {
+                double p = pc + ph * nodes[b];
+                double d0 = st * cos(p), d1 = st * sin(p), d2 = ct;
+                double wi[3] = {R[0] * d0 + R[1] * d1 + R[2] * d2, R[3] * d0 + R[4] * d1 + R[5] * d2,
+                                R[6] * d0 + R[7] * d1 + R[8] * d2};
+                acc += ggx_kernel(wi, wo, a2) * st;
+            }
+        }
+        out[k] = 0.25 * (t1[k] - t0[k]) * (p1[k] - p0[k]) * acc;
+    }
+    Py_END_ALLOW_THREADS
+    for (int k = 0; k < 7; k++) PyBuffer_Release(all[k]);
+    Py_RETURN_NONE;
+}
+
 static PyMethodDef methods[] = {
     {"irradiance_rows", irradiance_rows, METH_VARARGS,
      "Exact irradiance of a piecewise-constant map, the share of a range of rows (boundary form)."},
+    {"ggx_rects", ggx_rects, METH_VARARGS, "GGX (F = 1) kernel integrated over (theta, phi) rectangles, 2x2 Gauss-Legendre."},
     {NULL, NULL, 0, NULL},
 };
 

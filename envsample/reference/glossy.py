@@ -30,11 +30,13 @@ References
 from __future__ import annotations
 
 import math
+from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
 from envsample.core.compat import renamed_keywords
-from envsample.reference.grid import Grid, map_frame, prepare_map, unit_normals
+from envsample.core.sphere import orthonormal_basis
+from envsample.reference.grid import KERNELS, Grid, map_frame, prepare_map, thread_count, unit_normals
 from envsample.sampling.strategies import MIN_ROUGHNESS, Frame, GGXReflection
 
 __all__ = ["reference_glossy", "reference_glossy_accuracy"]
@@ -75,7 +77,7 @@ def _glossy_kernel(d_world, n, wo, alpha):
     return f * np.maximum(d_world @ n, 0.0)
 
 
-def _glossy_pair(L, g: Grid, frame, n, wo, alpha, resolution, max_depth, tol):
+def _glossy_pair(L, g: Grid, frame, n, wo, alpha, resolution, max_depth, tol, mod=None, min_depth=0):
     """Integral over all cells of L_cell * kernel by adaptive splitting of (theta, phi) rectangles."""
     H, W = g.H, g.W
     nm, wm = frame @ n, frame @ wo  # map-frame copies for the subdivision test
@@ -103,12 +105,12 @@ def _glossy_pair(L, g: Grid, frame, n, wo, alpha, resolution, max_depth, tol):
         # The integrand has a kink at n's horizon, where the Smith shadowing falls to zero over
         # a band of width ~alpha in cos: rectangles near it are split down to that width while
         # they carry a non-negligible kernel (mean kernel x diameter > tolerance).
-        lobe = alive & (diam * resolution > np.maximum(alpha, th)) & (depth < max_depth)
+        lobe = alive & (((diam * resolution > np.maximum(alpha, th)) & (depth < max_depth)) | (depth < min_depth))
         cand = np.flatnonzero(alive & ~lobe)
         g4 = np.empty(cand.size)
         for a in range(0, cand.size, _GLOSSY_BATCH):
             c = cand[a:a + _GLOSSY_BATCH]
-            g4[a:a + _GLOSSY_BATCH] = _rect_integral(frame, n, wo, alpha, t0[c], t1[c], p0[c], p1[c])
+            g4[a:a + _GLOSSY_BATCH] = _rect_integral(frame, n, wo, alpha, t0[c], t1[c], p0[c], p1[c], mod)
         cos_c = np.abs(cos_n[cand])
         dc = diam[cand]
         refine = (cos_c < dc) & (dc * resolution > np.maximum(alpha, cos_c)) \
@@ -136,8 +138,19 @@ def _split(t0, t1, p0, p1, cell, dt, dp):
     return [np.concatenate([p[k] for p in parts]) for k in range(5)]
 
 
-def _rect_integral(frame, n, wo, alpha, t0, t1, p0, p1):
-    """Kernel integrated over each (theta, phi) rectangle, 2x2 Gauss-Legendre with the sin(theta) weight."""
+def _rect_integral(frame, n, wo, alpha, t0, t1, p0, p1, mod=None):
+    """Kernel integrated over each (theta, phi) rectangle, 2x2 Gauss-Legendre with the sin(theta) weight.
+
+    ``mod``: the compiled kernel (the same rule and the same GGX formulas, evaluated in the
+    normal's local frame), else numpy through :meth:`GGXReflection.eval`.
+    """
+    if mod is not None:
+        t, b = orthonormal_basis(n[None, :])
+        axes = np.stack([t[0], b[0], n])  # the local frame strategies.Frame uses (z along n)
+        out = np.empty(t0.size)
+        mod.ggx_rects(*(np.ascontiguousarray(a, dtype=np.float64) for a in (t0, t1, p0, p1)),
+                      np.ascontiguousarray(axes @ frame.T), np.ascontiguousarray(axes @ wo), float(alpha), out)
+        return out
     acc = np.zeros(t0.size)
     for a in _GL2:
         t = 0.5 * (t0 + t1) + 0.5 * (t1 - t0) * a
@@ -151,7 +164,8 @@ def _rect_integral(frame, n, wo, alpha, t0, t1, p0, p1):
 
 @renamed_keywords(rotate_deg="rotation_deg")
 def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg: float = 0.0, size=None,
-                     resolution: float = 8.0, tolerance: float = 1e-6, max_depth: int = 16) -> np.ndarray:
+                     resolution: float = 8.0, tolerance: float = 1e-6, max_depth: int = 16, backend: str = "auto",
+                     threads: int | None = None, _min_depth: int = 0) -> np.ndarray:
     """Outgoing radiance of a GGX reflector (F = 1) lit by the map, by deterministic quadrature.
 
     ``L_o(n, wo) = integral of L(w) f(w, wo) max(0, n.w) dw`` with ``f`` the GGX reflection of
@@ -184,6 +198,13 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg
         diameter exceeds ``tolerance``.
     max_depth : int
         Maximum number of splits of one cell.
+    backend : {"auto", "compiled", "numpy"}
+        Where the leaves' integrand is evaluated: the compiled kernel
+        (``envsample.reference._kernels.ggx_rects``, the same formulas) or numpy through
+        :meth:`GGXReflection.eval`; see :mod:`envsample.core.kernels`.
+    threads : int, optional
+        (normal, wo) pairs computed at once (default: the CPUs this process may use); the
+        result does not depend on it.
 
     Returns
     -------
@@ -194,39 +215,54 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg
     A quadrature, not a closed form: :func:`reference_glossy_accuracy` reports the change
     when ``resolution`` is doubled.  At the defaults, the directional albedo of a white map
     matches scipy quadrature to about 1e-8 for views up to 70 degrees and 6e-7 at 83
-    degrees, for alpha from 0.01 to 0.5 (tests allow 2e-6).  A Python loop runs over
-    (normal, wo) pairs, never over pixels; each pair takes 0.05-1 s on a 64x32 map, so
-    it is meant for a few dozen pairs on a reduced map.
+    degrees, for alpha from 0.01 to 0.5 (tests allow 2e-6).  The pairs are independent and run
+    on a pool of threads; within a pair the cells are processed as vectorised batches (never a
+    Python loop over pixels).  The cost grows with the number of cells, so
+    :mod:`envsample.validation.glossy` runs it on a reduced map (speeds in README).
     """
     L = prepare_map(rgb, size)
     n, w, r, shape = _pair_vectors(normals, wo, roughness)
     if not (resolution > 0 and tolerance > 0 and int(max_depth) >= 0):
         raise ValueError(f"resolution and tolerance must be > 0 and max_depth >= 0, got {resolution}, "
                          f"{tolerance} and {max_depth}")
+    mod = KERNELS.kernels(backend)
+    workers = thread_count(threads)
     frame = map_frame(up, rotation_deg)
     g = Grid(L.shape[0], L.shape[1])
-    out = np.stack([_glossy_pair(L, g, frame, n[p], w[p], float(r[p]), float(resolution), int(max_depth),
-                                 float(tolerance))
-                    for p in range(n.shape[0])]) if n.shape[0] else np.zeros((0, 3))
+
+    def pair(p):
+        return _glossy_pair(L, g, frame, n[p], w[p], float(r[p]), float(resolution), int(max_depth),
+                            float(tolerance), mod, int(_min_depth))
+
+    if n.shape[0] == 0:
+        return np.zeros(shape + (3,))
+    if workers > 1 and n.shape[0] > 1:
+        with ThreadPoolExecutor(max_workers=min(workers, n.shape[0])) as pool:
+            out = np.stack(list(pool.map(pair, range(n.shape[0]))))
+    else:
+        out = np.stack([pair(p) for p in range(n.shape[0])])
     return out.reshape(shape + (3,))
 
 
 @renamed_keywords(rotate_deg="rotation_deg")
 def reference_glossy_accuracy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg: float = 0.0,
                               size=None, resolution: float = 8.0, tolerance: float = 1e-6,
-                              max_depth: int = 16) -> dict:
+                              max_depth: int = 16, backend: str = "auto", threads: int | None = None) -> dict:
     """The glossy reference at ``resolution`` and ``2 * resolution``, with the change between them.
 
-    The finer run also uses a tolerance ten times smaller.  Returns a dict: ``values`` (the
+    The finer run also uses a tolerance ten times smaller and splits every cell at least once,
+    so the change also measures the leaf rule's error where no cell needed splitting (small
+    cells on a large map).  Returns a dict: ``values`` (the
     finer result, float64 ``broadcast + (3,)``), ``coarse``, ``change`` (max absolute
     difference over pairs and channels, map units) and ``relative_change`` (that difference
     over the largest finer value): an estimate of the coarser result's quadrature error
     and a conservative one for the finer's.
     """
-    kw = dict(up=up, rotation_deg=rotation_deg, size=size, max_depth=max_depth)
+    kw = {"up": up, "rotation_deg": rotation_deg, "size": size, "max_depth": max_depth, "backend": backend,
+          "threads": threads}
     coarse = reference_glossy(rgb, normals, wo, roughness, resolution=resolution, tolerance=tolerance, **kw)
     fine = reference_glossy(rgb, normals, wo, roughness, resolution=2.0 * resolution,
-                            tolerance=0.1 * tolerance, **kw)
+                            tolerance=0.1 * tolerance, _min_depth=1, **kw)
     change = float(np.max(np.abs(fine - coarse))) if fine.size else 0.0
     top = float(np.max(np.abs(fine))) if fine.size else 0.0
     return {"values": fine, "coarse": coarse, "change": change,

@@ -1,4 +1,4 @@
-"""The cell grid of a lat-long map and the input checks shared by the reference methods.
+"""The cell grid of a lat-long map, the input checks and the compiled-kernel switch shared by the reference methods.
 
 Public objects (for :mod:`envsample.reference` only)
 -----------------------------------------------------
@@ -7,6 +7,8 @@ Public objects (for :mod:`envsample.reference` only)
 :func:`map_array`      a finite (H, W, 3) float32/float64 map from an array or a MapImage.
 :func:`prepare_map`    the same, reduced with the table's power-preserving box filter.
 :func:`unit_normals`   (..., 3) unit vectors flattened to (N, 3) float64.
+:func:`thread_count`   the threads a computation may use.
+:data:`KERNELS`        the switch of ``envsample.reference._kernels`` (:mod:`envsample.core.kernels`).
 
 Conventions (those of :mod:`envsample.core.sphere`): pixel ``(i, j)`` covers ``theta`` in
 ``[pi i/H, pi (i+1)/H]`` (row 0 at the zenith) and ``phi`` in ``[2 pi j/W - pi,
@@ -19,18 +21,23 @@ so a direction is ``(sin theta cos phi, sin theta sin phi, cos theta)`` with the
 from __future__ import annotations
 
 import math
+import os
 
 import numpy as np
 
+from envsample.core.kernels import KernelSwitch
 from envsample.core.latlong import parse_size, reduce_power
 from envsample.core.sphere import UP_AXES
 from envsample.errors import MapValidationError
 from envsample.io.maps import map_pixels
 
-__all__ = ["Grid", "map_frame", "map_array", "prepare_map", "unit_normals", "cos_sin_deg", "TWO_PI",
-           "UNIT_TOLERANCE"]
+__all__ = ["Grid", "map_frame", "map_array", "prepare_map", "unit_normals", "cos_sin_deg", "thread_count",
+           "KERNELS", "TWO_PI", "UNIT_TOLERANCE"]
 
 TWO_PI = 2.0 * math.pi
+
+#: The compiled kernels of the reference (``ENVSAMPLE_KERNELS=numpy`` disables them).
+KERNELS = KernelSwitch("envsample.reference._kernels")
 
 #: Normal length tolerated before renormalisation (larger deviations are an input error).
 UNIT_TOLERANCE = 1e-6
@@ -138,3 +145,15 @@ class Grid:
         self.cph, self.sph = -c, -sn
         self.phi = -math.pi + TWO_PI * m / width
         self.dphi = TWO_PI / width
+
+
+def thread_count(threads) -> int:
+    """Threads to use: ``threads`` checked, or the CPUs this process may use when None."""
+    if threads is None:
+        try:
+            return max(1, len(os.sched_getaffinity(0)))
+        except AttributeError:  # not on every platform
+            return max(1, os.cpu_count() or 1)
+    if isinstance(threads, bool) or not isinstance(threads, (int, np.integer)) or threads < 1:
+        raise ValueError(f"threads must be a whole number >= 1, got {threads!r}")
+    return int(threads)

@@ -115,16 +115,14 @@ References
 from __future__ import annotations
 
 import math
-import os
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
 from envsample.core.compat import renamed_keywords
-from envsample.core.kernels import KernelSwitch
 from envsample.core.sphere import row_solid_angles
 from envsample.reference.boundary import chunk_size, irradiance_numpy
-from envsample.reference.grid import Grid, map_array, map_frame, prepare_map, unit_normals
+from envsample.reference.grid import KERNELS, Grid, map_array, map_frame, prepare_map, thread_count, unit_normals
 
 __all__ = [
     "reference_irradiance",
@@ -140,9 +138,6 @@ __all__ = [
 #: (the up axis, the horizontal plane, a meridian plane of a column edge) are moved onto
 #: it, so the coincidence is resolved exactly; E moves by at most the move x integral of |L|.
 SNAP_RADIANS = 1e-9
-
-#: The compiled kernel's optional module (``ENVSAMPLE_KERNELS=numpy`` disables it).
-KERNELS = KernelSwitch("envsample.reference._kernels")
 
 #: Fixed row ranges of the compiled path, run in parallel and summed in this order: the
 #: partition depends on the map height only, so results do not depend on the thread count.
@@ -229,17 +224,6 @@ def _normal_groups(n: np.ndarray):
             np.ascontiguousarray(keys, dtype=np.float64))
 
 
-def _thread_count(threads) -> int:
-    if threads is None:
-        try:
-            return max(1, len(os.sched_getaffinity(0)))
-        except AttributeError:  # not on every platform
-            return max(1, os.cpu_count() or 1)
-    if isinstance(threads, bool) or not isinstance(threads, (int, np.integer)) or threads < 1:
-        raise ValueError(f"threads must be a whole number >= 1, got {threads!r}")
-    return int(threads)
-
-
 def _irradiance_compiled(mod, L: np.ndarray, n: np.ndarray, g: Grid, chunk, threads: int) -> np.ndarray:
     """The compiled kernel over ROW_SHARES fixed row ranges, summed in order (deterministic)."""
     H, W = L.shape[:2]
@@ -280,7 +264,7 @@ def _irradiance(L: np.ndarray, n_world: np.ndarray, frame: np.ndarray, chunk, *,
                 threads=None) -> np.ndarray:
     """E for world normals (N, 3): snap in the map frame, then the compiled kernel or numpy."""
     mod = KERNELS.kernels(backend)
-    threads = _thread_count(threads)
+    threads = thread_count(threads)
     g = Grid(L.shape[0], L.shape[1])
     n_map = n_world @ frame.T
     n = _snap_normals(g, n_map)
