@@ -64,12 +64,12 @@ _EXPORTS = {
     "write_png": "reports.pictures",
     # strategies and MIS
     "make_strategy": "sampling.strategies",
-    "make_frame": "sampling.strategies",
+    "make_frame": "sampling.frames",
     "TableStrategy": "sampling.strategies",
     "estimate_irradiance": "estimation.estimators",
     "estimate_glossy": "estimation.estimators",
     "estimators": "estimation.estimators",
-    "mis_weights": "estimation.estimators",
+    "mis_weights": "estimation.heuristics",
     "firefly_index": "estimation.estimators",
     "EstimatorSamples": "estimation.estimators",
     # QA

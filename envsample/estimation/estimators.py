@@ -1,19 +1,7 @@
-"""Multiple importance sampling: heuristics, estimators of irradiance and of glossy reflection.
+"""Monte Carlo estimators of irradiance and of glossy reflection: single strategies and MIS combinations.
 
-Heuristics (Veach 1997, section 9.2)
-------------------------------------
-With ``q_i = n_i p_i(x)`` (``n_i`` samples of strategy ``i`` in multi-sample MIS, or
-its selection probability ``c_i`` in one-sample MIS):
-
-``balance``   w_i = q_i / sum_k q_k                       (the balance heuristic)
-``power``     w_i = q_i^beta / sum_k q_k^beta, beta = 2    (power heuristic)
-``maximum``   w_i = 1 if q_i is the largest, else 0        (maximum heuristic)
-``cutoff``    w_i = q_i / sum of q_k >= c q_max, 0 if q_i < c q_max, c = ``cutoff``  (cutoff heuristic)
-
-Each is its own function in ``HEURISTICS``; :func:`mis_weights` dispatches by ``method=``.
-Every heuristic gives weights that sum to 1 wherever some pdf is positive and a
-zero weight wherever a strategy's pdf is zero, the two conditions of Veach's
-unbiasedness argument (section 9.1).  Ties in ``maximum`` go to the first strategy.
+The MIS weights come from :mod:`envsample.estimation.heuristics` (balance, power, maximum
+and cutoff heuristics; Veach 1997, section 9.2).
 
 Estimators
 ----------
@@ -51,31 +39,20 @@ References
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from envsample.core.color import luminance
-from envsample.core.compat import renamed_keywords, warn_renamed
-from envsample.sampling.strategies import (
-    CosineHemisphere,
-    Frame,
-    GGXReflection,
-    TableStrategy,
-    UniformHemisphere,
-    UniformSphere,
-    make_frame,
-)
+from envsample.core.compat import renamed_keywords
+from envsample.estimation.heuristics import heuristic_name, mis_weights, sample_counts
+from envsample.sampling.frames import Frame, make_frame
+from envsample.sampling.ggx import GGXReflection
+from envsample.sampling.strategies import CosineHemisphere, TableStrategy, UniformHemisphere, UniformSphere
 
 __all__ = [
-    "HEURISTICS",
-    "balance_heuristic",
-    "power_heuristic",
-    "maximum_heuristic",
-    "cutoff_heuristic",
-    "mis_weights",
-    "sample_counts",
+    "Combination",
+    "Integrand",
     "EstimatorSamples",
     "firefly_index",
     "estimators",
@@ -89,126 +66,6 @@ DEFAULT_CHUNK_SAMPLES = 1 << 17
 
 
 # --- heuristics ----------------------------------------------------------------
-
-
-def _normalise(weights: np.ndarray) -> np.ndarray:
-    total = weights.sum(axis=0)
-    return np.divide(weights, total, out=np.zeros_like(weights), where=total > 0.0)
-
-
-def balance_heuristic(q: np.ndarray) -> np.ndarray:
-    """Balance heuristic w_i = q_i / sum_k q_k (Veach 1997, section 9.2); q = n_i p_i, shape (k, N)."""
-    return _normalise(np.array(q, dtype=np.float64))
-
-
-def power_heuristic(q: np.ndarray, *, beta: float = 2.0) -> np.ndarray:
-    """Power heuristic w_i = q_i^beta / sum_k q_k^beta (Veach 1997, section 9.2); beta > 0, default 2."""
-    beta = float(beta)
-    if not (beta > 0.0 and math.isfinite(beta)):
-        raise ValueError(f"power heuristic beta must be a finite number > 0, got {beta}")
-    q = np.asarray(q, dtype=np.float64)
-    qmax = q.max(axis=0)
-    # Scaling by the largest q first keeps q**beta finite for sharp lobes and suns.
-    r = np.divide(q, qmax, out=np.zeros_like(q), where=qmax > 0.0)
-    return _normalise(r**beta)
-
-
-def maximum_heuristic(q: np.ndarray) -> np.ndarray:
-    """Maximum heuristic: weight 1 for the strategy with the largest q_i, else 0 (Veach 1997, section 9.2).
-
-    Ties go to the first strategy; all weights are 0 where every q is 0.
-    """
-    q = np.asarray(q, dtype=np.float64)
-    w = np.zeros_like(q)
-    if q.shape[1]:
-        best = np.argmax(q, axis=0)
-        cols = np.arange(q.shape[1])
-        w[best, cols] = (q[best, cols] > 0.0).astype(np.float64)
-    return w
-
-
-@renamed_keywords(alpha="cutoff")
-def cutoff_heuristic(q: np.ndarray, *, cutoff: float = 0.1) -> np.ndarray:
-    """Cutoff heuristic (Veach 1997, section 9.2): drop q_i < cutoff * q_max, balance the rest; 0 <= cutoff <= 1.
-
-    cutoff = 0 is the balance heuristic; cutoff = 1 keeps only the largest (ties share).
-    (Veach writes the threshold alpha; envsample keeps alpha for GGX roughness.)
-    The default 0.1 is our choice, not a published optimum.
-    """
-    cutoff = float(cutoff)
-    if not (0.0 <= cutoff <= 1.0):
-        raise ValueError(f"cutoff heuristic threshold cutoff must lie in [0, 1], got {cutoff}")
-    q = np.asarray(q, dtype=np.float64)
-    qmax = q.max(axis=0)
-    keep = (q >= cutoff * qmax) & (q > 0.0)
-    return _normalise(np.where(keep, q, 0.0))
-
-
-#: Heuristics by name; each takes q = n_i p_i (k, N) and its own keyword parameters.
-HEURISTICS = {
-    "balance": balance_heuristic,
-    "power": power_heuristic,
-    "maximum": maximum_heuristic,
-    "cutoff": cutoff_heuristic,
-}
-_HEURISTIC_PARAMS = {"balance": (), "power": ("beta",), "maximum": (), "cutoff": ("cutoff",)}
-_HEURISTIC_ALIASES = {"max": "maximum"}
-
-
-def _heuristic_name(method: str) -> str:
-    key = _HEURISTIC_ALIASES.get(method, method)
-    if key not in HEURISTICS:
-        valid = ", ".join(list(HEURISTICS) + list(_HEURISTIC_ALIASES))
-        raise ValueError(f"unknown MIS heuristic {method!r}; valid names: {valid}")
-    return key
-
-
-def mis_weights(pdfs, counts, *, method: str = "balance", **params) -> np.ndarray:
-    """MIS weights of k strategies at N points, float64 (k, N).
-
-    Parameters
-    ----------
-    pdfs : array_like (k, N)
-        Density of each strategy at each point, per steradian (any common measure works).
-    counts : array_like (k,)
-        Samples per strategy n_i (multi-sample MIS) or selection probabilities c_i
-        (one-sample MIS); non-negative.
-    method : {"balance", "power", "maximum" (alias "max"), "cutoff"}
-    **params
-        ``beta`` for power (default 2), ``cutoff`` for cutoff (default 0.1).
-    """
-    key = _heuristic_name(method)
-    if key == "cutoff" and "alpha" in params and "cutoff" not in params:
-        warn_renamed("alpha", "cutoff")
-        params["cutoff"] = params.pop("alpha")
-    extra = set(params) - set(_HEURISTIC_PARAMS[key])
-    if extra:
-        allowed = ", ".join(_HEURISTIC_PARAMS[key]) or "none"
-        raise ValueError(f"parameter(s) {', '.join(sorted(extra))} do not apply to the {key} heuristic; allowed: {allowed}")
-    p = np.asarray(pdfs, dtype=np.float64)
-    if p.ndim != 2:
-        raise ValueError(f"pdfs must have shape (k, N), got {p.shape}")
-    c = np.asarray(counts, dtype=np.float64).reshape(-1)
-    if c.shape[0] != p.shape[0]:
-        raise ValueError(f"counts has {c.shape[0]} entries but pdfs has {p.shape[0]} strategies")
-    if np.any(c < 0.0) or np.any(p < 0.0) or not np.all(np.isfinite(p)):
-        raise ValueError("pdfs and counts must be finite and non-negative")
-    return HEURISTICS[key](c[:, None] * p, **params)
-
-
-def sample_counts(spp: int, fractions) -> tuple[int, ...]:
-    """Split ``spp`` samples among strategies in proportion to ``fractions`` (largest remainder), each >= 1."""
-    f = np.asarray(fractions, dtype=np.float64)
-    if spp < f.size:
-        raise ValueError(f"spp={spp} is too small for multi-sample MIS over {f.size} strategies; use spp >= {f.size}")
-    raw = f * spp
-    n = np.floor(raw).astype(np.int64)
-    order = np.argsort(-(raw - n), kind="stable")
-    n[order[: spp - int(n.sum())]] += 1
-    while np.any(n < 1):  # give every strategy at least one sample, taken from the largest
-        n[np.argmax(n)] -= 1
-        n[np.argmin(n)] += 1
-    return tuple(int(x) for x in n)
 
 
 # --- estimator registry ----------------------------------------------------------
@@ -374,74 +231,148 @@ def _safe_ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
     return np.divide(num, den, out=np.zeros_like(num), where=den > 0.0)
 
 
-def _weight_and_radiance(strategies, i, d, p_own, fr, table, shares, heuristic, params):
-    """MIS weight of strategy ``i`` for its samples ``d``, and the map radiance there.
+@dataclass(frozen=True)
+class Combination:
+    """How an estimator draws and weights its samples.
 
-    The table's pdf and the radiance share one direction-to-(u, v) conversion
-    (:meth:`EnvTable.lookup`) when the table is one of the other strategies.
+    ``strategies`` the strategy objects; ``kind`` "single", "multi" (multi-sample MIS
+    with ``counts`` samples of each strategy per normal) or "one-sample" (strategy
+    ``i`` chosen with probability ``fractions[i]``); ``heuristic`` and ``params`` the
+    MIS weighting (:mod:`envsample.estimation.heuristics`).
     """
-    rad = None
-    pdfs = []
-    for k, other in enumerate(strategies):
-        if k == i:
-            pdfs.append(p_own)
-        elif rad is None and isinstance(other, TableStrategy) and other.table is table and hasattr(table, "lookup"):
-            p, rad = table.lookup(d)
-            pdfs.append(np.asarray(p, dtype=np.float64))
-        else:
-            pdfs.append(other.pdf(d, fr))
-    if rad is None:
-        rad = table.eval(d)
-    w = mis_weights(np.stack(pdfs), shares, method=heuristic, **params)[i]
-    return w, np.asarray(rad, dtype=np.float64)
+
+    strategies: tuple
+    kind: str
+    fractions: np.ndarray
+    counts: tuple[int, ...] | None
+    heuristic: str
+    params: dict
+
+    @classmethod
+    def make(cls, strategies, *, kind: str, spp: int, fractions=None, heuristic: str = "balance",
+             params: dict | None = None) -> Combination:
+        """Check the combination and derive its per-strategy sample counts (multi-sample MIS)."""
+        strategies = tuple(strategies)
+        if kind not in ("single", "multi", "one-sample"):
+            raise ValueError(f"unknown estimator kind {kind!r}; valid names: single, multi, one-sample")
+        if kind == "single" and len(strategies) != 1:
+            raise ValueError(f"a single-strategy estimator takes exactly one strategy, got {len(strategies)}")
+        if not strategies:
+            raise ValueError("no strategies given; pass at least one")
+        if all(getattr(s, "compensated", False) for s in strategies):
+            raise ValueError(
+                "a compensated table is valid only inside MIS: combine it with a strategy that covers the whole "
+                "integrand (e.g. estimator 'mis-balance') or build the table with compensate=False"
+            )
+        heuristic = heuristic_name(heuristic)
+        params = dict(params or {})
+        k = len(strategies)
+        frac = _fractions(fractions, k) if kind != "single" else np.ones(1)
+        if kind != "single":
+            mis_weights(np.ones((k, 1)), frac, method=heuristic, **params)  # validates params up front
+        counts = sample_counts(spp, frac) if kind == "multi" else None
+        return cls(strategies, kind, frac, counts, heuristic, params)
+
+    @property
+    def dims(self) -> int:
+        """Uniform numbers per sample: two for the direction, one more to choose the strategy (one-sample MIS)."""
+        return 3 if self.kind == "one-sample" else 2
+
+    def weight_and_radiance(self, i: int, d, p_own, frame, table, shares):
+        """MIS weight of strategy ``i`` for its samples ``d``, and the map radiance there.
+
+        The table's pdf and the radiance share one direction-to-(u, v) conversion
+        (:meth:`EnvTable.lookup`) when the table is one of the other strategies.
+        """
+        rad = None
+        pdfs = []
+        for k, other in enumerate(self.strategies):
+            if k == i:
+                pdfs.append(p_own)
+            elif rad is None and isinstance(other, TableStrategy) and other.table is table and hasattr(table, "lookup"):
+                p, rad = table.lookup(d)
+                pdfs.append(np.asarray(p, dtype=np.float64))
+            else:
+                pdfs.append(other.pdf(d, frame))
+        if rad is None:
+            rad = table.eval(d)
+        w = mis_weights(np.stack(pdfs), shares, method=self.heuristic, **self.params)[i]
+        return w, np.asarray(rad, dtype=np.float64)
 
 
-def _multi_chunk(strategies, counts, heuristic, params, factor, table, frame, u, contrib_y, primaries):
+@dataclass(frozen=True)
+class Integrand:
+    """``L(w) factor(w)`` at a shading frame: the map (``table.eval``) times a non-negative factor.
+
+    ``factor(directions, frame) -> (M,)`` is ``max(0, n.w)`` for irradiance, ``f max(0, n.w)``
+    for a BSDF; ``primaries`` name the luminance of the per-sample contributions.
+    """
+
+    table: object
+    factor: object
+    primaries: str
+
+
+@dataclass
+class _Tally:
+    """Where a chunk writes its per-sample luminance contributions and strategy indices (or nothing)."""
+
+    contributions: np.ndarray | None = None
+    strategy: np.ndarray | None = None
+
+    def record(self, shape, scale, rad, primaries, sel=None) -> None:
+        if self.contributions is not None:
+            self.contributions[:] = (scale * luminance(rad, primaries)).reshape(shape)
+            if sel is not None:
+                self.strategy[:] = sel.reshape(shape)
+
+
+def _multi_chunk(combo: Combination, f: Integrand, frame, u, tally: _Tally):
     m, spp = u.shape[0], u.shape[1]
     est = np.zeros((m, 3))
     start = 0
-    for i, (s, n) in enumerate(zip(strategies, counts)):
+    for i, (s, n) in enumerate(zip(combo.strategies, combo.counts)):
         fr = frame.repeat(n)
         d, p_own = s.sample(u[:, start:start + n, :2].reshape(-1, 2), fr)
-        w, rad = _weight_and_radiance(strategies, i, d, p_own, fr, table, counts, heuristic, params)
-        scale = _safe_ratio(w * factor(d, fr), p_own) * (spp / n)
+        w, rad = combo.weight_and_radiance(i, d, p_own, fr, f.table, combo.counts)
+        scale = _safe_ratio(w * f.factor(d, fr), p_own) * (spp / n)
         est += (scale[:, None] * rad).reshape(m, n, 3).sum(axis=1)
-        if contrib_y is not None:
-            contrib_y[:, start:start + n] = (scale * luminance(rad, primaries)).reshape(m, n)
+        if tally.contributions is not None:
+            tally.contributions[:, start:start + n] = (scale * luminance(rad, f.primaries)).reshape(m, n)
         start += n
     return est / spp
 
 
-def _one_sample_chunk(strategies, fractions, heuristic, params, factor, table, frame, u, contrib_y, strat, primaries):
+def _one_sample_chunk(combo: Combination, f: Integrand, frame, u, tally: _Tally):
     m, spp = u.shape[0], u.shape[1]
     flat_u = u.reshape(-1, 3)
-    sel = np.searchsorted(np.cumsum(fractions)[:-1], flat_u[:, 2], side="right")
+    sel = np.searchsorted(np.cumsum(combo.fractions)[:-1], flat_u[:, 2], side="right")
     fr_all = frame.repeat(spp)
     scale = np.zeros(m * spp)
     rad = np.zeros((m * spp, 3))
-    for i, s in enumerate(strategies):
+    for i, s in enumerate(combo.strategies):
         idx = np.nonzero(sel == i)[0]
         if idx.size == 0:
             continue
         fr = fr_all.take(idx)
         d, p_own = s.sample(flat_u[idx, :2], fr)
-        w, rad[idx] = _weight_and_radiance(strategies, i, d, p_own, fr, table, fractions, heuristic, params)
-        scale[idx] = _safe_ratio(w * factor(d, fr), fractions[i] * p_own)
-    if contrib_y is not None:
-        contrib_y[:] = (scale * luminance(rad, primaries)).reshape(m, spp)
-        strat[:] = sel.reshape(m, spp)
+        w, rad[idx] = combo.weight_and_radiance(i, d, p_own, fr, f.table, combo.fractions)
+        scale[idx] = _safe_ratio(w * f.factor(d, fr), combo.fractions[i] * p_own)
+    tally.record((m, spp), scale, rad, f.primaries, sel)
     return (scale[:, None] * rad).reshape(m, spp, 3).mean(axis=1)
 
 
-def _single_chunk(strategy, factor, table, frame, u, contrib_y, primaries):
+def _single_chunk(combo: Combination, f: Integrand, frame, u, tally: _Tally):
     m, spp = u.shape[0], u.shape[1]
     fr = frame.repeat(spp)
-    d, p = strategy.sample(u.reshape(-1, 2), fr)
-    scale = _safe_ratio(factor(d, fr), p)
-    rad = np.asarray(table.eval(d), dtype=np.float64)
-    if contrib_y is not None:
-        contrib_y[:] = (scale * luminance(rad, primaries)).reshape(m, spp)
+    d, p = combo.strategies[0].sample(u.reshape(-1, 2), fr)
+    scale = _safe_ratio(f.factor(d, fr), p)
+    rad = np.asarray(f.table.eval(d), dtype=np.float64)
+    tally.record((m, spp), scale, rad, f.primaries)
     return (scale[:, None] * rad).reshape(m, spp, 3).mean(axis=1)
+
+
+_CHUNKS = {"single": _single_chunk, "multi": _multi_chunk, "one-sample": _one_sample_chunk}
 
 
 def estimate(table, frame: Frame, factor, strategies, *, kind: str = "single", fractions=None, spp: int,
@@ -453,69 +384,45 @@ def estimate(table, frame: Frame, factor, strategies, *, kind: str = "single", f
     besides the map radiance (``max(0, n.w)`` for irradiance).  ``strategies`` is a
     sequence of strategy objects; ``kind`` "single" (exactly one strategy), "multi"
     (multi-sample MIS with ``sample_counts(spp, fractions)`` samples each) or
-    "one-sample" (selection probabilities ``fractions``).  Returns (N, 3) float64
-    and, with ``return_samples``, an :class:`EstimatorSamples`.
+    "one-sample" (selection probabilities ``fractions``); see :class:`Combination`.
+    Returns (N, 3) float64 and, with ``return_samples``, an :class:`EstimatorSamples`.
 
     A compensated table strategy cannot be the only strategy (nor can all strategies
     be compensated): it is zero where the map is dimmer than its mean, so alone it is
     biased.  ValueError "valid only inside MIS".
     """
     spp = _check_spp(spp)
-    strategies = tuple(strategies)
-    if kind not in ("single", "multi", "one-sample"):
-        raise ValueError(f"unknown estimator kind {kind!r}; valid names: single, multi, one-sample")
-    if kind == "single" and len(strategies) != 1:
-        raise ValueError(f"a single-strategy estimator takes exactly one strategy, got {len(strategies)}")
-    if not strategies:
-        raise ValueError("no strategies given; pass at least one")
-    if all(getattr(s, "compensated", False) for s in strategies):
-        raise ValueError(
-            "a compensated table is valid only inside MIS: combine it with a strategy that covers the whole "
-            "integrand (e.g. estimator 'mis-balance') or build the table with compensate=False"
-        )
-    heuristic = _heuristic_name(heuristic)
-    params = dict(params or {})
-    k = len(strategies)
-    frac = _fractions(fractions, k) if kind != "single" else np.ones(1)
-    counts = sample_counts(spp, frac) if kind == "multi" else None
-    if kind != "single":
-        mis_weights(np.ones((k, 1)), frac, method=heuristic, **params)  # validates params up front
-    primaries = getattr(table, "primaries", "bt709")
+    combo = Combination.make(strategies, kind=kind, spp=spp, fractions=fractions, heuristic=heuristic, params=params)
+    f = Integrand(table, factor, getattr(table, "primaries", "bt709"))
     n = len(frame)
     rng = np.random.default_rng(seed)
-    dims = 3 if kind == "one-sample" else 2
     out = np.zeros((n, 3))
-    contrib = np.zeros((n, spp)) if return_samples else None
-    strat = np.zeros((n, spp), dtype=np.int8) if return_samples else None
-    if return_samples and kind == "multi":
-        strat[:] = np.repeat(np.arange(k, dtype=np.int8), counts)[None, :]
+    tally = _Tally()
+    if return_samples:
+        tally = _Tally(np.zeros((n, spp)), np.zeros((n, spp), dtype=np.int8))
+        if kind == "multi":
+            tally.strategy[:] = np.repeat(np.arange(len(combo.strategies), dtype=np.int8), combo.counts)[None, :]
+    chunk = _CHUNKS[kind]
     step = max(1, int(max_chunk_samples) // spp)
     for lo in range(0, n, step):
         hi = min(n, lo + step)
         # Drawn normal-major in one fixed order: the stream does not depend on ``step``.
-        u = rng.random((hi - lo, spp, dims))
-        fr = frame.take(slice(lo, hi))
-        cy = None if contrib is None else contrib[lo:hi]
-        if kind == "single":
-            out[lo:hi] = _single_chunk(strategies[0], factor, table, fr, u, cy, primaries)
-        elif kind == "multi":
-            out[lo:hi] = _multi_chunk(strategies, counts, heuristic, params, factor, table, fr, u, cy, primaries)
-        else:
-            st = None if strat is None else strat[lo:hi]
-            out[lo:hi] = _one_sample_chunk(strategies, frac, heuristic, params, factor, table, fr, u, cy, st, primaries)
+        u = rng.random((hi - lo, spp, combo.dims))
+        part = _Tally() if not return_samples else _Tally(tally.contributions[lo:hi], tally.strategy[lo:hi])
+        out[lo:hi] = chunk(combo, f, frame.take(slice(lo, hi)), u, part)
     if not return_samples:
         return out
     samples = EstimatorSamples(
         estimator=name,
         kind=kind,
-        strategies=tuple(getattr(s, "name", type(s).__name__) for s in strategies),
-        contributions=contrib,
-        strategy=strat,
-        counts=counts,
-        fractions=None if kind == "single" else tuple(float(x) for x in frac),
+        strategies=tuple(getattr(s, "name", type(s).__name__) for s in combo.strategies),
+        contributions=tally.contributions,
+        strategy=tally.strategy,
+        counts=combo.counts,
+        fractions=None if kind == "single" else tuple(float(x) for x in combo.fractions),
         seed=seed,
-        heuristic=None if kind == "single" else heuristic,
-        params=params,
+        heuristic=None if kind == "single" else combo.heuristic,
+        params=combo.params,
     )
     return out, samples
 

@@ -422,9 +422,9 @@ static PyObject *irradiance_rows(PyObject *self, PyObject *args) {
 
 /* ---- glossy reference: GGX (F = 1) f(wi, wo) max(0, n.wi), 2x2 Gauss-Legendre per rectangle ---- */
 
-/* The integrand of envsample.sampling.strategies.GGXReflection.eval times the cosine, in the
+/* The integrand of envsample.sampling.ggx.GGXReflection.eval times the cosine, in the
    local frame of the normal (z along n): D of Walter et al. (2007), height-correlated Smith
-   G2 of Heitz (2014), written as in strategies.ggx_d / ggx_lambda / ggx_g2. */
+   G2 of Heitz (2014), written as in ggx_d / ggx_lambda / ggx_g2 of envsample.sampling.ggx. */
 static inline double ggx_kernel(const double wi[3], const double wo[3], double a2) {
     if (wi[2] <= 0.0 || wo[2] <= 0.0) return 0.0;
     double hx = wi[0] + wo[0], hy = wi[1] + wo[1], hz = wi[2] + wo[2];

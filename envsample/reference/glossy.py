@@ -6,7 +6,7 @@ Public objects
 :func:`reference_glossy_accuracy`  the same at two quadrature resolutions, for the report.
 
 ``L_o(n, wo) = integral of L(w) f(w, wo) max(0, n.w) dw`` with the GGX reflection of
-:class:`envsample.sampling.strategies.GGXReflection` (Walter et al. 2007 distribution,
+:class:`envsample.sampling.ggx.GGXReflection` (Walter et al. 2007 distribution,
 height-correlated Smith masking-shadowing of Heitz 2014, F = 1); the integrand is evaluated
 by that class, so reference and estimators share one BRDF.  The map is piecewise constant
 per cell (conventions of :mod:`envsample.reference.grid`).  Each cell, a rectangle in
@@ -37,7 +37,8 @@ import numpy as np
 from envsample.core.compat import renamed_keywords
 from envsample.core.sphere import orthonormal_basis
 from envsample.reference.grid import KERNELS, Grid, map_frame, prepare_map, thread_count, unit_normals
-from envsample.sampling.strategies import MIN_ROUGHNESS, Frame, GGXReflection
+from envsample.sampling.frames import MIN_ROUGHNESS, Frame
+from envsample.sampling.ggx import GGXReflection
 
 __all__ = ["reference_glossy", "reference_glossy_accuracy"]
 
@@ -70,7 +71,7 @@ def _pair_vectors(normals, wo, roughness):
 
 
 def _glossy_kernel(d_world, n, wo, alpha):
-    """f(d, wo) max(0, n.d) of the strategies' GGX reflection for one (n, wo, alpha), 1/sr."""
+    """f(d, wo) max(0, n.d) of the strategies' GGX reflection (sampling.ggx) for one (n, wo, alpha), 1/sr."""
     m = d_world.shape[0]
     frame = Frame(np.broadcast_to(n, (m, 3)), np.broadcast_to(wo, (m, 3)), np.full(m, alpha))
     f = _GGX.eval(d_world, frame)
@@ -146,7 +147,7 @@ def _rect_integral(frame, n, wo, alpha, t0, t1, p0, p1, mod=None):
     """
     if mod is not None:
         t, b = orthonormal_basis(n[None, :])
-        axes = np.stack([t[0], b[0], n])  # the local frame strategies.Frame uses (z along n)
+        axes = np.stack([t[0], b[0], n])  # the local frame sampling.frames.Frame uses (z along n)
         out = np.empty(t0.size)
         mod.ggx_rects(*(np.ascontiguousarray(a, dtype=np.float64) for a in (t0, t1, p0, p1)),
                       np.ascontiguousarray(axes @ frame.T), np.ascontiguousarray(axes @ wo), float(alpha), out)
@@ -169,7 +170,7 @@ def reference_glossy(rgb, normals, wo, roughness, *, up: str = "y", rotation_deg
     """Outgoing radiance of a GGX reflector (F = 1) lit by the map, by deterministic quadrature.
 
     ``L_o(n, wo) = integral of L(w) f(w, wo) max(0, n.w) dw`` with ``f`` the GGX reflection of
-    :class:`envsample.strategies.GGXReflection`: distribution D of Walter et al. (2007),
+    :class:`envsample.sampling.ggx.GGXReflection`: distribution D of Walter et al. (2007),
     height-correlated Smith G2 of Heitz (2014), Fresnel F = 1 (a lossless white
     reflector, so a uniform white map returns the directional albedo).
 

@@ -22,7 +22,8 @@ from __future__ import annotations
 import math
 
 from envsample._version import __version__
-from envsample.estimation.estimators import _heuristic_name, estimate_irradiance
+from envsample.estimation.estimators import estimate_irradiance
+from envsample.estimation.heuristics import heuristic_name
 from envsample.validation.grid import normal_grid
 from envsample.validation.metrics import CAUTION, json_number, weighted_variance
 from envsample.validation.streams import check_normals, check_seed, check_spp, stream
@@ -81,7 +82,7 @@ def tune_one_sample(table, *, fractions=DEFAULT_FRACTIONS, heuristics=("balance"
         heuristics = (heuristics,)
     hs = []
     for hname in heuristics:
-        key = _heuristic_name(hname)
+        key = heuristic_name(hname)
         if key not in hs:
             hs.append(key)
     if not hs:

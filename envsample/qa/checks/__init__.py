@@ -9,8 +9,20 @@ from __future__ import annotations
 from collections.abc import Callable
 
 from envsample.qa.checks.clipping import check_clipping
-from envsample.qa.checks.container import check_channels, check_chromaticities, check_hdr, check_pixel_type, check_read
-from envsample.qa.checks.geometry import check_aspect, check_orientation, check_poles, check_resolution, check_seam
+from envsample.qa.checks.container import (
+    check_channels,
+    check_chromaticities,
+    check_hdr,
+    check_pixel_type,
+    check_read,
+)
+from envsample.qa.checks.geometry import (
+    check_aspect,
+    check_orientation,
+    check_poles,
+    check_resolution,
+    check_seam,
+)
 from envsample.qa.checks.light import check_dynamic_range, check_light_level, check_sun
 from envsample.qa.checks.pixels import check_inf, check_nan, check_negative
 from envsample.qa.checks.sampling import check_sampling
