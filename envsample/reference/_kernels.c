@@ -2,6 +2,7 @@
  * Optional compiled kernel of the exact reference irradiance (built by setup.py when a C
  * compiler is available; envsample.reference.boundary holds the numpy code used otherwise).
  *
+ * row_sums        : per-row float64 sums of the map (first moment, absolute power).
  * ggx_rects       : the integrand of the glossy reference (envsample.reference.glossy)
  *                   integrated over (theta, phi) rectangles by 2x2 Gauss-Legendre.
  * irradiance_rows : the boundary form of E(n) = integral of L(w) max(0, n.w) dw
@@ -420,6 +421,47 @@ static PyObject *irradiance_rows(PyObject *self, PyObject *args) {
     Py_RETURN_NONE;
 }
 
+/* row_sums(L: float32/float64 [H*W*3], is_double, H, W, cph, sph: float64 [W+1] each (one buffer),
+ *          out: float64 [H*12]): per row and channel, float64 sums of L (sin phi_(j+1) - sin phi_j),
+ *          L (cos phi_j - cos phi_(j+1)), L and |L| (the first moment's row factors and the
+ *          absolute power of reference_accuracy, in one pass). */
+static PyObject *row_sums(PyObject *self, PyObject *args) {
+    (void)self;
+    Py_buffer lb, cb, ob;
+    int dbl;
+    Py_ssize_t H, W;
+    if (!PyArg_ParseTuple(args, "y*inny*w*", &lb, &dbl, &H, &W, &cb, &ob)) return NULL;
+    Py_ssize_t esize = dbl ? (Py_ssize_t)sizeof(double) : (Py_ssize_t)sizeof(float);
+    if (H < 1 || W < 1 || lb.len != H * W * 3 * esize || cb.len != 2 * (W + 1) * (Py_ssize_t)sizeof(double) ||
+        ob.len != H * 12 * (Py_ssize_t)sizeof(double)) {
+        PyBuffer_Release(&lb); PyBuffer_Release(&cb); PyBuffer_Release(&ob);
+        PyErr_SetString(PyExc_ValueError, "row_sums: buffer sizes do not match");
+        return NULL;
+    }
+    map_t m;
+    m.L = lb.buf; m.dbl = dbl; m.H = H; m.W = W;
+    m.cph = (const double *)cb.buf; m.sph = m.cph + (W + 1);
+    double *out = (double *)ob.buf;
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t r = 0; r < H; r++) {
+        double a[12] = {0}, v[3];
+        for (Py_ssize_t j = 0; j < W; j++) {
+            pix(&m, r, j, v);
+            double ds = m.sph[j + 1] - m.sph[j], dc = m.cph[j] - m.cph[j + 1];
+            for (int c = 0; c < 3; c++) {
+                a[c] += v[c] * ds;
+                a[3 + c] += v[c] * dc;
+                a[6 + c] += v[c];
+                a[9 + c] += fabs(v[c]);
+            }
+        }
+        for (int k = 0; k < 12; k++) out[r * 12 + k] = a[k];
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&lb); PyBuffer_Release(&cb); PyBuffer_Release(&ob);
+    Py_RETURN_NONE;
+}
+
 /* ---- glossy reference: GGX (F = 1) f(wi, wo) max(0, n.wi), 2x2 Gauss-Legendre per rectangle ---- */
 
 /* The integrand of envsample.sampling.ggx.GGXReflection.eval times the cosine, in the
@@ -489,6 +531,7 @@ static PyObject *ggx_rects(PyObject *self, PyObject *args) {
 static PyMethodDef methods[] = {
     {"irradiance_rows", irradiance_rows, METH_VARARGS,
      "Exact irradiance of a piecewise-constant map, the share of a range of rows (boundary form)."},
+    {"row_sums", row_sums, METH_VARARGS, "Per-row float64 sums of the map for its first moment and power."},
     {"ggx_rects", ggx_rects, METH_VARARGS, "GGX (F = 1) kernel integrated over (theta, phi) rectangles, 2x2 Gauss-Legendre."},
     {NULL, NULL, 0, NULL},
 };

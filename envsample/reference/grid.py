@@ -60,8 +60,10 @@ def map_array(rgb, name: str = "rgb") -> np.ndarray:
     return arr
 
 
-def prepare_map(rgb, size) -> np.ndarray:
-    arr = map_array(rgb)
+def prepare_map(rgb, size, *, checked: bool = False) -> np.ndarray:
+    """:func:`map_array` (skipped when ``checked``: ``rgb`` is already its result), then reduced to
+    ``size`` ((width, height), "WxH" or None) with the table's power-preserving box filter."""
+    arr = rgb if checked else map_array(rgb)
     wh = parse_size(size)
     if wh is not None and wh != (arr.shape[1], arr.shape[0]):
         if wh[0] < 2:
