@@ -256,6 +256,7 @@ def _classify_cols(g: Grid, wx, wy, nx, ny):
 
 
 def chunk_size(chunk, grid_h: int, grid_w: int) -> int:
+    """Normals per batch: ``chunk`` checked (a positive integer), or about 1e6 / (2H + W) when None."""
     if chunk is None:
         return max(1, _CHUNK_ELEMENTS // (2 * grid_h + grid_w + 2))
     chunk = int(chunk)
