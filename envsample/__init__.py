@@ -84,9 +84,9 @@ _EXPORTS = {
     # reference and verify
     "reference_irradiance": "reference.irradiance",
     "reference_accuracy": "reference.irradiance",
-    "reference_glossy": "reference.irradiance",
-    "sh9_project": "reference.irradiance",
-    "sh9_irradiance": "reference.irradiance",
+    "reference_glossy": "reference.glossy",
+    "sh9_project": "reference.sh9",
+    "sh9_irradiance": "reference.sh9",
     "verify_map": "pipeline.verify",
     "tune_one_sample": "validation.tuning",
     "recommend": "validation.tuning",

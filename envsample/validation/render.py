@@ -408,7 +408,9 @@ def render_validation(table, *, spp: int = 64, normals=(128, 64), estimators=Non
     t0 = time.perf_counter()
     ref = reference_irradiance(table.image, n, up=table.up, rotation_deg=table.rotation_deg)
     ref_seconds = time.perf_counter() - t0
+    t0 = time.perf_counter()
     accuracy = reference_accuracy(table.image, n, up=table.up, rotation_deg=table.rotation_deg)
+    accuracy_seconds = time.perf_counter() - t0
     ref32 = ref.astype(np.float32)
     ebar = error_metrics(ref32, ref32, weights, primaries=table.primaries)["reference_mean"]
     ref_acc = float(accuracy.get("relative_error_bound") or 0.0)
@@ -427,7 +429,8 @@ def render_validation(table, *, spp: int = 64, normals=(128, 64), estimators=Non
         glossy = glossy_check(table, roughness, spp, seed)
     return ValidationResult(
         table=table, grid=grid_wh, normals=n, weights=weights, spp=spp, seed=seed, reference=ref32,
-        reference_facts={**accuracy, "seconds": ref_seconds, "mean_luminance": ebar},
+        reference_facts={**accuracy, "seconds": ref_seconds, "accuracy_seconds": accuracy_seconds,
+                         "mean_luminance": ebar},
         estimates={name: r.estimate for name, r in results.items()}, entries=entries, recommended=recommended,
         convergence=conv, glossy=glossy, notes=notes,
     )

@@ -497,3 +497,23 @@ def test_verify_figures_match_the_closed_form_variance_of_a_constant_sky(tmp_pat
     assert run_batch([lib], out, workers=0, verify=True).maps[0].status == "skipped"
     plain = run_batch([lib], out, workers=0)
     assert plain.maps[0].status == "done" and not (out / plain.maps[0].folder / "verify").exists()
+
+
+def test_verify_reports_the_exact_reference_bound_in_the_summary_and_its_time_in_the_manifest(tmp_path):
+    """The reference's relative error bound (seed-independent, so byte-stable) is a summary field;
+    its seconds, a timing, stay out of the summaries and reach the command through the row."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "sky.exr", make_sky("rooftop", width=WIDTH))
+    out = tmp_path / "out"
+    m = run_batch([lib], out, workers=0, verify=True).maps[0]
+    metrics = json.loads((out / m.folder / "verify" / "metrics.json").read_text())
+    bound = metrics["reference"]["relative_error_bound"]
+    assert 0.0 <= bound < 1e-9 and m.figures["verify_reference_bound"] == bound
+    assert metrics["reference"]["resolution"] == [m.figures["table_width"], m.figures["table_height"]]
+    assert m.figures["verify_reference_seconds"] == metrics["reference"]["seconds"] > 0.0
+    row = json.loads((out / "summary.json").read_text())["maps"][0]
+    assert row["verify_reference_bound"] == bound and "verify_reference_seconds" not in row
+    skipped = run_batch([lib], out, workers=0, verify=True).maps[0]
+    assert skipped.status == "skipped"
+    assert skipped.figures["verify_reference_seconds"] == m.figures["verify_reference_seconds"]
