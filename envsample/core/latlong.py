@@ -12,11 +12,14 @@ References
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from envsample.core.sphere import row_cos_edges, row_solid_angles
 
-__all__ = ["MAPPINGS", "parse_size", "reduce_power", "block_mean", "row_channel_sums", "RowWeightedSample"]
+__all__ = ["MAPPINGS", "parse_size", "reduce_power", "block_mean", "row_channel_sums", "row_cosine_weights",
+           "RowWeightedSample"]
 
 #: In-cell mappings a sampling table can use: ``equal-area`` (cos theta uniform within a
 #: cell's row band, constant pdf per steradian) or ``uv-linear`` (v uniform within the row).
@@ -132,6 +135,17 @@ def block_mean(values: np.ndarray, factor: int, *, valid: np.ndarray | None = No
     count = ok.sum(axis=(1, 3))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(count > 0, total / np.maximum(count, 1), np.nan)
+
+
+def row_cosine_weights(height: int, width: int) -> np.ndarray:
+    """Integral of cos(theta) over one pixel of each row above the horizon, sr (H,): pi/W (sin^2 b - sin^2 a).
+
+    Rows below the horizon weigh 0; ``row sums @ weights`` is the irradiance of an up-facing
+    surface (textbook calculus: the cos-weighted solid angle of a latitude band).
+    """
+    edges = np.minimum(np.pi * np.arange(height + 1) / height, math.pi / 2.0)
+    s2 = np.sin(edges) ** 2
+    return (math.pi / width) * np.diff(s2)
 
 
 class RowWeightedSample:

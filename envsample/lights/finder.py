@@ -89,8 +89,9 @@ class SunEstimate:
     hole (map units x sr), ``radiance_rgb = power_rgb / solid_angle_sr``; ``share`` of the
     map's luminance integral; ``clipped`` and ``clipping`` (why); ``confidence`` in [0, 1]
     and ``notes`` (the reasons); ``resolved`` (wider than two pixels).  ``rows`` is the
-    band ``(first, stop)`` holding the hole, ``hole`` its (stop - first, W) mask and
-    ``sky_band`` the band with the hole filled (float32), for the split.
+    band ``(first, stop)`` holding the hole, ``hole`` its (stop - first, W) mask, ``core``
+    the emitter's pixels in that band and ``sky_band`` the band with the hole filled
+    (float32), for the split.
     """
 
     direction: np.ndarray
@@ -109,6 +110,7 @@ class SunEstimate:
     emitter: Emitter
     rows: tuple[int, int]
     hole: np.ndarray
+    core: np.ndarray
     sky_band: np.ndarray
     clipping: dict | None = None
     notes: list[str] = field(default_factory=list)
@@ -381,6 +383,6 @@ def _measure(img, lum, omega, label_img, sun: Emitter, total, median, opt, clip,
         diameter_deg=math.degrees(2.0 * r), solid_angle_sr=solid, power_rgb=power_rgb,
         radiance_rgb=power_rgb / solid, share=share, clipped=clipping is not None, confidence=conf,
         resolved=2.0 * r > 2.0 * math.radians(px), pixel_diameter_deg=px, glare_radius_deg=math.degrees(radius),
-        emitter=sun, rows=(lo2, hi2), hole=hole, sky_band=sky_band, clipping=clipping, notes=notes,
+        emitter=sun, rows=(lo2, hi2), hole=hole, core=core, sky_band=sky_band, clipping=clipping, notes=notes,
         parameters=dict(opt) | {"power_luminance": float((e_lum * w_rows).sum())}, up=up, rotation_deg=rotation_deg,
     )
