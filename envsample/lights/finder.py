@@ -160,8 +160,8 @@ def _options(options: dict) -> dict:
 
 def _clean(rgb) -> np.ndarray:
     a = np.asarray(rgb)
-    if a.ndim != 3 or a.shape[2] != 3 or a.shape[1] != 2 * a.shape[0]:
-        raise ValueError(f"rgb must be an equirectangular (H, 2H, 3) image, got shape {a.shape}")
+    if a.ndim != 3 or a.shape[2] != 3 or min(a.shape[:2]) < 2:
+        raise ValueError(f"rgb must be a lat-long (H, W, 3) image (2:1 for an equirectangular map), got shape {a.shape}")
     a = a.astype(np.float32, copy=False)
     if not np.all(np.isfinite(a)) or float(a.min()) < 0.0:
         a = np.where(np.isfinite(a) & (a > 0), a, np.float32(0.0)).astype(np.float32)

@@ -55,6 +55,8 @@ def check_sun(ctx: CheckContext) -> CheckResult:
     sunlike = [e for e in listed if e.diameter_deg <= s["compact_max_deg"]]
     details = {"emitters": [e.to_dict() | {"sun_like": e.diameter_deg <= s["compact_max_deg"]} for e in listed],
                "sun_diameter_deg": SUN_ANGULAR_DIAMETER_DEG}
+    if sunlike and ctx.sun is not None:
+        details["sun"] = ctx.sun.to_dict()  # the shared finder's measures (the same as envsample split)
     if not sunlike:
         if listed:
             e = listed[0]
