@@ -31,7 +31,7 @@ from envsample.pipeline.workflow import check_output_folder
 from envsample.sampling.sun import SunLight
 from envsample.sampling.table import EnvTable, build_table
 
-__all__ = ["SplitResult", "split_map_file", "load_sun"]
+__all__ = ["SplitResult", "split_map_file", "load_sun", "SplitSource", "find_split", "verify_split"]
 
 
 @dataclass
@@ -100,3 +100,69 @@ def load_sun(path) -> SunLight:
     except (KeyError, TypeError, ValueError) as exc:
         raise TableFormatError(f"{p}: malformed sun file ({type(exc).__name__}: {exc}); "
                                "run 'envsample split' again") from None
+
+
+@dataclass
+class SplitSource:
+    """The files of a split found from what the user gave ``verify``: the sky's table, the sun, the original map."""
+
+    table: Path
+    sun: Path
+    original: Path | None
+
+
+def find_split(source) -> SplitSource | None:
+    """The split behind ``source`` (a folder written by ``envsample split`` or the sky's table), or None.
+
+    A folder must hold exactly one ``*.sky.json`` table; a table is a split's when its JSON names
+    a sun file under ``"lights"``.  The original map is the one the sun file names, if it still exists.
+    """
+    if not isinstance(source, (str, Path)):
+        return None
+    p = Path(source)
+    if p.is_dir():
+        tables = sorted(p.glob("*.sky.json"))
+        if len(tables) != 1:
+            return None
+        p = tables[0]
+    json_path = p if p.suffix == ".json" else p.with_suffix(".json") if p.suffix in (".npz", ".bin") else \
+        p.parent / (p.name + ".json")
+    try:
+        doc = json.loads(json_path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    lights = doc.get("lights") if isinstance(doc, dict) else None
+    if not lights:
+        return None
+    sun_path = json_path.parent / str(lights[0].get("file"))
+    original = None
+    try:
+        src = json.loads(sun_path.read_text(encoding="utf-8")).get("source", {}).get("map")
+        if src and Path(src).exists():
+            original = Path(src)
+    except (OSError, ValueError, AttributeError):
+        pass
+    return SplitSource(table=json_path, sun=sun_path, original=original)
+
+
+def verify_split(split: SplitSource, sky_table: EnvTable, outdir, *, spp: int, normals, seed: int) -> dict:
+    """Compare the split with its original map (:func:`envsample.validation.split.compare_split`), write split.json.
+
+    The comparison uses at most 64 x 32 normals of the verify grid's size.  Returns the JSON
+    document; without the original map (moved or deleted) it says so and compares nothing.
+    """
+    from envsample.validation.split import compare_split
+
+    out = Path(outdir)
+    if split.original is None:
+        doc = {"compared": False, "reason": f"{split.sun}: the original map it names is not there; "
+                                            "verify the original beside the split to compare them"}
+    else:
+        image, _ = validate_map(read_map(split.original))
+        original = build_table(image, primaries=sky_table.primaries, up=sky_table.up,
+                               rotation_deg=sky_table.rotation_deg)
+        grid = (min(64, int(normals[0])), min(32, int(normals[1])))
+        doc = {"compared": True, "original": str(split.original), "sun_file": str(split.sun)}
+        doc |= compare_split(original, sky_table, load_sun(split.sun), spp=spp, normals=grid, seed=seed).to_dict()
+    atomic_write_text(out / "split.json", json.dumps(doc, indent=2) + "\n")
+    return doc

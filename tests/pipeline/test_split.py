@@ -58,3 +58,14 @@ def test_load_sun_refuses_another_schema(tmp_path):
     p.write_text(json.dumps({"schema": "envsample.table", "schema_version": 1}))
     with pytest.raises(Exception, match="envsample.sun"):
         load_sun(p)
+
+
+def test_verify_on_a_split_folder_compares_it_with_the_original(sun_map, tmp_path):
+    from envsample.pipeline.verify import verify_map
+
+    split_map_file(sun_map, tmp_path / "s")
+    doc = verify_map(tmp_path / "s", tmp_path / "v", spp=8, normals=(16, 8), sphere=False)
+    assert doc["split"]["compared"] and doc["split"]["consistent"]
+    saved = json.loads((tmp_path / "v" / "split.json").read_text())
+    assert set(saved["estimators"]) == {"unsplit:table", "unsplit:mis-balance", "split:sun-mis-balance",
+                                        "split:sun-one-sample-balance"}
