@@ -152,6 +152,7 @@ ROW_FIELDS = (
     "table_note",
     "verify_rmse_table",
     "verify_rmse_mis",
+    "split_note",
 )
 
 

@@ -31,7 +31,7 @@ from envsample.pipeline.workflow import check_output_folder
 from envsample.sampling.sun import SunLight
 from envsample.sampling.table import EnvTable, build_table
 
-__all__ = ["SplitResult", "split_map_file", "load_sun", "SplitSource", "find_split", "verify_split"]
+__all__ = ["SplitResult", "split_map_file", "write_split", "load_sun", "SplitSource", "find_split", "verify_split"]
 
 
 @dataclass
@@ -63,20 +63,27 @@ def split_map_file(map_path, outdir, *, restore: str | None = None, sun_illumina
     image, notes = validate_map(image, repair=repair, allow_aspect=allow_aspect)
     sp = split_sun(image.rgb, primaries=primaries, up=up, rotation_deg=rotation_deg, restore=restore,
                    sun_illuminance=sun_illuminance, linke_turbidity=linke_turbidity, altitude_m=altitude_m)
-    stem = Path(map_path).stem
-    names = {"sky_map": f"{stem}.sky.exr", "sun": f"{stem}.sun.json", "table": f"{stem}.sky.json"}
-    table = build_table(sp.sky, size=size, primaries=primaries, up=up, rotation_deg=rotation_deg)
-    table.metadata["lights"] = [{"kind": "sun", "file": names["sun"], "schema": SUN_SCHEMA.name,
-                                 "schema_version": SUN_SCHEMA.version}]
     if make_dirs and not out.exists():
         out.mkdir(parents=True)
+    table, paths = write_split(sp, out, Path(map_path).stem, source={"map": str(map_path), "sha256": image.sha256},
+                               size=size)
+    return SplitResult(split=sp, table=table, paths=paths, balance=sp.energy_balance(image.rgb), notes=list(notes))
+
+
+def write_split(sp: SunSplit, out: Path, stem: str, *, source: dict, size=None) -> tuple[EnvTable, dict]:
+    """Build the sky's table and write ``STEM.sky.exr``, ``STEM.sun.json``, ``STEM.sky.npz/.json`` into ``out``.
+
+    ``out`` must exist.  Returns the table and ``{"sky_map", "sun", "table": [...]}`` paths.
+    """
+    names = {"sky_map": f"{stem}.sky.exr", "sun": f"{stem}.sun.json", "table": f"{stem}.sky.json"}
+    table = build_table(sp.sky, size=size, primaries=sp.primaries, up=sp.up, rotation_deg=sp.rotation_deg)
+    table.metadata["lights"] = [{"kind": "sun", "file": names["sun"], "schema": SUN_SCHEMA.name,
+                                 "schema_version": SUN_SCHEMA.version}]
     paths = {"sky_map": write_map(out / names["sky_map"], sp.sky, pixel_type="float")}
-    source = {"map": str(map_path), "sha256": image.sha256}
     doc = sp.document(files=names, source=source)
     paths["sun"] = atomic_write_text(out / names["sun"], json.dumps(doc, indent=2) + "\n")
-    table_paths = table.save(out / f"{stem}.sky")
-    paths["table"] = [Path(p) for p in table_paths]
-    return SplitResult(split=sp, table=table, paths=paths, balance=sp.energy_balance(image.rgb), notes=list(notes))
+    paths["table"] = [Path(p) for p in table.save(out / f"{stem}.sky")]
+    return table, paths
 
 
 def load_sun(path) -> SunLight:
