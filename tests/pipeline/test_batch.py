@@ -31,6 +31,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from support.batch_tasks import crash_on_studio
 
 from envsample.errors import EnvsampleError
 from envsample.io.maps import write_map
@@ -297,17 +298,12 @@ def test_a_failing_map_is_recorded_and_the_batch_goes_on(tmp_path):
     assert files["studio"].exists()
 
 
-def _crash_on_studio(task):
-    """Task stand-in that kills its worker process on one map (a crash in a decoder)."""
-    if task["name"].startswith("studio-"):
-        os._exit(3)
-    return process_map(task)
 
 
 def test_a_crashing_worker_costs_only_its_map(tmp_path):
     make_library(tmp_path / "lib")
     rows = by_source(run_batch([tmp_path / "lib" / "sub", tmp_path / "lib" / "uniform.exr"], tmp_path / "out", workers=1,
-                               task=_crash_on_studio))
+                               task=crash_on_studio))
     assert rows["studio.exr"].status == "error" and "worker process died" in rows["studio.exr"].error
     assert rows["uniform.exr"].status == "done" and rows["sun_copy.exr"].status == "done"
 
