@@ -21,6 +21,8 @@ from envsample.qa.profile import load_profile
 @click.option("--workers", type=click.IntRange(0, None), default=None,
               help="Worker processes (default: the cores available; 0 runs in this process).")
 @click.option("--verify", is_flag=True, help="Also run a small validation render per map.")
+@click.option("--split-sun", is_flag=True, help="Also split the sun off every map whose sun holds the sampling "
+              "check's analytic_light_share of the light (envsample split, into maps/NAME/split/).")
 @click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
 @click.option("--fix", is_flag=True, help="Apply the safe remedies of 'envsample fix --auto' before building "
               "(the sources are never changed; fixed.exr and fix.json join each repaired map's folder).")
@@ -30,8 +32,8 @@ from envsample.qa.profile import load_profile
               help="QA thresholds (TOML); default: the built-in profile.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
 @table_options
-def batch(sources, outdir, workers, verify, force, fix, scheduler, profile_path, strict, size, primaries, mapping,
-          uniform_mix, up, rotation_deg):
+def batch(sources, outdir, workers, verify, split_sun, force, fix, scheduler, profile_path, strict, size, primaries,
+          mapping, uniform_mix, up, rotation_deg):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
     SOURCE is files, folders (searched recursively) or glob patterns. Each map's
@@ -56,8 +58,8 @@ def batch(sources, outdir, workers, verify, force, fix, scheduler, profile_path,
 
     try:
         with bar:
-            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force, fix=fix,
-                               scheduler=scheduler, options=options, profile=profile, progress=progress)
+            result = run_batch(list(sources), outdir, workers=workers, verify=verify, split_sun=split_sun, force=force,
+                               fix=fix, scheduler=scheduler, options=options, profile=profile, progress=progress)
     except BatchInterrupted as e:
         c = e.result.counts
         click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete); "
@@ -75,7 +77,24 @@ def batch(sources, outdir, workers, verify, force, fix, scheduler, profile_path,
                f"({c['skipped']} up to date, not redone)")
     for dup in result.duplicates:
         click.echo("duplicate: " + " == ".join(dup["sources"]))
+    line = _reference_line(result.maps)
+    if line:
+        click.echo(line)
     if result.summary:
         names = ", ".join(Path(p).name for p in result.summary.values())
         click.echo(f"wrote {outdir}/ ({names})")
     return result.exit_code(strict=strict)
+
+
+def _reference_line(maps) -> str | None:
+    """One line on the exact references of ``--verify``: their largest error bound and their time."""
+    bounds = [m.figures["verify_reference_bound"] for m in maps
+              if isinstance(m.figures.get("verify_reference_bound"), (int, float))]
+    if not bounds:
+        return None
+    secs = [m.figures["verify_reference_seconds"] for m in maps
+            if isinstance(m.figures.get("verify_reference_seconds"), (int, float))]
+    timing = f"; {sum(secs):.1f} s in all, at most {max(secs):.2f} s for one map" if secs else ""
+    return (f"verify reference: exact irradiance on {len(bounds)} maps at their table size, relative error bound "
+            f"<= {max(bounds):.1e}{timing}")
+

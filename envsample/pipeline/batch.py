@@ -345,6 +345,7 @@ def run_batch(
     *,
     workers: int | None = None,
     verify: bool = False,
+    split_sun: bool = False,
     force: bool = False,
     fix: bool = False,
     scheduler=None,
@@ -370,6 +371,11 @@ def run_batch(
     verify : bool
         Also run the validation render (:func:`envsample.verify.verify_map`) at
         :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.
+    split_sun : bool
+        Also split the sun off every map whose sun holds at least the profile's
+        ``[sampling] analytic_light_share`` of the light (the share from which the check
+        advises it): ``maps/NAME/split/`` holds ``map.sky.exr``, ``map.sun.json`` and the
+        sky's table (:func:`envsample.pipeline.split.write_split`); the row's ``split_note`` says why not.
     force : bool
         Redo maps whose outputs are up to date.
     fix : bool
@@ -424,18 +430,28 @@ def run_batch(
         import_distributed()
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
-    key_doc = {
-        "layout": _LAYOUT_VERSION,
-        "tool_version": __version__,
-        "build": opts,
-        "verify": dict(VERIFY_SETTINGS) if verify else None,
-        "fix": bool(fix),
-        "thumb_width": THUMB_WIDTH,
-        "profile": prof.to_dict()["settings"],
-    }
+    key_doc = _key_doc(opts, prof, version=__version__, verify=verify, split_sun=split_sun, fix=fix)
     with _locked(out):
         return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
                            runner=make_runner(scheduler, n_workers), progress=progress, task=task)
+
+
+def _key_doc(opts: dict, prof, *, version: str, verify: bool, split_sun: bool, fix: bool) -> dict:
+    """Everything a map's outputs depend on besides its bytes (hashed into the options key)."""
+    doc = {
+        "layout": _LAYOUT_VERSION,
+        "tool_version": version,
+        "build": opts,
+        "verify": dict(VERIFY_SETTINGS) if verify else None,
+        "thumb_width": THUMB_WIDTH,
+        "profile": prof.to_dict()["settings"],
+    }
+    # Only when asked, so the options key of batches without them stays the same.
+    if split_sun:
+        doc["split_sun"] = True
+    if fix:
+        doc["fix"] = True
+    return doc
 
 
 def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bool, runner, progress,
@@ -465,7 +481,8 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
         tasks = [(i, {"source": os.fspath(paths[i].resolve()), "display": os.fspath(paths[i]),
                       "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(out),
                       "staging": os.fspath(staging), "options": key_doc["build"],
-                      "verify": key_doc["verify"] is not None, "fix": key_doc["fix"], "profile": profile, "key": key,
+                      "verify": key_doc["verify"] is not None, "split_sun": bool(key_doc.get("split_sun")),
+                      "fix": bool(key_doc.get("fix")), "profile": profile, "key": key,
                       "key_doc": key_doc, "version": version})
                  for i in plan.todo]
         jobs = runner(tasks, task)

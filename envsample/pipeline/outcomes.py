@@ -152,6 +152,8 @@ ROW_FIELDS = (
     "table_note",
     "verify_rmse_table",
     "verify_rmse_mis",
+    "verify_reference_bound",
+    "split_note",
 )
 
 

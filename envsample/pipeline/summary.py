@@ -83,6 +83,8 @@ def _index_rows(result: BatchResult, rows: list[dict]) -> list[dict]:
                                                                             ("MIS", "verify_rmse_mis"))
                                 if row.get(key) is not None)
             notes.append(f"verify relative RMSE: {figures}")
+        if row.get("verify_reference_bound") is not None:
+            notes.append(f"exact reference within {row['verify_reference_bound']:.1e}")
         if row.get("duplicate_of"):
             notes.append(f"same bytes as {row['duplicate_of']}")
         r["note"] = "; ".join(notes) or None

@@ -23,7 +23,7 @@ import numpy as np
 
 from envsample.core.schema import Schema
 from envsample.core.text import caution, one_line
-from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
+from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, SunSplitError
 from envsample.pipeline.outcomes import ROW_FIELDS
 
 #: Name and version of each map folder's ``manifest.json``.
@@ -34,7 +34,11 @@ MANIFEST_SCHEMA = Schema("envsample.batch-map", 2)
 THUMB_WIDTH = 128
 
 
-#: Settings of the optional verification (small on purpose: a batch is a screening pass).
+#: Settings of the optional verification (small on purpose: a batch is a screening pass).  The
+#: reference is the same exact irradiance as ``envsample verify`` and runs on the table's own map
+#: (the source at full resolution, or ``--size``), the cells the estimators sample, so it is exact
+#: for what they integrate; with the compiled kernel its cost is about one pass over the map
+#: (its row sums) plus 32x16 normals x (H + W) boundary elements, well under a second at 8192x4096.
 VERIFY_SETTINGS = {
     "spp": 32,
     "normals": [32, 16],
@@ -135,6 +139,8 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
     row.update(luminance_integral=float(table.integrals["luminance"]),
                table_width=table.table_width, table_height=table.table_height,
                table_note="; ".join(notes) or None)
+    if task.get("split_sun"):
+        row.update(_split(clean, work / "split", task))
     if task["verify"]:
         try:
             row.update(_verify(table, work / "verify", seed=map_seed(task["sha256"])))
@@ -180,12 +186,37 @@ def _auto_fix(image, report, work: Path, profile):
     return fixed, after, f"fixed ({names}): {report.verdict} -> {after.verdict}"
 
 
+def _split(image, folder: Path, task: Mapping) -> dict:
+    """``split/``: the sky, sun and sky table of a map whose sun holds the sampling check's share; else a note.
+
+    The threshold is the profile's ``[sampling] analytic_light_share`` (the share from which
+    the check advises an analytic sun); the sun is the shared finder's.
+    """
+    from envsample.lights.split import split_sun
+    from envsample.pipeline.split import write_split
+
+    share = float(task["profile"].section("sampling")["analytic_light_share"])
+    o = task["options"]
+    try:
+        sp = split_sun(image.rgb, primaries=o["primaries"], up=o["up"], rotation_deg=o["rotation_deg"])
+    except SunSplitError:
+        return {"split_note": "no sun-like emitter: not split"}
+    if sp.found.share < share:
+        return {"split_note": f"sun holds {sp.found.share:.1%} of the light, under {share:.0%}: not split"}
+    folder.mkdir()
+    write_split(sp, folder, "map", source={"map": task["display"], "sha256": task["sha256"]}, size=o["size"])
+    return {"split_note": f"split: sun {sp.found.share:.1%} of the light"
+                          + (", core clipped" if sp.found.clipped else "")}
+
+
 def _verify(table, folder: Path, *, seed: int) -> dict:
     """Run the validation render at :data:`VERIFY_SETTINGS`; return its key figures for the row.
 
-    Only figures that depend on the seed alone go into the row: the relative RMSEs.
-    (verify's recommended estimator ranks by measured efficiency, which includes
-    timings, so it is left in ``verify/metrics.json``.)
+    The summary fields depend on the map and the seed alone: the relative RMSEs and the
+    reference's relative error bound.  The reference's seconds (``verify_reference_seconds``)
+    go to the manifest's row and the command's output, not to the summaries (a timing;
+    verify's recommended estimator ranks by measured efficiency, which includes timings,
+    so it is left in ``verify/metrics.json``).
     """
     from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
 
@@ -198,7 +229,10 @@ def _verify(table, folder: Path, *, seed: int) -> dict:
         v = est.get(name, {}).get("relative_rmse")
         return float(v) if isinstance(v, (int, float)) and math.isfinite(v) else None
 
-    return {"verify_rmse_table": rmse("table"), "verify_rmse_mis": rmse("mis-balance")}
+    ref = doc.get("reference", {})
+    return {"verify_rmse_table": rmse("table"), "verify_rmse_mis": rmse("mis-balance"),
+            "verify_reference_bound": ref.get("relative_error_bound"),
+            "verify_reference_seconds": ref.get("seconds")}
 
 
 def _publish(work: Path, final: Path, staging: Path) -> None:

@@ -12,6 +12,7 @@ import numpy as np
 
 from envsample.core.sphere import row_solid_angles
 from envsample.io.maps import MapImage
+from envsample.lights.finder import find_sun
 from envsample.qa.emitters import Emitter, emitter_level, find_emitters, label_wrapped
 from envsample.qa.profile import Profile
 from envsample.qa.scan import MapScan, scan_map, srgb_decode
@@ -145,6 +146,19 @@ class CheckContext:
         theta = (np.arange(self.height) + 0.5) * (math.pi / self.height)
         phi = (np.arange(self.width) + 0.5) * (2.0 * math.pi / self.width) - math.pi
         return theta, phi
+
+    @functools.cached_property
+    def sun(self):
+        """The dominant sun measured by the shared finder (:func:`envsample.lights.finder.find_sun`), or None."""
+        s, c = self.settings("sun"), self.settings("clipping")
+        # The finder's own test of a clipped core (envsample.lights.plateau) takes the profile's tolerance,
+        # pixel count and shoulder; its size and contrast limits keep the finder's defaults.
+        clipping = {"plateau_relative_tolerance": c["plateau_relative_tolerance"], "min_pixels": c["plateau_min_pixels"],
+                    "min_shoulder": c["plateau_min_shoulder"]}
+        return find_sun(self.rgb, primaries=self.profile.primaries, emitters=self.emitters, labels=self.emitter_labels,
+                        luminance=self.luminance, median_luminance=self.median_luminance, clipping=clipping,
+                        min_share=s["min_share"], compact_max_deg=s["compact_max_deg"],
+                        median_multiple=s["threshold_median_multiple"], max_fraction=s["threshold_max_fraction"])
 
     @functools.cached_property
     def emitters(self) -> list[Emitter]:

@@ -125,3 +125,15 @@ def test_exposure_is_skipped_for_calibrated_maps():
                        profile={"light-level": {"calibrated": True}})
     assert report.get("exposure") is None
     assert {"id": "exposure", "reason": "the map is calibrated: light-level checks its lux"} in report.skipped
+
+
+def test_sun_check_reports_the_shared_finders_measures():
+    """QA's sun check and envsample split see one sun: the details carry find_sun's result."""
+    from envsample.lights.finder import find_sun
+
+    img = skies.sun_sky(1024, azimuth_deg=30.0, elevation_deg=25.0)
+    details = check_map(img, checks=["sun"])["sun"].details
+    found = find_sun(img)
+    assert details["sun"]["azimuth_deg"] == pytest.approx(found.azimuth_deg)
+    assert details["sun"]["solid_angle_sr"] == pytest.approx(found.solid_angle_sr)
+    assert details["sun"]["clipped"] is False
