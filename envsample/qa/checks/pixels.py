@@ -60,7 +60,8 @@ def check_negative(ctx: CheckContext) -> CheckResult:
     frac = float((neg * ctx.solid_angles).sum() / (4.0 * math.pi))
     low = float(np.min(np.where(ctx.finite, ctx.raw, 0.0)))
     details = {"pixels": int(neg.sum()), "most_negative": low, "fraction": frac}
-    msg = f"negative values over {pct(frac)} of the sphere ({int(neg.sum())} pixels, down to {fmt(low)})"
+    n = int(neg.sum())
+    msg = f"negative values over {pct(frac)} of the sphere ({n} pixel{'' if n == 1 else 's'}, down to {fmt(low)})"
     share = 100.0 * frac
     if frac > s["fail_above_fraction"]:
         return CheckResult("negative", "fail", value=share, threshold=fail, unit="%", message=msg,
