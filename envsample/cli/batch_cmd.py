@@ -24,14 +24,16 @@ from envsample.qa.profile import load_profile
 @click.option("--split-sun", is_flag=True, help="Also split the sun off every map whose sun holds the sampling "
               "check's analytic_light_share of the light (envsample split, into maps/NAME/split/).")
 @click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
+@click.option("--fix", is_flag=True, help="Apply the safe remedies of 'envsample fix --auto' before building "
+              "(the sources are never changed; fixed.exr and fix.json join each repaired map's folder).")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
               help="QA thresholds (TOML); default: the built-in profile.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
 @table_options
-def batch(sources, outdir, workers, verify, split_sun, force, scheduler, profile_path, strict, size, primaries, mapping,
-          uniform_mix, up, rotation_deg):
+def batch(sources, outdir, workers, verify, split_sun, force, fix, scheduler, profile_path, strict, size, primaries,
+          mapping, uniform_mix, up, rotation_deg):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
     SOURCE is files, folders (searched recursively) or glob patterns. Each map's
@@ -57,7 +59,7 @@ def batch(sources, outdir, workers, verify, split_sun, force, scheduler, profile
     try:
         with bar:
             result = run_batch(list(sources), outdir, workers=workers, verify=verify, split_sun=split_sun, force=force,
-                               scheduler=scheduler, options=options, profile=profile, progress=progress)
+                               fix=fix, scheduler=scheduler, options=options, profile=profile, progress=progress)
     except BatchInterrupted as e:
         c = e.result.counts
         click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete); "

@@ -13,7 +13,39 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode", "temporary_path"]
+from envsample.errors import EnvsampleError
+
+__all__ = ["OutputIsInputError", "atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode",
+           "refuse_inputs_as_outputs", "same_file", "temporary_path"]
+
+
+class OutputIsInputError(EnvsampleError, ValueError):
+    """An output path names one of the command's inputs (it would be replaced)."""
+
+
+def same_file(a, b) -> bool:
+    """True when paths ``a`` and ``b`` name the same file (links and relative paths resolved)."""
+    pa, pb = Path(a), Path(b)
+    with contextlib.suppress(OSError):
+        if pa.exists() and pb.exists():
+            return os.path.samefile(pa, pb)
+    return os.path.realpath(pa) == os.path.realpath(pb)
+
+
+def refuse_inputs_as_outputs(outputs, inputs, *, what: str = "output") -> None:
+    """Raise :class:`OutputIsInputError` when an output path (None and "-" skipped) names an input file.
+
+    Called before anything is read or written, so that ``check m.exr --json m.exr`` refuses
+    with one line instead of replacing the map.
+    """
+    ins = [Path(i) for i in inputs]
+    for out in outputs:
+        if out is None or str(out) == "-":
+            continue
+        for i in ins:
+            if same_file(out, i):
+                raise OutputIsInputError(
+                    f"{out}: this {what} would replace the input {i}; choose another file name")
 
 
 def file_mode(path) -> int:

@@ -347,6 +347,7 @@ def run_batch(
     verify: bool = False,
     split_sun: bool = False,
     force: bool = False,
+    fix: bool = False,
     scheduler=None,
     options: Mapping | None = None,
     profile=None,
@@ -377,6 +378,9 @@ def run_batch(
         sky's table (:func:`envsample.pipeline.split.write_split`); the row's ``split_note`` says why not.
     force : bool
         Redo maps whose outputs are up to date.
+    fix : bool
+        Apply the safe remedies of ``envsample fix --auto`` to each map before its table is
+        built (the source is never changed; ``fixed.exr`` and ``fix.json`` join its folder).
     scheduler : str or dask.distributed.Client, optional
         Send the tasks to a Dask cluster (``"tcp://host:8786"`` or a Client) instead
         of local processes; needs ``pip install envsample[dask]`` and a file system
@@ -426,19 +430,28 @@ def run_batch(
         import_distributed()
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
-    key_doc = {
+    key_doc = _key_doc(opts, prof, version=__version__, verify=verify, split_sun=split_sun, fix=fix)
+    with _locked(out):
+        return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
+                           runner=make_runner(scheduler, n_workers), progress=progress, task=task)
+
+
+def _key_doc(opts: dict, prof, *, version: str, verify: bool, split_sun: bool, fix: bool) -> dict:
+    """Everything a map's outputs depend on besides its bytes (hashed into the options key)."""
+    doc = {
         "layout": _LAYOUT_VERSION,
-        "tool_version": __version__,
+        "tool_version": version,
         "build": opts,
         "verify": dict(VERIFY_SETTINGS) if verify else None,
         "thumb_width": THUMB_WIDTH,
         "profile": prof.to_dict()["settings"],
     }
-    if split_sun:  # only when asked, so the options key of batches without it stays the same
-        key_doc["split_sun"] = True
-    with _locked(out):
-        return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
-                           runner=make_runner(scheduler, n_workers), progress=progress, task=task)
+    # Only when asked, so the options key of batches without them stays the same.
+    if split_sun:
+        doc["split_sun"] = True
+    if fix:
+        doc["fix"] = True
+    return doc
 
 
 def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bool, runner, progress,
@@ -469,7 +482,7 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
                       "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(out),
                       "staging": os.fspath(staging), "options": key_doc["build"],
                       "verify": key_doc["verify"] is not None, "split_sun": bool(key_doc.get("split_sun")),
-                      "profile": profile, "key": key,
+                      "fix": bool(key_doc.get("fix")), "profile": profile, "key": key,
                       "key_doc": key_doc, "version": version})
                  for i in plan.todo]
         jobs = runner(tasks, task)

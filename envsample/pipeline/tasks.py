@@ -111,6 +111,9 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
         raise EnvsampleError(f"{src}: the file changed while the batch ran (SHA-256 differs); rerun the batch")
     # An unreadable file still gets its QA report (a failing "read" check) so the reviewer sees why.
     report = check_map(src if image is None else image, profile=task["profile"])
+    fix_note = None
+    if task.get("fix") and image is not None and report.readable:
+        image, report, fix_note = _auto_fix(image, report, work, task["profile"])
     dump_json(work / "check.json", report.to_dict())
     row = _report_figures(report)
     row.update(source=task["display"], status="done", folder=f"{MAPS_FOLDER}/{task['name']}", sha256=task["sha256"])
@@ -132,7 +135,7 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
         table = build_table(clean, size=o["size"], primaries=o["primaries"], mapping=o["mapping"],
                             uniform_mix=o["uniform_mix"], up=o["up"], rotation_deg=o["rotation_deg"])
     table.save(work / "table")
-    notes = list(notes) + [str(n) for n in table.metadata.get("notes", [])]
+    notes = ([fix_note] if fix_note else []) + list(notes) + [str(n) for n in table.metadata.get("notes", [])]
     row.update(luminance_integral=float(table.integrals["luminance"]),
                table_width=table.table_width, table_height=table.table_height,
                table_note="; ".join(notes) or None)
@@ -144,6 +147,43 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
         except Exception as e:
             raise EnvsampleError(f"verify failed ({error_line(e)})") from e
     return row
+
+
+def _auto_fix(image, report, work: Path, profile):
+    """``batch --fix``: the safe remedies (``fix --auto``) in memory; the map, its report and a note for the row.
+
+    When something was repaired, ``fixed.exr`` (steps in its header) and ``fix.json`` (steps,
+    verdicts before and after) join the map's folder, and the table is built from the repaired
+    map.  A map that cannot be fixed, or needs nothing, is kept as it is (the note says why).
+    """
+    import dataclasses
+
+    from envsample.io.maps import write_map
+    from envsample.pipeline.fix import (
+        FIX_LOG_SCHEMA,
+        HEADER_ATTRIBUTE,
+        FixRefusedError,
+        header_record,
+        output_pixel_type,
+        repair_image,
+    )
+    from envsample.qa.run import check_map
+
+    try:
+        rgb, records, _, _ = repair_image(image, report, auto=True, profile=profile)
+    except FixRefusedError as e:
+        return image, report, "not fixed: " + str(e).split(": ", 1)[-1]
+    if not records:
+        return image, report, None
+    write_map(work / "fixed.exr", rgb, pixel_type=output_pixel_type(image, rgb),
+              attributes={HEADER_ATTRIBUTE: header_record(image, records)})
+    fixed = dataclasses.replace(image, rgb=rgb)
+    after = check_map(fixed, profile=profile)
+    dump_json(work / "fix.json", {**FIX_LOG_SCHEMA.header(), "source": str(image.path), "source_sha256": image.sha256,
+                                  "steps": records, "before": {"verdict": report.verdict},
+                                  "after": {"verdict": after.verdict}})
+    names = ", ".join(r["remedy"] for r in records)
+    return fixed, after, f"fixed ({names}): {report.verdict} -> {after.verdict}"
 
 
 def _split(image, folder: Path, task: Mapping) -> dict:

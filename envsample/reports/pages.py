@@ -571,7 +571,9 @@ def _verify_table(metrics: dict) -> str:
 # ---------------------------------------------------------------------------
 
 def _value_cells(c: dict) -> tuple[str, str, str]:
-    unit, factor = _UNITS.get(c.get("id"), ("", 1.0))
+    unit, factor = _UNITS.get(c.get("id"), (c.get("unit", ""), 1.0))
+    if "unit" in c:  # qa-report v3: values are stored in their unit (percent already), not scaled again
+        factor = 1.0
     if c.get("id") == "light-level" and ((c.get("details") or {}).get("unit") == "lx"):
         unit = "lx"
     return (_esc(_num(_scaled(c.get("value"), factor))), _esc(_num(_scaled(c.get("threshold"), factor))),
