@@ -5,8 +5,11 @@
  * alias_sweep    : alias table by the sequential sweep of Huebschle-Schneider &
  *                  Sanders (2022), O(n) over index lists, with the current heavy item's
  *                  residual kept in double precision.
- * sample_table   : cell choice (inverse CDF or alias) + in-cell mapping + pdf, the
- *                  same arithmetic as envsample.table.EnvTable.sample.
+ * build_rows     : per row of a 2D table, its conditional CDF and its own alias table
+ *                  (the second level of a two-level alias table); each row's sweep
+ *                  runs in cache and the rows are split across threads.
+ * sample_table   : cell choice (inverse CDF or two-level alias) + in-cell mapping +
+ *                  pdf, the same arithmetic as envsample.sampling.table.EnvTable.sample.
  *
  * Only the CPython buffer protocol is used (no numpy headers); the Python side
  * passes C-contiguous arrays of the documented dtypes and checks their sizes.
@@ -14,7 +17,9 @@
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
 #include <math.h>
+#include <pthread.h>
 #include <stdint.h>
+#include <stdlib.h>
 
 /* alias_sweep(weights: float32 or float64 [h*ncol], is_double, row_scale: float64[h], ncol,
  *             total: sum of the cell weights (float64, pairwise-summed by the caller),
@@ -42,6 +47,7 @@ static inline double p_at(const sweep_ctx *x, Py_ssize_t k, Py_ssize_t *row) {
 /* float32 neighbour of p (p in [0, 1]) that moves a running error err = sum(s - p)
    toward zero: round down when err > 0, up when err < 0, nearest when err == 0. */
 static inline float round_toward(double p, double err) {
+    if (p == 0.0) return 0.0f; /* a cell of zero weight is never kept (no denormal leftovers) */
     float s = (float)p;
     if (err > 0.0 && (double)s > p) s = nextafterf(s, 0.0f);
     else if (err < 0.0 && (double)s < p) s = nextafterf(s, 2.0f);
@@ -126,6 +132,152 @@ static PyObject *alias_sweep(PyObject *self, PyObject *args) {
     Py_RETURN_NONE;
 }
 
+/* ------------------------------------------------------------------ build_rows
+ * One row of n cells (weights wt, float32, row sum acc in double):
+ *   cdf  (n + 1 floats, or NULL): running sums / acc, exact 0 and 1 at the ends, the uniform
+ *        CDF for a row of zero total;
+ *   prob, alias (n entries each, or NULL): the row's own alias table, built by the sweep of
+ *        alias_sweep above with p = n * wt / acc; alias entries are column indices (uint16).
+ * A cell of zero weight gets probability exactly 0; a row of zero total the uniform table. */
+static void cdf_row(const float *wt, Py_ssize_t n, double acc, float *cdf) {
+    cdf[0] = 0.0f;
+    if (acc > 0.0) {
+        double inv = 1.0 / acc, run = 0.0;
+        for (Py_ssize_t j = 0; j < n; j++) {
+            run += (double)wt[j];
+            cdf[j + 1] = (float)(run * inv);
+        }
+    } else {
+        for (Py_ssize_t j = 0; j < n; j++) cdf[j + 1] = (float)((double)(j + 1) / (double)n);
+    }
+    cdf[n] = 1.0f;
+}
+
+static void alias_row(const float *wt, Py_ssize_t n, double acc, float *prob, uint16_t *alias, int32_t *list) {
+    if (!(acc > 0.0 && isfinite(acc))) {
+        for (Py_ssize_t k = 0; k < n; k++) { prob[k] = 1.0f; alias[k] = (uint16_t)k; }
+        return;
+    }
+    const double c = (double)n / acc;
+    Py_ssize_t nl = 0, nh = 0;
+    for (Py_ssize_t k = 0; k < n; k++) {
+        int light = (double)wt[k] * c < 1.0;
+        list[nl] = (int32_t)k;
+        list[n - 1 - nh] = (int32_t)k;
+        nl += light;
+        nh += !light;
+    }
+    Py_ssize_t i = 0, j = 0;
+    if (nh > 0) {
+        Py_ssize_t hk = list[n - 1];
+        double w = (double)wt[hk] * c, err = 0.0;
+        for (;;) {
+            if (w >= 1.0) {
+                if (i >= nl) break;
+                Py_ssize_t lk = list[i++];
+                double p = (double)wt[lk] * c;
+                float s = round_toward(p, err);
+                err += (double)s - p;
+                prob[lk] = s;
+                alias[lk] = (uint16_t)hk;
+                w -= 1.0 - p;
+            } else {
+                if (j + 1 >= nh) break;
+                Py_ssize_t nk = list[n - 2 - j];
+                double keep = w < 0.0 ? 0.0 : w;
+                float s = round_toward(keep, -err);
+                prob[hk] = s;
+                alias[hk] = (uint16_t)nk;
+                w = (double)wt[nk] * c - (1.0 - keep);
+                err = (double)s - keep;
+                hk = nk;
+                j++;
+            }
+        }
+    }
+    for (Py_ssize_t t = i; t < nl; t++) { prob[list[t]] = 1.0f; alias[list[t]] = (uint16_t)list[t]; }
+    for (Py_ssize_t t = j; t < nh; t++) { Py_ssize_t k = list[n - 1 - t]; prob[k] = 1.0f; alias[k] = (uint16_t)k; }
+}
+
+typedef struct {
+    const float *wt;
+    const double *scale;
+    float *cdf, *prob;
+    uint16_t *alias;
+    double *totals;
+    Py_ssize_t r0, r1, n;
+    int failed;
+} rows_job;
+
+static void *rows_worker(void *arg) {
+    rows_job *jb = (rows_job *)arg;
+    const Py_ssize_t n = jb->n;
+    int32_t *list = NULL;
+    if (jb->prob != NULL) {
+        list = (int32_t *)malloc((size_t)n * sizeof(int32_t));
+        if (list == NULL) { jb->failed = 1; return NULL; }
+    }
+    for (Py_ssize_t r = jb->r0; r < jb->r1; r++) {
+        const float *src = jb->wt + r * n;
+        double acc = 0.0;
+        for (Py_ssize_t k = 0; k < n; k++) acc += (double)src[k];
+        jb->totals[r] = acc * jb->scale[r];
+        if (jb->cdf != NULL) cdf_row(src, n, acc, jb->cdf + r * (n + 1));
+        if (jb->prob != NULL) alias_row(src, n, acc, jb->prob + r * n, jb->alias + r * n, list);
+    }
+    free(list);
+    return NULL;
+}
+
+/* build_rows(weights f32[h*w], row_scale f64[h], h, w, cdf f32[h*(w+1)] or b"", prob f32[h*w] or b"",
+ *            alias u16[h*w] or b"", totals f64[h] (out: row sum * row_scale), threads)
+ * Empty output buffers skip that part (a table with one cell-choice method). */
+static PyObject *build_rows(PyObject *self, PyObject *args) {
+    Py_buffer wb, sb, cb, pb, ab, tb;
+    Py_ssize_t h, w;
+    int threads;
+    if (!PyArg_ParseTuple(args, "y*y*nnw*w*w*w*i", &wb, &sb, &h, &w, &cb, &pb, &ab, &tb, &threads)) return NULL;
+    Py_buffer *all[] = {&wb, &sb, &cb, &pb, &ab, &tb};
+    int want_cdf = cb.len > 0, want_alias = pb.len > 0;
+    int ok = h > 0 && w > 0 && w <= 65536 && wb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
+             sb.len == (Py_ssize_t)(h * sizeof(double)) && tb.len == (Py_ssize_t)(h * sizeof(double)) &&
+             (!want_cdf || cb.len == (Py_ssize_t)(h * (w + 1) * sizeof(float))) &&
+             (want_alias ? (pb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
+                            ab.len == (Py_ssize_t)(h * w * sizeof(uint16_t)))
+                         : ab.len == 0);
+    if (!ok) {
+        for (int k = 0; k < 6; k++) PyBuffer_Release(all[k]);
+        PyErr_SetString(PyExc_ValueError, "build_rows: buffer sizes do not match the table");
+        return NULL;
+    }
+    enum { MAX_THREADS = 16 };
+    if (threads < 1) threads = 1;
+    if (threads > MAX_THREADS) threads = MAX_THREADS;
+    if (threads > h) threads = (int)h;
+    rows_job jobs[MAX_THREADS];
+    pthread_t tid[MAX_THREADS];
+    int started[MAX_THREADS] = {0};
+    int failed = 0;
+    Py_BEGIN_ALLOW_THREADS
+    for (int t = 0; t < threads; t++) {
+        jobs[t] = (rows_job){(const float *)wb.buf, (const double *)sb.buf, want_cdf ? (float *)cb.buf : NULL,
+                             want_alias ? (float *)pb.buf : NULL, want_alias ? (uint16_t *)ab.buf : NULL,
+                             (double *)tb.buf, h * t / threads, h * (t + 1) / threads, w, 0};
+        /* thread 0 is this one; the others are started (or, if that fails, run here) */
+        if (t > 0) started[t] = pthread_create(&tid[t], NULL, rows_worker, &jobs[t]) == 0;
+    }
+    rows_worker(&jobs[0]);
+    for (int t = 1; t < threads; t++) {
+        if (started[t]) pthread_join(tid[t], NULL);
+        else rows_worker(&jobs[t]);
+    }
+    for (int t = 0; t < threads; t++) failed |= jobs[t].failed;
+    Py_END_ALLOW_THREADS
+    for (int k = 0; k < 6; k++) PyBuffer_Release(all[k]);
+    if (failed) return PyErr_NoMemory();
+    Py_RETURN_NONE;
+}
+
 static inline double clamp_unit(double u) {
     const double top = 0x1.fffffffffffffp-1; /* nextafter(1, 0) */
     if (!(u >= 0.0)) return 0.0;
@@ -138,35 +290,61 @@ static inline double clamp_edge(double f, double e) {
     return f;
 }
 
+/* One alias draw from bucket count n: bucket k = min(floor(u * n), n - 1) (u clamped to [0, 1)),
+ * f = u * n - k; keep k when f < prob[k], else take alias[k]; the leftover fraction, rescaled
+ * to [0, 1), is returned in *fresh.  All in double precision. */
+static inline Py_ssize_t alias_pick(double u, Py_ssize_t n, const float *prob, Py_ssize_t *k_out, double *fresh) {
+    double x = clamp_unit(u) * (double)n;
+    Py_ssize_t k = (Py_ssize_t)x;
+    if (k > n - 1) k = n - 1;
+    *k_out = k;
+    double f = x - (double)k, p = (double)prob[k], q, rest;
+    Py_ssize_t keep = f < p;
+    if (keep) { q = p; rest = f; } else { q = 1.0 - p; rest = f - p; }
+    double fr = q > 0.0 ? rest / q : 0.0;
+    *fresh = fr > 0x1.fffffffffffffp-1 ? 0x1.fffffffffffffp-1 : (fr < 0.0 ? 0.0 : fr);
+    return keep;
+}
+
 /* sample_table(u f64[N*2], method 0=inverse 1=alias, marginal f32[h+1], conditional f32[h*(w+1)],
- *              prob f32[h*w], alias i32[h*w], pdf f32[h*w], cos_edges f64[h+1], row_sa f64[h],
- *              h, w, rot, mapping 0=equal-area 1=uv-linear, axes (6 ints: index,sign per world axis),
- *              out dirs f64[N*3], out pdf f64[N], out cells i64[N], edge)                         */
+ *              row_prob f32[h], row_alias u32[h], prob f32[h*w], alias u16[h*w], pdf f32[h*w],
+ *              cos_edges f64[h+1], row_sa f64[h], h, w, rot, mapping 0=equal-area 1=uv-linear,
+ *              axes (6 ints: index,sign per world axis), out dirs f64[N*3], out pdf f64[N],
+ *              out cells i64[N], edge)
+ * The arrays of the method not used may be empty. */
 static PyObject *sample_table(PyObject *self, PyObject *args) {
-    Py_buffer ub, mb, cb, pb, ab, fb, eb, sb, db, ob, kb;
+    Py_buffer ub, mb, cb, rpb, rab, pb, ab, fb, eb, sb, db, ob, kb;
     int method, mapping, i0, s0, i1, s1, i2, s2;
     Py_ssize_t h, w;
     double rot, edge;
-    if (!PyArg_ParseTuple(args, "y*iy*y*y*y*y*y*y*nndi(iiiiii)w*w*w*d", &ub, &method, &mb, &cb, &pb, &ab, &fb,
-                          &eb, &sb, &h, &w, &rot, &mapping, &i0, &s0, &i1, &s1, &i2, &s2, &db, &ob, &kb, &edge))
+    if (!PyArg_ParseTuple(args, "y*iy*y*y*y*y*y*y*y*y*nndi(iiiiii)w*w*w*d", &ub, &method, &mb, &cb, &rpb, &rab, &pb,
+                          &ab, &fb, &eb, &sb, &h, &w, &rot, &mapping, &i0, &s0, &i1, &s1, &i2, &s2, &db, &ob, &kb,
+                          &edge))
         return NULL;
+    Py_buffer *all[] = {&ub, &mb, &cb, &rpb, &rab, &pb, &ab, &fb, &eb, &sb, &db, &ob, &kb};
+    const int nbuf = (int)(sizeof(all) / sizeof(all[0]));
     Py_ssize_t N = ub.len / (Py_ssize_t)(2 * sizeof(double));
-    int ok = h > 0 && w > 0 && mb.len == (Py_ssize_t)((h + 1) * sizeof(float)) &&
-             cb.len == (Py_ssize_t)(h * (w + 1) * sizeof(float)) && pb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
-             ab.len == (Py_ssize_t)(h * w * sizeof(int32_t)) && fb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
+    int ok = h > 0 && w > 0 && fb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
              eb.len == (Py_ssize_t)((h + 1) * sizeof(double)) && sb.len == (Py_ssize_t)(h * sizeof(double)) &&
              db.len == (Py_ssize_t)(N * 3 * sizeof(double)) && ob.len == (Py_ssize_t)(N * sizeof(double)) &&
              kb.len == (Py_ssize_t)(N * sizeof(int64_t)) && i0 >= 0 && i0 < 3 && i1 >= 0 && i1 < 3 && i2 >= 0 &&
              i2 < 3;
+    if (method == 0)
+        ok = ok && mb.len == (Py_ssize_t)((h + 1) * sizeof(float)) &&
+             cb.len == (Py_ssize_t)(h * (w + 1) * sizeof(float));
+    else
+        ok = ok && rpb.len == (Py_ssize_t)(h * sizeof(float)) && rab.len == (Py_ssize_t)(h * sizeof(uint32_t)) &&
+             pb.len == (Py_ssize_t)(h * w * sizeof(float)) && ab.len == (Py_ssize_t)(h * w * sizeof(uint16_t));
     if (!ok) {
-        Py_buffer *all[] = {&ub, &mb, &cb, &pb, &ab, &fb, &eb, &sb, &db, &ob, &kb};
-        for (int k = 0; k < 11; k++) PyBuffer_Release(all[k]);
+        for (int k = 0; k < nbuf; k++) PyBuffer_Release(all[k]);
         PyErr_SetString(PyExc_ValueError, "sample_table: buffer sizes do not match the table");
         return NULL;
     }
     const double *u = (const double *)ub.buf;
     const float *marg = (const float *)mb.buf, *cond = (const float *)cb.buf, *prob = (const float *)pb.buf;
-    const int32_t *alias = (const int32_t *)ab.buf;
+    const float *rprob = (const float *)rpb.buf;
+    const uint32_t *ralias = (const uint32_t *)rab.buf;
+    const uint16_t *alias = (const uint16_t *)ab.buf;
     const float *cpdf = (const float *)fb.buf;
     const double *cosE = (const double *)eb.buf, *rowsa = (const double *)sb.buf;
     double *dirs = (double *)db.buf, *opdf = (double *)ob.buf;
@@ -175,7 +353,6 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
     const double sgn[3] = {(double)s0, (double)s1, (double)s2};
     const double two_pi_w = 2.0 * M_PI / (double)w, pi_h = M_PI / (double)h;
     const double uvscale = (double)(h * w) / (2.0 * M_PI * M_PI);
-    const Py_ssize_t n = h * w;
     /* Samples go in blocks: each stage issues the block's independent memory reads
        (prefetches, or one bisection step for every lane) before any of them is needed,
        so cache misses overlap instead of queueing one sample at a time. */
@@ -223,30 +400,31 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
                 __builtin_prefetch(cpdf + rowv[t] * w + col);
             }
         } else {
-            Py_ssize_t kv[B];
-            double frac[B];
+            /* two-level alias: u0 picks the row from the row table (its leftover fraction is fv),
+               u1 the column from that row's table (its leftover fraction is fu) */
             for (int t = 0; t < m; t++) {
-                double x = clamp_unit(u[2 * (s0 + t)]) * (double)n;
+                double x = clamp_unit(u[2 * (s0 + t)]) * (double)h;
                 Py_ssize_t k = (Py_ssize_t)x;
-                if (k > n - 1) k = n - 1;
-                kv[t] = k;
-                frac[t] = x - (double)k;
-                __builtin_prefetch(prob + k);
-                __builtin_prefetch(alias + k);
+                if (k > h - 1) k = h - 1;
+                __builtin_prefetch(rprob + k);
+                __builtin_prefetch(ralias + k);
             }
             for (int t = 0; t < m; t++) {
-                Py_ssize_t k = kv[t], cell;
-                double p = (double)prob[k], q, rest;
-                if (frac[t] < p) { cell = k; q = p; rest = frac[t]; }
-                else { cell = alias[k]; q = 1.0 - p; rest = frac[t] - p; }
-                double fu = q > 0.0 ? rest / q : 0.0;
-                if (fu > 0x1.fffffffffffffp-1) fu = 0x1.fffffffffffffp-1;
-                fuv[t] = fu;
-                double v1 = u[2 * (s0 + t) + 1];
-                fvv[t] = v1 < 0.0 ? 0.0 : (v1 > 1.0 ? 1.0 : v1);
-                rowv[t] = cell / w;
-                colv[t] = cell - rowv[t] * w;
-                __builtin_prefetch(cpdf + cell);
+                Py_ssize_t k;
+                int keep = (int)alias_pick(u[2 * (s0 + t)], h, rprob, &k, &fvv[t]);
+                rowv[t] = keep ? k : (Py_ssize_t)ralias[k];
+                double x = clamp_unit(u[2 * (s0 + t) + 1]) * (double)w;
+                Py_ssize_t kc = (Py_ssize_t)x;
+                if (kc > w - 1) kc = w - 1;
+                __builtin_prefetch(prob + rowv[t] * w + kc);
+                __builtin_prefetch(alias + rowv[t] * w + kc);
+            }
+            for (int t = 0; t < m; t++) {
+                Py_ssize_t k;
+                const Py_ssize_t base = rowv[t] * w;
+                int keep = (int)alias_pick(u[2 * (s0 + t) + 1], w, prob + base, &k, &fuv[t]);
+                colv[t] = keep ? k : (Py_ssize_t)alias[base + k];
+                __builtin_prefetch(cpdf + base + colv[t]);
             }
         }
         for (int t = 0; t < m; t++) {
@@ -276,8 +454,7 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
         }
     }
     Py_END_ALLOW_THREADS
-    Py_buffer *all[] = {&ub, &mb, &cb, &pb, &ab, &fb, &eb, &sb, &db, &ob, &kb};
-    for (int k = 0; k < 11; k++) PyBuffer_Release(all[k]);
+    for (int k = 0; k < nbuf; k++) PyBuffer_Release(all[k]);
     Py_RETURN_NONE;
 }
 
@@ -322,6 +499,7 @@ static PyObject *row_cdfs(PyObject *self, PyObject *args) {
 
 static PyMethodDef methods[] = {
     {"alias_sweep", alias_sweep, METH_VARARGS, "O(n) alias table construction (sweeping method)."},
+    {"build_rows", build_rows, METH_VARARGS, "Per-row conditional CDFs and alias tables, rows split across threads."},
     {"sample_table", sample_table, METH_VARARGS, "Draw directions and pdfs from a table."},
     {"row_cdfs", row_cdfs, METH_VARARGS, "Conditional CDFs of every row, float64 accumulation."},
     {NULL, NULL, 0, NULL},
