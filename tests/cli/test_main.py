@@ -405,7 +405,10 @@ def test_inspect_refuses_a_tampered_table(run, tmp_path):
     doc = json.loads((tmp_path / "t.json").read_text())
     doc["arrays"]["cell_pdf"]["sha256"] = "0" * 64
     (tmp_path / "t.json").write_text(json.dumps(doc))
-    _assert_one_line_error(run("inspect", tmp_path / "t.json"), "fails its sha256 check")
+    # The JSON alone reads no array (issue 8); --verify, or naming the array file itself, checks them.
+    assert run("inspect", tmp_path / "t.json").exit_code == 0
+    _assert_one_line_error(run("inspect", tmp_path / "t.json", "--verify"), "fails its sha256 check")
+    _assert_one_line_error(run("inspect", tmp_path / "t.npz"), "fails its sha256 check")
     _assert_one_line_error(run("inspect", tmp_path / "nothing.json"), "table metadata file not found")
 
 

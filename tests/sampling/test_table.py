@@ -121,7 +121,7 @@ def test_constant_map_integrates_to_four_pi_L(shape):
     """integral of a constant L over the sphere = 4 pi L (closed form), per channel and for luminance."""
     L = np.array([0.25, 2.0, 7.5], dtype=np.float32)
     rgb = np.broadcast_to(L, shape + (3,)).copy()
-    t = build_table(rgb)
+    t = build_table(rgb, allow_aspect=True)  # (7, 13) is not 2:1: the closed form holds all the same
     np.testing.assert_allclose(t.integrals["rgb"], 4 * np.pi * L.astype(np.float64), rtol=1e-6)
     assert t.integrals["luminance"] == pytest.approx(4 * np.pi * float(L.astype(np.float64) @ BT709_Y), rel=1e-6)
     # A constant map gives each cell its solid-angle share.
@@ -214,8 +214,10 @@ def test_stored_cdfs_and_alias_encode_the_cell_probabilities(rng, backend):
     marg = np.diff(t.marginal_cdf.astype(np.float64))
     cond = np.diff(t.conditional_cdf.astype(np.float64), axis=1)
     np.testing.assert_allclose(marg[:, None] * cond, p, rtol=1e-4, atol=2e-7)
-    a = alias_cell_probabilities(t.alias_probability, t.alias_index).reshape(p.shape)
-    np.testing.assert_allclose(a, p, rtol=1e-5, atol=2**-24)
+    # Two levels: P(row) from the row table times P(column | row) from that row's table.
+    rows = alias_cell_probabilities(t.row_alias_probability, t.row_alias_index)
+    cols = np.stack([alias_cell_probabilities(t.alias_probability[i], t.alias_index[i]) for i in range(p.shape[0])])
+    np.testing.assert_allclose(rows[:, None] * cols, p, rtol=1e-5, atol=2**-24)
 
 
 # ------------------------------------------------------------------ chi-square
@@ -495,7 +497,7 @@ def test_size_reduction_preserves_power(size, rng):
     """A coarser table keeps the luminance integral (power): sum(table luminance x cell solid angle)
     equals the full-resolution integral; the image for eval stays at full resolution."""
     rgb = _random_map(rng, 64, 128)
-    t = build_table(rgb, size=size)
+    t = build_table(rgb, size=size, allow_aspect=True)  # 48x20 and 17x9 are not 2:1
     w, h = parse_size(size)
     assert (t.table_width, t.table_height) == (w, h) and t.image.shape == (64, 128, 3)
     power = float(np.sum(t.luminance.astype(np.float64) * _exact_row_solid_angles(h, w)[:, None]))
@@ -532,7 +534,7 @@ def test_size_reduction_splits_a_sun_across_the_cells_it_overlaps():
     sun = (30, 61)
     rgb = np.zeros((H, W, 3), dtype=np.float32)
     rgb[sun] = 1000.0
-    t = build_table(rgb, size=(w, h))
+    t = build_table(rgb, size=(w, h), allow_aspect=True)
     mu = lambda n: np.cos(np.pi * np.arange(n + 1) / n)
     lo_mu, hi_mu = mu(H)[sun[0] + 1], mu(H)[sun[0]]
     rows = [i for i in range(h) if min(hi_mu, mu(h)[i]) - max(lo_mu, mu(h)[i + 1]) > 1e-12]
@@ -596,7 +598,7 @@ def test_eval_returns_the_pixel_of_each_direction(up, rng):
     d = pixel_center_directions(16, 32, up=up, rotation_deg=123.0).reshape(-1, 3)
     np.testing.assert_array_equal(t.eval(d), rgb.reshape(-1, 3))
     assert t.up == up and t.rotation_deg == 123.0
-    assert t.metadata["convention"]["up_axis"] == up
+    assert t.metadata["convention"]["up"] == up
 
 
 def test_build_accepts_a_map_image_like_object(rng):

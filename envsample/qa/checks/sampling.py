@@ -96,7 +96,7 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
         return CheckResult("sampling", "pass", value=None, threshold=s["warn_rmse"],
                            message="the map is black: nothing to sample")
     small = ctx.rgb if size == (ctx.width, ctx.height) else reduce_power(ctx.rgb, size)
-    table = build_table(small, primaries=prim)
+    table = build_table(small, primaries=prim, allow_aspect=True)  # the aspect check reports the shape
     normals = _fibonacci_normals(s["normals"])
     ref = reference_irradiance(small, normals)
     graded = s["estimator"]
