@@ -219,7 +219,9 @@ def check_table_doc(doc, path: Path) -> None:
     for name in arrays.obj:
         entry = arrays.sub(name)
         entry.str("dtype")
-        entry.str("sha256")
+        checksum = entry.str("xxh64")
+        if len(checksum) != 16 or any(c not in "0123456789abcdef" for c in checksum):
+            entry.fail(f"arrays.{name}.xxh64", f"must be 16 lower-case hex digits, got {_short(checksum)}")
         shape = entry.get("shape")
         if not (isinstance(shape, list) and 1 <= len(shape) <= 3 and all(
                 isinstance(s, int) and not isinstance(s, bool) and 0 <= s <= MAX_TABLE_CELLS for s in shape)):

@@ -4,32 +4,37 @@ The format is our own, documented byte by byte in ``docs/table-format.md``:
 
 * ``PREFIX.json`` — the facts for people and pipelines: schema and version, source
   map (path, sha256), sizes, convention, options, integrals, a summary, and for
-  every array its dtype, shape and sha256 (and its offset in ``PREFIX.bin``).
+  every array its dtype, shape and XXH64 checksum (and its offset in ``PREFIX.bin``).
   Checked by the strict reader :mod:`envsample.io.table_json` before any array is read.
 * ``PREFIX.npz`` — the arrays, numpy's uncompressed NPZ container.
 * ``PREFIX.bin`` (``raw=True``) — self-describing for loaders without numpy or a
-  JSON parser: a fixed 768-byte little-endian header (magic, version, grids,
-  mapping, convention, an 8-slot array directory with offsets, sizes and sha256,
-  and the header's own sha256), then the arrays at 64-byte aligned offsets.
+  JSON parser: a fixed 576-byte little-endian header (magic, version, grids,
+  mapping, convention, an 8-slot array directory with offsets, sizes and XXH64
+  checksums, and the header's own checksum), then the arrays at 64-byte aligned offsets.
 
 No copy of the map is stored by default: radiance comes from the recorded source
 map, re-read and verified on demand (:mod:`envsample.sampling.table`), or from an
 opt-in embedded ``radiance`` array.  A table's files are written as one unit
 (:func:`envsample.core.files.atomic_write_group`, the JSON last): a failed save
 leaves the previous table whole.  Every file is verified where it is read: sizes
-before any data is read, then the sha256 of every array.  Errors are one-line
+before any data is read, then the checksum of every array (hashed on a second
+thread while the next array is read).  Errors are one-line
 :class:`~envsample.errors.TableFormatError` messages naming the file.
+
+Checksums are XXH64 (seed 0): an integrity check against corruption and truncation
+at several GB/s, not a defence against deliberate forgery (files that must be
+authenticated are signed or hashed with SHA-256 by the pipeline that ships them).
 
 References
 ----------
-- NIST FIPS 180-4 (2015), Secure Hash Standard: SHA-256.
+- Collet, Y. xxHash fast digest algorithm, XXH64 specification, version 0.1.1
+  (2018), github.com/Cyan4973/xxHash/blob/dev/doc/xxhash_spec.md.
 - PKWARE APPNOTE.TXT (ZIP file format specification), version 6.3: local file
   headers, the "stored" method and ZIP64, which numpy's NPZ uses.
 """
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import struct
@@ -39,8 +44,10 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+import xxhash
 
 from envsample.core.files import atomic_write_group
+from envsample.core.limits import check_memory
 from envsample.errors import TableFormatError
 from envsample.io.table_json import RADIANCE_KINDS, SCHEMA_NAME, SCHEMA_VERSION, parse_table_json
 
@@ -66,11 +73,11 @@ METHOD_ARRAYS = {
     "alias": ("row_alias_probability", "row_alias_index", "alias_probability", "alias_index"),
 }
 MAGIC = b"\x89ENVTBL\n"
-HEADER_BYTES = 768
+HEADER_BYTES = 576
 _ALIGN = 64
 _FIXED = struct.Struct("<8sIIQIIIIIIdIIdII48x")  # 128 bytes
-_SLOT = struct.Struct("<IIIIIIQQ32s")  # 72 bytes
-_DIR_END = _FIXED.size + len(SLOTS) * _SLOT.size  # 704: the header's sha256 follows
+_SLOT = struct.Struct("<IIIIIIQQQ")  # 48 bytes: dtype, ndim, shape[3], reserved, offset, nbytes, xxh64
+_DIR_END = _FIXED.size + len(SLOTS) * _SLOT.size  # 512: the header's own XXH64 (u64) follows
 _DTYPE_CODES = {"<f4": 1, "<u2": 2, "<u4": 3}
 _MAPPING_CODES = {"equal-area": 0, "uv-linear": 1}
 _UP_CODES = {"y": 0, "z": 1}
@@ -112,8 +119,10 @@ def table_paths(prefix_or_path) -> dict[str, Path]:
     return {"json": p.with_name(p.name + ".json"), "npz": p.with_name(p.name + ".npz"), "bin": p.with_name(p.name + ".bin")}
 
 
-def _sha(a: np.ndarray) -> str:
-    return hashlib.sha256(memoryview(np.ascontiguousarray(a)).cast("B")).hexdigest()
+def _digest(a) -> str:
+    """XXH64 (seed 0) of an array's C-order bytes, as 16 hex digits (the canonical, big-endian spelling)."""
+    data = a if isinstance(a, (bytes, bytearray, memoryview)) else memoryview(np.ascontiguousarray(a)).cast("B")
+    return xxhash.xxh64(data).hexdigest()
 
 
 def _stored_arrays(table, *, embed_radiance: bool = False) -> dict[str, np.ndarray]:
@@ -126,8 +135,8 @@ def _stored_arrays(table, *, embed_radiance: bool = False) -> dict[str, np.ndarr
 
 
 def array_checksums(table) -> dict[str, str]:
-    """SHA-256 of every stored array's bytes, as written in ``PREFIX.json`` (``arrays.NAME.sha256``)."""
-    return {name: _sha(a) for name, a in _stored_arrays(table).items()}
+    """XXH64 of every stored array's bytes, as written in ``PREFIX.json`` (``arrays.NAME.xxh64``)."""
+    return {name: _digest(a) for name, a in _stored_arrays(table).items()}
 
 
 def table_arrays_bytes(width: int, height: int, *, cell_choice: str = "both") -> int:
@@ -172,11 +181,11 @@ def _bin_header(doc: dict, arrays: dict, hashes: dict, layout: dict) -> bytes:
             a = arrays[name]
             shape = list(a.shape) + [0] * (3 - a.ndim)
             off, n = layout[name]
-            slots += _SLOT.pack(_DTYPE_CODES[ARRAY_DTYPES[name]], a.ndim, *shape, 0, off, n, bytes.fromhex(hashes[name]))
+            slots += _SLOT.pack(_DTYPE_CODES[ARRAY_DTYPES[name]], a.ndim, *shape, 0, off, n, int(hashes[name], 16))
         else:
-            slots += _SLOT.pack(0, 0, 0, 0, 0, 0, 0, 0, b"\0" * 32)
+            slots += _SLOT.pack(0, 0, 0, 0, 0, 0, 0, 0, 0)
     head = fixed + slots
-    head += hashlib.sha256(head).digest()
+    head += struct.pack("<Q", xxhash.xxh64_intdigest(head))
     return head + b"\0" * (HEADER_BYTES - len(head))
 
 
@@ -218,7 +227,7 @@ def table_doc(table, paths: dict, arrays: dict, hashes: dict, *, raw: bool) -> d
     layout = _layout(arrays) if raw else {}
     entries = {}
     for name, a in arrays.items():
-        entries[name] = {"dtype": a.dtype.str, "shape": list(a.shape), "sha256": hashes[name]}
+        entries[name] = {"dtype": a.dtype.str, "shape": list(a.shape), "xxh64": hashes[name]}
         if raw:
             entries[name]["offset"], entries[name]["nbytes"] = layout[name]
     mapping = meta["options"]["mapping"]
@@ -254,15 +263,15 @@ def save_table(table, prefix, *, raw: bool = False, embed_radiance: bool = False
 
     Missing folders are created.  ``raw`` adds ``PREFIX.bin``; ``embed_radiance``
     stores a float32 copy of the map (12 bytes per pixel) for tables whose source
-    map will not travel with them.  The sha256 of the arrays is computed on a second
-    thread while the NPZ is written.  A stale ``PREFIX.bin`` of an earlier save is
+    map will not travel with them.  The checksums of the arrays are computed on a
+    second thread while the NPZ is written.  A stale ``PREFIX.bin`` of an earlier save is
     removed when ``raw`` is off, after the new JSON is in place.
     """
     paths = table_paths(prefix)
     arrays = _stored_arrays(table, embed_radiance=embed_radiance)
     paths["json"].parent.mkdir(parents=True, exist_ok=True)
     with ThreadPoolExecutor(max_workers=1) as pool:
-        futures = {name: pool.submit(_sha, a) for name, a in arrays.items()}
+        futures = {name: pool.submit(_digest, a) for name, a in arrays.items()}
 
         def write_npz(f):
             _write_npz(f, arrays)
@@ -316,7 +325,7 @@ class BinHeader:
     valid_only_inside_mis: bool
     has_radiance: bool
     sampled_integral: float
-    slots: dict  # name -> (shape tuple, offset, nbytes, sha256 hex)
+    slots: dict  # name -> (shape tuple, offset, nbytes, xxh64 hex)
 
 
 def _refuse(path, problem: str):
@@ -324,7 +333,7 @@ def _refuse(path, problem: str):
 
 
 def read_bin_header(path) -> BinHeader:
-    """Read and verify the 768-byte header of a ``.bin`` file against the file's size; no array is read."""
+    """Read and verify the 576-byte header of a ``.bin`` file against the file's size; no array is read."""
     path = Path(path)
     try:
         with open(path, "rb") as fh:
@@ -336,8 +345,8 @@ def read_bin_header(path) -> BinHeader:
         raise TableFormatError(f"{path}: cannot read ({exc.strerror}); check the path") from None
     if len(head) < HEADER_BYTES or head[:8] != MAGIC:
         _refuse(path, "not an envsample table binary (bad magic or shorter than its header)")
-    if hashlib.sha256(head[:_DIR_END]).digest() != head[_DIR_END:_DIR_END + 32]:
-        _refuse(path, "header fails its sha256 check (modified or corrupt)")
+    if struct.pack("<Q", xxhash.xxh64_intdigest(head[:_DIR_END])) != head[_DIR_END:_DIR_END + 8]:
+        _refuse(path, "header fails its checksum (modified or corrupt)")
     f = _FIXED.unpack_from(head)
     (_, version, header_bytes, file_bytes, w, h, W, H, mapping, up, rot, choice, flags, integral, nslots, slot_bytes) = f
     if version != SCHEMA_VERSION or header_bytes != HEADER_BYTES or nslots != len(SLOTS) or slot_bytes != _SLOT.size:
@@ -360,7 +369,7 @@ def read_bin_header(path) -> BinHeader:
         itemsize = np.dtype(ARRAY_DTYPES[name]).itemsize
         if n != int(np.prod(shape, dtype=np.int64)) * itemsize or off % _ALIGN or off < HEADER_BYTES or off + n > size:
             _refuse(path, f"array {name} has offset {off} and {n} bytes, outside the file or not its shape {list(shape)}")
-        slots[name] = (shape, off, n, digest.hex())
+        slots[name] = (shape, off, n, f"{digest:016x}")
     return BinHeader(version, file_bytes, w, h, W, H, inv_map[mapping], inv_up[up], rot,
                      {1: "inverse", 2: "alias", 3: "both"}[choice], bool(flags & _FLAG_MIS_ONLY),
                      bool(flags & _FLAG_RADIANCE), integral, slots)
@@ -416,36 +425,42 @@ def _check_entries(doc: dict, path: Path) -> dict[str, tuple]:
     return shapes
 
 
-def read_table(prefix_or_path, *, container: str | None = None) -> StoredTable:
-    """Read a table's files and verify the container: schema, sizes, dtypes, shapes and sha256 of every array.
+def read_table(prefix_or_path, *, container: str | None = None, max_memory=None) -> StoredTable:
+    """Read a table's files and verify the container: schema, sizes, dtypes, shapes and checksum of every array.
 
     Accepts the prefix or any of its files; a ``.bin`` path (or ``container="bin"``)
     reads the arrays from the binary, anything else from the NPZ.  The JSON is read
     and checked first; every size is checked before the array's data is read.
     What the arrays mean (CDFs, alias tables, pdf) is checked by
-    :func:`envsample.sampling.table.load_table`.
+    :func:`envsample.sampling.table.load_table`.  A table larger than the memory
+    limit (:mod:`envsample.core.limits`, ``max_memory``) is refused before any array
+    is allocated.
     """
     paths = table_paths(prefix_or_path)
     if container is None:
         container = "bin" if Path(prefix_or_path).suffix.lower() == ".bin" else "npz"
     doc = read_table_json(prefix_or_path)
     shapes = _check_entries(doc, paths["json"])
-    if container == "bin":
-        if doc["files"]["raw"] is None:
-            _refuse(paths["json"], "the table has no .bin file (built without --raw)")
-        arrays = _read_bin_arrays(paths["bin"], doc, shapes)
-    else:
-        if doc["files"]["npz"] is None:
-            _refuse(paths["json"], "the table has no .npz file")
-        arrays = _read_npz_arrays(paths["npz"], shapes)
-    _verify_hashes(arrays, doc, paths[container])
+    check_memory(sum(int(np.prod(s, dtype=np.int64)) * np.dtype(ARRAY_DTYPES[n]).itemsize for n, s in shapes.items()),
+                 what=f"{paths['json']}: loading this table", limit=max_memory, remedy="use a machine with more memory")
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        digests = {}
+
+        def hash_later(name, a):  # hashed on the second thread while the next array is read
+            digests[name] = pool.submit(_digest, a)
+
+        if container == "bin":
+            if doc["files"]["raw"] is None:
+                _refuse(paths["json"], "the table has no .bin file (built without --raw)")
+            arrays = _read_bin_arrays(paths["bin"], doc, shapes, hash_later)
+        else:
+            if doc["files"]["npz"] is None:
+                _refuse(paths["json"], "the table has no .npz file")
+            arrays = _read_npz_arrays(paths["npz"], shapes, hash_later)
+        for name in arrays:
+            if digests[name].result() != doc["arrays"][name]["xxh64"]:
+                _refuse(paths[container], f"array {name!r} fails its checksum (modified or corrupt)")
     return StoredTable(paths=paths, doc=doc, arrays=arrays, container=container)
-
-
-def _verify_hashes(arrays: dict, doc: dict, path: Path) -> None:
-    for name, a in arrays.items():
-        if _sha(a) != doc["arrays"][name]["sha256"]:
-            _refuse(path, f"array {name!r} fails its sha256 check (modified or corrupt)")
 
 
 def _read_into(fh, offset: int, a: np.ndarray, path: Path, name: str) -> None:
@@ -459,7 +474,7 @@ def _read_into(fh, offset: int, a: np.ndarray, path: Path, name: str) -> None:
         got += n
 
 
-def _read_bin_arrays(path: Path, doc: dict, shapes: dict) -> dict:
+def _read_bin_arrays(path: Path, doc: dict, shapes: dict, on_array) -> dict:
     header = read_bin_header(path)
     expect = (doc["table"]["width"], doc["table"]["height"], doc["image"]["width"], doc["image"]["height"],
               doc["options"]["mapping"], doc["convention"]["up"], doc["options"]["cell_choice"])
@@ -474,11 +489,12 @@ def _read_bin_arrays(path: Path, doc: dict, shapes: dict) -> dict:
         for name, shape in shapes.items():
             slot_shape, off, _, digest = header.slots[name]
             entry = doc["arrays"][name]
-            if tuple(slot_shape) != shape or digest != entry["sha256"] or off != entry.get("offset"):
-                _refuse(path, f"array {name!r}: header and JSON disagree (shape, offset or sha256)")
+            if tuple(slot_shape) != shape or digest != entry["xxh64"] or off != entry.get("offset"):
+                _refuse(path, f"array {name!r}: header and JSON disagree (shape, offset or checksum)")
             a = np.empty(shape, dtype=np.dtype(ARRAY_DTYPES[name]))
             _read_into(fh, off, a, path, name)
             arrays[name] = a
+            on_array(name, a)
     return arrays
 
 
@@ -492,7 +508,7 @@ def _npz_member_start(fh, info: zipfile.ZipInfo, path: Path) -> int:
     return info.header_offset + 30 + name_len + extra_len
 
 
-def _read_npz_arrays(path: Path, shapes: dict) -> dict:
+def _read_npz_arrays(path: Path, shapes: dict, on_array) -> dict:
     arrays = {}
     try:
         with open(path, "rb") as fh, zipfile.ZipFile(fh) as zf:
@@ -519,6 +535,7 @@ def _read_npz_arrays(path: Path, shapes: dict) -> dict:
                 a = np.empty(shape, dtype=dtype)
                 _read_into(fh, _npz_member_start(fh, info, path) + data_pos, a, path, name)
                 arrays[name] = a
+                on_array(name, a)
     except FileNotFoundError:
         raise TableFormatError(f"{path}: table array file not found (the JSON names it); rebuild the table") from None
     except (zipfile.BadZipFile, OSError, ValueError, EOFError, struct.error):

@@ -288,7 +288,7 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
         "up": table.up,
         "rotation_deg": table.rotation_deg,
         "uniform_mix": table.uniform_mix,
-        "array_sha256": array_checksums(table),
+        "array_xxh64": array_checksums(table),
     }
     if table_json is not None:
         path = Path(table_json)

@@ -278,6 +278,135 @@ static PyObject *build_rows(PyObject *self, PyObject *args) {
     Py_RETURN_NONE;
 }
 
+/* ------------------------------------------------------------------ check_rows
+ * The per-row consistency checks of envsample.sampling.checks, one pass per row:
+ * status[r] = 0 ok, 1 pdf negative or non-finite, 2 conditional CDF not a CDF (ends, order,
+ * finite), 3 conditional CDF steps differ from pdf / row sum, 4 alias probability outside
+ * [0, 1], 5 alias index >= w, 6 alias-encoded probabilities differ from pdf / row sum.
+ * "Differ" = |got - want| > atol + rtol * want, or got != 0 where want == 0. */
+typedef struct {
+    const float *pdf, *cdf, *prob;
+    const uint16_t *alias;
+    double atol, rtol;
+    double *sums;
+    int32_t *status;
+    Py_ssize_t r0, r1, w;
+    int failed;
+} check_job;
+
+static inline int differs(double got, double want, double atol, double rtol) {
+    /* branch-free: got != 0 where want == 0, else |got - want| beyond the tolerance */
+    return (want == 0.0) ? (got != 0.0) : (fabs(got - want) > atol + rtol * want);
+}
+
+static int check_one_row(const check_job *jb, Py_ssize_t r, double *enc) {
+    const Py_ssize_t w = jb->w;
+    const float *pdf = jb->pdf + r * w;
+    double s = 0.0;
+    int bad_pdf = 0;
+    for (Py_ssize_t j = 0; j < w; j++) {
+        float v = pdf[j];
+        bad_pdf |= !(v >= 0.0f) || !isfinite(v);
+        s += (double)v;
+    }
+    if (bad_pdf) return 1;
+    jb->sums[r] = s;
+    const double inv_s = s > 0.0 ? 1.0 / s : 0.0, inv_w = 1.0 / (double)w;
+    if (jb->cdf != NULL) {
+        const float *c = jb->cdf + r * (w + 1);
+        if (c[0] != 0.0f || c[w] != 1.0f) return 2;
+        int bad = 0;
+        for (Py_ssize_t j = 0; j < w; j++) bad |= !(c[j + 1] >= c[j]) || !isfinite(c[j + 1]);
+        if (bad) return 2;
+        if (s > 0.0)
+            for (Py_ssize_t j = 0; j < w; j++)
+                bad |= differs((double)c[j + 1] - (double)c[j], (double)pdf[j] * inv_s, jb->atol, jb->rtol);
+        if (bad) return 3;
+    }
+    if (jb->prob != NULL) {
+        const float *p = jb->prob + r * w;
+        const uint16_t *a = jb->alias + r * w;
+        int bad_p = 0, bad_a = 0;
+        for (Py_ssize_t j = 0; j < w; j++) {
+            bad_p |= !(p[j] >= 0.0f && p[j] <= 1.0f);
+            bad_a |= (Py_ssize_t)a[j] >= w;
+        }
+        if (bad_p) return 4;
+        if (bad_a) return 5;
+        if (s > 0.0) {
+            int bad = 0;
+            for (Py_ssize_t j = 0; j < w; j++) enc[j] = (double)p[j] * inv_w;
+            for (Py_ssize_t j = 0; j < w; j++) enc[a[j]] += (1.0 - (double)p[j]) * inv_w;
+            for (Py_ssize_t j = 0; j < w; j++) bad |= differs(enc[j], (double)pdf[j] * inv_s, jb->atol, jb->rtol);
+            if (bad) return 6;
+        }
+    }
+    return 0;
+}
+
+static void *check_worker(void *arg) {
+    check_job *jb = (check_job *)arg;
+    double *enc = NULL;
+    if (jb->prob != NULL) {
+        enc = (double *)malloc((size_t)jb->w * sizeof(double));
+        if (enc == NULL) { jb->failed = 1; return NULL; }
+    }
+    for (Py_ssize_t r = jb->r0; r < jb->r1; r++) jb->status[r] = check_one_row(jb, r, enc);
+    free(enc);
+    return NULL;
+}
+
+/* check_rows(pdf f32[h*w], h, w, cdf f32[h*(w+1)] or b"", prob f32[h*w] or b"", alias u16[h*w] or b"",
+ *            atol, rtol, sums f64[h] (out: row sums of pdf), status i32[h] (out), threads) */
+static PyObject *check_rows(PyObject *self, PyObject *args) {
+    (void)self;
+    Py_buffer fb, cb, pb, ab, sb, tb;
+    Py_ssize_t h, w;
+    double atol, rtol;
+    int threads;
+    if (!PyArg_ParseTuple(args, "y*nny*y*y*ddw*w*i", &fb, &h, &w, &cb, &pb, &ab, &atol, &rtol, &sb, &tb, &threads))
+        return NULL;
+    Py_buffer *all[] = {&fb, &cb, &pb, &ab, &sb, &tb};
+    int want_cdf = cb.len > 0, want_alias = pb.len > 0;
+    int ok = h > 0 && w > 0 && fb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
+             sb.len == (Py_ssize_t)(h * sizeof(double)) && tb.len == (Py_ssize_t)(h * sizeof(int32_t)) &&
+             (!want_cdf || cb.len == (Py_ssize_t)(h * (w + 1) * sizeof(float))) &&
+             (want_alias ? (pb.len == (Py_ssize_t)(h * w * sizeof(float)) &&
+                            ab.len == (Py_ssize_t)(h * w * sizeof(uint16_t)))
+                         : ab.len == 0);
+    if (!ok) {
+        for (int k = 0; k < 6; k++) PyBuffer_Release(all[k]);
+        PyErr_SetString(PyExc_ValueError, "check_rows: buffer sizes do not match the table");
+        return NULL;
+    }
+    enum { MAX_THREADS = 16 };
+    if (threads < 1) threads = 1;
+    if (threads > MAX_THREADS) threads = MAX_THREADS;
+    if (threads > h) threads = (int)h;
+    check_job jobs[MAX_THREADS];
+    pthread_t tid[MAX_THREADS];
+    int started[MAX_THREADS] = {0};
+    int failed = 0;
+    Py_BEGIN_ALLOW_THREADS
+    for (int t = 0; t < threads; t++) {
+        jobs[t] = (check_job){(const float *)fb.buf, want_cdf ? (const float *)cb.buf : NULL,
+                              want_alias ? (const float *)pb.buf : NULL,
+                              want_alias ? (const uint16_t *)ab.buf : NULL, atol, rtol, (double *)sb.buf,
+                              (int32_t *)tb.buf, h * t / threads, h * (t + 1) / threads, w, 0};
+        if (t > 0) started[t] = pthread_create(&tid[t], NULL, check_worker, &jobs[t]) == 0;
+    }
+    check_worker(&jobs[0]);
+    for (int t = 1; t < threads; t++) {
+        if (started[t]) pthread_join(tid[t], NULL);
+        else check_worker(&jobs[t]);
+    }
+    for (int t = 0; t < threads; t++) failed |= jobs[t].failed;
+    Py_END_ALLOW_THREADS
+    for (int k = 0; k < 6; k++) PyBuffer_Release(all[k]);
+    if (failed) return PyErr_NoMemory();
+    Py_RETURN_NONE;
+}
+
 static inline double clamp_unit(double u) {
     const double top = 0x1.fffffffffffffp-1; /* nextafter(1, 0) */
     if (!(u >= 0.0)) return 0.0;
@@ -500,6 +629,7 @@ static PyObject *row_cdfs(PyObject *self, PyObject *args) {
 static PyMethodDef methods[] = {
     {"alias_sweep", alias_sweep, METH_VARARGS, "O(n) alias table construction (sweeping method)."},
     {"build_rows", build_rows, METH_VARARGS, "Per-row conditional CDFs and alias tables, rows split across threads."},
+    {"check_rows", check_rows, METH_VARARGS, "Per-row consistency checks of a loaded table."},
     {"sample_table", sample_table, METH_VARARGS, "Draw directions and pdfs from a table."},
     {"row_cdfs", row_cdfs, METH_VARARGS, "Conditional CDFs of every row, float64 accumulation."},
     {NULL, NULL, 0, NULL},

@@ -28,6 +28,7 @@ import numpy as np
 from envsample.core.sphere import row_solid_angles
 from envsample.errors import TableFormatError
 from envsample.sampling import distribution as dist
+from envsample.sampling.kernels import kernels
 
 __all__ = ["ABS_TOLERANCE", "REL_TOLERANCE", "TOTAL_TOLERANCE", "check_distribution"]
 
@@ -51,19 +52,40 @@ def _close(got: np.ndarray, want: np.ndarray) -> np.ndarray:
     return bad
 
 
-def check_distribution(arrays: dict, path) -> None:
-    """Raise :class:`TableFormatError` (naming ``path``) unless the arrays form one valid distribution."""
+_ROW_PROBLEMS = {
+    1: "cell_pdf has negative or non-finite values",
+    2: "conditional_cdf is not a CDF (it must start at exactly 0, end at exactly 1 and never decrease)",
+    3: "conditional_cdf does not match cell_pdf (cell probabilities differ beyond the tolerance)",
+    4: "alias_probability has values outside [0, 1]",
+    5: "alias_index has entries outside the row",
+    6: "alias tables do not match cell_pdf (cell probabilities differ beyond the tolerance)",
+}
+
+
+def check_distribution(arrays: dict, path, *, backend: str = "auto") -> None:
+    """Raise :class:`TableFormatError` (naming ``path``) unless the arrays form one valid distribution.
+
+    ``backend`` picks the compiled per-row checks (one pass, rows split across
+    threads) or the numpy ones; both apply the same rules and tolerances.
+    """
     pdf = arrays["cell_pdf"]
     h, w = pdf.shape
-    sums = _pdf_row_sums(pdf, path)
+    k_mod = kernels(backend)
+    sums = None if k_mod is None else _compiled_row_checks(k_mod, arrays, path)
+    if sums is None:
+        sums = _pdf_row_sums(pdf, path)
     row_p = sums * row_solid_angles(h, w)
     total = float(row_p.sum())
     if not abs(total - 1.0) <= TOTAL_TOLERANCE:
         _fail(path, f"cell_pdf integrates to {total:.9g} over the sphere, not 1 (tolerance {TOTAL_TOLERANCE:g})")
     if "marginal_cdf" in arrays:
-        _check_inverse(arrays, sums, row_p, path)
+        _check_marginal(arrays["marginal_cdf"], row_p, path)
+        if k_mod is None:
+            _check_conditional(arrays, sums, path)
     if "row_alias_probability" in arrays:
-        _check_alias(arrays, sums, row_p, path)
+        _check_row_alias(arrays, row_p, path)
+        if k_mod is None:
+            _check_column_alias(arrays, sums, path)
     radiance = arrays.get("radiance")
     if radiance is not None:
         for r0 in range(0, radiance.shape[0], max(1, _BLOCK // (3 * radiance.shape[1]))):
@@ -84,20 +106,44 @@ def _pdf_row_sums(pdf: np.ndarray, path) -> np.ndarray:
     return sums
 
 
-def _check_inverse(arrays: dict, sums: np.ndarray, row_p: np.ndarray, path) -> None:
-    marginal, conditional, pdf = arrays["marginal_cdf"], arrays["conditional_cdf"], arrays["cell_pdf"]
+def _compiled_row_checks(k_mod, arrays: dict, path) -> np.ndarray:
+    """The per-row checks in the compiled kernel; returns the row sums of cell_pdf (float64)."""
+    from envsample.sampling.kernels import threads
+
+    pdf = np.ascontiguousarray(arrays["cell_pdf"], dtype=np.float32)
+    h, w = pdf.shape
+    empty = np.empty(0, dtype=np.uint8)
+
+    def given(name, dtype):
+        a = arrays.get(name)
+        return empty if a is None else np.ascontiguousarray(a, dtype=dtype)
+
+    sums = np.empty(h, dtype=np.float64)
+    status = np.empty(h, dtype=np.int32)
+    k_mod.check_rows(pdf, h, w, given("conditional_cdf", np.float32), given("alias_probability", np.float32),
+                     given("alias_index", np.uint16), ABS_TOLERANCE, REL_TOLERANCE, sums, status, threads())
+    bad = np.flatnonzero(status)
+    if bad.size:
+        _fail(path, f"{_ROW_PROBLEMS[int(status[bad[0]])]} (row {int(bad[0])})")
+    return sums
+
+
+def _check_marginal(marginal: np.ndarray, row_p: np.ndarray, path) -> None:
     problem = dist.check_cdf(marginal)
     if problem:
         _fail(path, f"marginal_cdf {problem}")
     if _close(np.diff(marginal.astype(np.float64)), row_p).any():
         _fail(path, "marginal_cdf does not match cell_pdf (row probabilities differ beyond the tolerance)")
+
+
+def _check_conditional(arrays: dict, sums: np.ndarray, path) -> None:
+    conditional, pdf = arrays["conditional_cdf"], arrays["cell_pdf"]
     h, w = pdf.shape
     step = max(1, _BLOCK // w)
     for r0 in range(0, h, step):
         block = conditional[r0:r0 + step]
-        problem = dist.check_cdf(block)
-        if problem:
-            _fail(path, f"conditional_cdf {problem}")
+        if dist.check_cdf(block):
+            _fail(path, "conditional_cdf is not a CDF (it must start at exactly 0, end at exactly 1 and never decrease)")
         s = sums[r0:r0 + step]
         live = s > 0
         if not live.any():
@@ -107,19 +153,24 @@ def _check_inverse(arrays: dict, sums: np.ndarray, row_p: np.ndarray, path) -> N
             _fail(path, "conditional_cdf does not match cell_pdf (cell probabilities differ beyond the tolerance)")
 
 
-def _check_alias(arrays: dict, sums: np.ndarray, row_p: np.ndarray, path) -> None:
+def _check_row_alias(arrays: dict, row_p: np.ndarray, path) -> None:
     r_prob, r_idx = arrays["row_alias_probability"], arrays["row_alias_index"]
-    prob, idx, pdf = arrays["alias_probability"], arrays["alias_index"], arrays["cell_pdf"]
-    h, w = pdf.shape
-    for name, a in (("row_alias_probability", r_prob), ("alias_probability", prob)):
-        if not (np.isfinite(a).all() and a.min() >= 0.0 and a.max() <= 1.0):
-            _fail(path, f"{name} has values outside [0, 1]")
+    h = r_prob.shape[0]
+    if not (np.isfinite(r_prob).all() and r_prob.min() >= 0.0 and r_prob.max() <= 1.0):
+        _fail(path, "row_alias_probability has values outside [0, 1]")
     if r_idx.max() >= h:
         _fail(path, f"row_alias_index has entries outside [0, {h})")
-    if idx.max() >= w:
-        _fail(path, f"alias_index has entries outside [0, {w})")
     if _close(dist.alias_cell_probabilities(r_prob, r_idx), row_p).any():
         _fail(path, "row alias table does not match cell_pdf (row probabilities differ beyond the tolerance)")
+
+
+def _check_column_alias(arrays: dict, sums: np.ndarray, path) -> None:
+    prob, idx, pdf = arrays["alias_probability"], arrays["alias_index"], arrays["cell_pdf"]
+    h, w = pdf.shape
+    if not (np.isfinite(prob).all() and prob.min() >= 0.0 and prob.max() <= 1.0):
+        _fail(path, "alias_probability has values outside [0, 1]")
+    if idx.max() >= w:
+        _fail(path, f"alias_index has entries outside the row (>= {w})")
     step = max(1, _BLOCK // w)
     for r0 in range(0, h, step):
         p = prob[r0:r0 + step].astype(np.float64)

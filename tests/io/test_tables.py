@@ -3,7 +3,8 @@
 External references used here:
 - numpy's NPZ/NPY container (numpy.lib.format) and ``numpy.frombuffer`` with explicit
   little-endian dtypes ('<f4', '<i4') read the raw file independently of envsample.
-- hashlib.sha256 over the C-order bytes recomputes every checksum the JSON lists.
+- xxhash.xxh64 (the reference binding of Collet's XXH64) over the C-order bytes recomputes every
+  checksum the JSON and the binary header list.
 - The JSON schema, the binary header and the drawing recipe are our own, documented in
   docs/table-format.md; a from-scratch loader below follows that text (not envsample's code),
   parses the .bin header with struct alone (no JSON) and must reproduce EnvTable.sample, which
@@ -24,6 +25,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+import xxhash
 
 from envsample.errors import TableFormatError
 from envsample.io import tables as tableio
@@ -116,14 +118,14 @@ def test_json_describes_the_table(tmp_path, table):
     assert doc["radiance"] == "none"  # built from an in-memory array
 
 
-def test_checksums_in_json_match_hashlib(tmp_path, table):
-    """sha256 (hashlib) of each array's C-order little-endian bytes equals the JSON entry."""
+def test_checksums_in_json_match_xxhash(tmp_path, table):
+    """XXH64 (the xxhash package) of each array's C-order little-endian bytes equals the JSON entry."""
     _, paths = _saved(tmp_path, table)
     doc = json.loads(paths["json"].read_text())
     with np.load(paths["npz"]) as z:
         for name, entry in doc["arrays"].items():
             a = np.ascontiguousarray(z[name], dtype=np.dtype(entry["dtype"]))
-            assert hashlib.sha256(a.tobytes()).hexdigest() == entry["sha256"], name
+            assert xxhash.xxh64(a.tobytes()).hexdigest() == entry["xxh64"], name
             assert entry["dtype"] in ("<f4", "<u4", "<u2")
 
 
@@ -145,7 +147,7 @@ def test_raw_file_holds_the_arrays_at_the_json_offsets(tmp_path, table):
             assert entry["offset"] % 64 == 0 and entry["nbytes"] == count * dtype.itemsize
             a = np.frombuffer(blob, dtype=dtype, count=count, offset=entry["offset"]).reshape(entry["shape"])
             np.testing.assert_array_equal(a, z[name], err_msg=name)
-            assert hashlib.sha256(blob[entry["offset"] : entry["offset"] + entry["nbytes"]]).hexdigest() == entry["sha256"]
+            assert xxhash.xxh64(blob[entry["offset"] : entry["offset"] + entry["nbytes"]]).hexdigest() == entry["xxh64"]
             end = max(end, entry["offset"] + entry["nbytes"])
     assert len(blob) == end
     load_table(prefix)  # a raw table loads like any other
@@ -165,13 +167,13 @@ class _DocLoader:
         assert blob[:8] == b"\x89ENVTBL\n"
         (version, header_bytes, file_bytes, self.w, self.h, _, _, mapping, up, rot_deg, _, _, _, nslots,
          slot_bytes) = struct.unpack_from("<IIQIIIIIIdIIdII", blob, 8)
-        assert (version, header_bytes, file_bytes, nslots, slot_bytes) == (2, 768, len(blob), 8, 72)
-        assert hashlib.sha256(blob[:704]).digest() == blob[704:736]
+        assert (version, header_bytes, file_bytes, nslots, slot_bytes) == (2, 576, len(blob), 8, 48)
+        assert xxhash.xxh64_intdigest(blob[:512]) == struct.unpack_from("<Q", blob, 512)[0]
         self.arr = {}
         for k, name in enumerate(self.SLOTS):
-            code, ndim, s0, s1, s2, _, off, n, digest = struct.unpack_from("<IIIIIIQQ32s", blob, 128 + 72 * k)
+            code, ndim, s0, s1, s2, _, off, n, digest = struct.unpack_from("<IIIIIIQQQ", blob, 128 + 48 * k)
             if code:
-                assert hashlib.sha256(blob[off:off + n]).digest() == digest
+                assert xxhash.xxh64_intdigest(blob[off:off + n]) == digest
                 self.arr[name] = np.frombuffer(blob, self.DTYPES[code], n // np.dtype(self.DTYPES[code]).itemsize,
                                                off).reshape((s0, s1, s2)[:ndim])
         self.f, self.r, self.a = {0: ((0, 0, -1), (1, 0, 0), (0, 1, 0)), 1: ((0, 1, 0), (1, 0, 0), (0, 0, 1))}[up]
@@ -273,7 +275,7 @@ def test_other_schema_or_version_is_refused(tmp_path, table):
 @pytest.mark.parametrize(
     "label, edit",
     [
-        ("entry without sha256", lambda d: d["arrays"]["cell_pdf"].pop("sha256")),
+        ("entry without checksum", lambda d: d["arrays"]["cell_pdf"].pop("xxh64")),
         ("entry without dtype", lambda d: d["arrays"]["cell_pdf"].pop("dtype")),
         ("table without height", lambda d: d["table"].pop("height")),
         ("arrays as a list", lambda d: d.update(arrays=[1, 2])),
@@ -315,14 +317,14 @@ def _rewrite_npz(path, edit):
 
 
 def test_tampered_value_is_refused(tmp_path, table):
-    """One value changed in one array: its sha256 no longer matches the JSON."""
+    """One value changed in one array: its checksum no longer matches the JSON."""
     _, paths = _saved(tmp_path, table)
 
     def tamper(a):
         a["cell_pdf"][2, 3] = np.nextafter(a["cell_pdf"][2, 3], np.float32(1e9))
 
     _rewrite_npz(paths["npz"], tamper)
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'cell_pdf' fails its sha256"):
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'cell_pdf' fails its checksum"):
         load_table(paths["json"])
 
 
@@ -405,13 +407,13 @@ def test_inconsistent_arrays_with_valid_checksums_are_refused(tmp_path, name, ed
 
 
 def _rewrite_npz_with_checksums(paths, edit):
-    """Edit arrays and record their new sha256 in the JSON: only the meaning checks can then object."""
+    """Edit arrays and record their new checksums in the JSON: only the meaning checks can then object."""
     with np.load(paths["npz"]) as z:
         arrays = {k.removesuffix(".npy"): z[k].copy() for k in z.files}
     edit(arrays)
     with open(paths["npz"], "wb") as f:
         np.savez(f, **arrays)
-    _rewrite_json(paths["json"], lambda d: [d["arrays"][k].update(sha256=hashlib.sha256(a.tobytes()).hexdigest())
+    _rewrite_json(paths["json"], lambda d: [d["arrays"][k].update(xxh64=xxhash.xxh64(a.tobytes()).hexdigest())
                                             for k, a in arrays.items()])
 
 
@@ -480,7 +482,7 @@ def test_interrupted_before_the_json_never_loads_a_hybrid(tmp_path, table, monke
         other.save(prefix)
     monkeypatch.undo()
     assert _listing(tmp_path) == ["rooftop.json", "rooftop.npz"]  # no temporary files left
-    with pytest.raises(TableFormatError, match="sha256"):
+    with pytest.raises(TableFormatError, match="checksum"):
         load_table(prefix)
 
 
