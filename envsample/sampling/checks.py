@@ -71,25 +71,27 @@ def check_distribution(arrays: dict, path, *, backend: str = "auto") -> None:
     pdf = arrays["cell_pdf"]
     h, w = pdf.shape
     k_mod = kernels(backend)
-    sums = None if k_mod is None else _compiled_row_checks(k_mod, arrays, path)
-    if sums is None:
+    if k_mod is not None:
+        sums = _compiled_row_checks(k_mod, arrays, path)
+    else:  # the same per-row rules, in the same order, with numpy
         sums = _pdf_row_sums(pdf, path)
+        if "conditional_cdf" in arrays:
+            _check_conditional(arrays, sums, path)
+        if "alias_probability" in arrays:
+            _check_column_alias(arrays, sums, path)
     row_p = sums * row_solid_angles(h, w)
     total = float(row_p.sum())
     if not abs(total - 1.0) <= TOTAL_TOLERANCE:
         _fail(path, f"cell_pdf integrates to {total:.9g} over the sphere, not 1 (tolerance {TOTAL_TOLERANCE:g})")
     if "marginal_cdf" in arrays:
         _check_marginal(arrays["marginal_cdf"], row_p, path)
-        if k_mod is None:
-            _check_conditional(arrays, sums, path)
     if "row_alias_probability" in arrays:
         _check_row_alias(arrays, row_p, path)
-        if k_mod is None:
-            _check_column_alias(arrays, sums, path)
     radiance = arrays.get("radiance")
     if radiance is not None:
-        for r0 in range(0, radiance.shape[0], max(1, _BLOCK // (3 * radiance.shape[1]))):
-            block = radiance[r0:r0 + max(1, _BLOCK // (3 * radiance.shape[1]))]
+        step = max(1, _BLOCK // (3 * radiance.shape[1]))
+        for r0 in range(0, radiance.shape[0], step):
+            block = radiance[r0:r0 + step]
             if not (np.isfinite(block).all() and block.min() >= 0.0):
                 _fail(path, "radiance has negative or non-finite values")
 
