@@ -507,3 +507,158 @@ def test_npz_is_a_plain_uncompressed_zip(tmp_path, table):
         names = {i.filename for i in z.infolist()}
         assert names == {f"{n}.npy" for n in ARRAY_DTYPES if n != "radiance"}
         assert all(i.compress_type == zipfile.ZIP_STORED for i in z.infolist())
+
+
+# ------------------------------------------------------------------ hostile files (issue 12, items 3 and 9)
+def test_a_version_1_table_is_refused_with_the_command_that_rebuilds_it(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d.update(schema_version=1, source={"path": "/maps/roof top.exr"}))
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*version 1 table.*rebuild it with "
+                       "envsample build '/maps/roof top.exr' -o " + re.escape(str(tmp_path / "rooftop"))):
+        load_table(paths["json"])
+
+
+def test_deeply_nested_or_huge_json_is_refused_in_one_line(tmp_path, table, monkeypatch):
+    _, paths = _saved(tmp_path, table)
+    paths["json"].write_text("[" * 100_000 + "]" * 100_000)
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*nested too deeply|not an envsample"):
+        load_table(paths["json"])
+    monkeypatch.setattr("envsample.io.table_json.MAX_JSON_BYTES", 1000)
+    paths["json"].write_text(" " * 2000)
+    with pytest.raises(TableFormatError, match="far larger than a table's metadata"):
+        load_table(paths["json"])
+
+
+def test_declared_dtype_message_names_what_the_json_says(tmp_path, table):
+    """Issue 12, item 9: the JSON saying <f8 is reported as such (not 'has dtype <f4, expected <f4')."""
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(dtype="<f8"))
+    with pytest.raises(TableFormatError, match=r"'cell_pdf' is declared '<f8', the format stores '<f4'"):
+        load_table(paths["json"])
+
+
+def test_a_forged_npz_header_is_refused_before_anything_is_allocated(tmp_path, table):
+    """Issue 12, item 3: an .npz member whose .npy header declares a huge array (and a JSON that
+    agrees) is refused from the sizes alone: tracemalloc (which numpy reports to) sees no large
+    allocation."""
+    import tracemalloc
+
+    _, paths = _saved(tmp_path, table)
+    shape = [23170, 46340]  # 1.07e9 cells: about 15 GiB of arrays
+    _rewrite_json(paths["json"], lambda d: (d["table"].update(width=shape[1], height=shape[0]),
+                                            [e.update(shape=[shape[0], shape[1]]) for e in d["arrays"].values()]))
+    tracemalloc.start()
+    try:
+        with pytest.raises(TableFormatError):
+            load_table(paths["json"])
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 20 << 20
+    # A consistent JSON and a member that only claims to be that big: the member's stored size refuses it.
+    huge = np.lib.format.header_data_from_array_1_0(np.empty((1, 1), np.float32))
+    huge["shape"] = (100_000, 100_000)
+    with zipfile.ZipFile(paths["npz"], "w") as z, z.open("cell_pdf.npy", "w") as m:
+        np.lib.format.write_array_header_1_0(m, huge)
+        m.write(b"\0" * 64)
+    table.save(tmp_path / "ok")
+    ok = table_paths(tmp_path / "ok")
+    ok["npz"].write_bytes(paths["npz"].read_bytes())
+    with pytest.raises(TableFormatError, match=_match(ok["npz"])):
+        load_table(ok["json"])
+
+
+def test_a_table_bigger_than_the_memory_limit_is_refused_before_reading(tmp_path, table, monkeypatch):
+    """Issue 12, item 4: loading checks the arrays' size against the memory limit first."""
+    _, paths = _saved(tmp_path, table)
+    monkeypatch.setenv("ENVSAMPLE_MAX_MEMORY", "1k")
+    from envsample.errors import ResourceLimitError
+
+    with pytest.raises(ResourceLimitError, match=r"loading this table: needs about .* above the limit"):
+        load_table(paths["json"])
+
+
+@pytest.mark.parametrize("damage, message", [
+    ("truncated to 1 kB", "truncated or padded"),
+    ("one array byte flipped", "fails its checksum"),
+    ("garbage", "not an envsample table binary"),
+    ("header byte flipped", "header fails its checksum"),
+    ("offset 1e12 in the JSON", "header and JSON disagree"),
+    ("offset -64 in the JSON", "offset must be an integer"),
+])
+def test_a_damaged_binary_is_refused_where_it_is_read(tmp_path, table, damage, message):
+    """Issue 8 and issue 12 item 9: load_table and inspect given the .bin verify it (sizes, header
+    checksum, array checksums, agreement with the JSON); the NPZ of the same table still loads."""
+    from envsample.pipeline.workflow import table_facts
+
+    _, paths = _saved(tmp_path, table, raw=True)
+    data = bytearray(paths["bin"].read_bytes())
+    if damage == "truncated to 1 kB":
+        data = data[:1024]
+    elif damage == "one array byte flipped":
+        data[-3] ^= 0x10
+    elif damage == "garbage":
+        data = bytearray(np.random.default_rng(1).integers(0, 256, len(data), dtype=np.uint8).tobytes())
+    elif damage == "header byte flipped":
+        data[40] ^= 0x01
+    elif damage.startswith("offset"):
+        value = 10**12 if "1e12" in damage else -64
+        _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(offset=value))
+    paths["bin"].write_bytes(bytes(data))
+    for read in (load_table, table_facts):
+        with pytest.raises(TableFormatError, match=message):
+            read(paths["bin"])
+    if not damage.startswith("offset"):
+        load_table(paths["json"])
+
+
+def test_radiance_comes_from_the_verified_source_map(tmp_path, rng):
+    """Issue 8: no copy of the map is stored; eval re-reads the recorded source map and checks its
+    sha256; a moved map is found relative to the table or given with source=; a changed one is refused."""
+    from envsample.io.maps import read_map, write_map
+    from envsample.pipeline.workflow import build_from_file
+
+    maps = tmp_path / "maps"
+    maps.mkdir()
+    rgb = _map()
+    write_map(maps / "sky.exr", rgb, pixel_type="float")
+    build_from_file(maps / "sky.exr", tmp_path / "tables" / "sky", keep_map=False)
+    doc = read_table_json(tmp_path / "tables" / "sky")
+    assert doc["radiance"] == "source" and doc["source"]["relative_path"] == "../maps/sky.exr"
+    t = load_table(tmp_path / "tables" / "sky")
+    assert not t.has_image
+    np.testing.assert_array_equal(t.image, read_map(maps / "sky.exr").rgb)
+    # The whole project moves: the relative path still finds the map.
+    os.rename(tmp_path / "maps", tmp_path / "elsewhere")
+    with pytest.raises(TableFormatError, match="source map is not found.*--embed-radiance"):
+        load_table(tmp_path / "tables" / "sky").image
+    t = load_table(tmp_path / "tables" / "sky", source=tmp_path / "elsewhere" / "sky.exr")
+    np.testing.assert_array_equal(t.image, rgb)
+    write_map(tmp_path / "elsewhere" / "sky.exr", rgb * 2, pixel_type="float")
+    with pytest.raises(TableFormatError, match="has changed since the table was built"):
+        load_table(tmp_path / "tables" / "sky", source=tmp_path / "elsewhere" / "sky.exr").image
+
+
+def test_an_embedded_copy_travels_with_the_table_and_is_checked(tmp_path, table):
+    prefix, paths = _saved(tmp_path, table)
+    table.save(prefix, embed_radiance=True)
+    assert read_table_json(prefix)["radiance"] == "embedded"
+    np.testing.assert_array_equal(load_table(prefix).image, table.image)
+
+    def negative(arrays):
+        arrays["radiance"][0, 0, 0] = -1.0
+
+    _rewrite_npz_with_checksums(paths, negative)
+    with pytest.raises(TableFormatError, match="radiance has negative or non-finite values"):
+        load_table(prefix)
+
+
+@pytest.mark.parametrize("bad", ["", "   "])
+def test_an_empty_table_path_is_refused_in_plain_words(bad):
+    with pytest.raises(TableFormatError, match="empty table path"):
+        load_table(bad)
+
+
+def test_a_folder_is_not_a_table(tmp_path):
+    with pytest.raises(TableFormatError, match="is a folder"):
+        load_table(tmp_path)
