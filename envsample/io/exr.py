@@ -55,14 +55,19 @@ def _read_exr(p: Path, layer: str | None) -> MapImage:
     except Exception as e:
         raise MapReadError(f"{p}: truncated or corrupt OpenEXR file ({_one_line(e)}); re-export or re-copy it") from e
     with f:
-        parts = list(f.parts)
-        if not parts:
-            # The bindings drop every part whose pixel data fails to decode (e.g. a cut-off file).
-            raise MapReadError(f"{p}: truncated or corrupt OpenEXR file (no pixel data could be decoded); re-export or re-copy it")
-        for part in parts:
-            _check_exr_part(p, part)
-        chosen = _select_layer(p, _exr_layers(parts), layer, parts)
-        return _exr_image(p, parts[chosen.part], chosen)
+        try:
+            parts = list(f.parts)
+            if not parts:
+                # The bindings drop every part whose pixel data fails to decode (e.g. a cut-off file).
+                raise MapReadError(f"{p}: truncated or corrupt OpenEXR file (no pixel data could be decoded); "
+                                   "re-export or re-copy it")
+            for part in parts:
+                _check_exr_part(p, part)
+            chosen = _select_layer(p, _exr_layers(parts), layer, parts)
+            return _exr_image(p, parts[chosen.part], chosen)
+        except UnicodeError as e:  # the bindings decode attribute and channel names as UTF-8
+            raise MapReadError(f"{p}: corrupt OpenEXR header (a name is not valid text: {_one_line(e)}); "
+                               "re-export or re-copy it") from e
 
 
 def _part_name(part, index: int) -> str:

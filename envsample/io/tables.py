@@ -538,6 +538,7 @@ def _read_npz_arrays(path: Path, shapes: dict, on_array) -> dict:
                 on_array(name, a)
     except FileNotFoundError:
         raise TableFormatError(f"{path}: table array file not found (the JSON names it); rebuild the table") from None
-    except (zipfile.BadZipFile, OSError, ValueError, EOFError, struct.error):
+    except (zipfile.BadZipFile, zipfile.LargeZipFile, OSError, ValueError, EOFError, struct.error, NotImplementedError,
+            RuntimeError):  # zipfile raises the last two for unknown versions and encrypted members
         raise TableFormatError(f"{path}: corrupt or truncated (not a readable NPZ archive); rebuild the table") from None
     return arrays

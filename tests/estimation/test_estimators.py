@@ -320,3 +320,13 @@ def test_estimator_names_and_bad_arguments(overcast_table):
     with pytest.raises(ValueError, match="exactly one strategy"):
         estimate(overcast_table, make_frame(UP), lambda d, f: np.ones(len(d)),
                  [CosineHemisphere(), CosineHemisphere()], kind="single", spp=4)
+
+
+def test_an_enormous_sample_count_is_refused_before_allocation():
+    """Issue 12, item 4: spp=10**12 used to end in MemoryError (873 TiB attempted); the memory
+    estimate refuses it first, in one line naming the estimate."""
+    from envsample.errors import ResourceLimitError
+
+    t = build_table(np.ones((8, 16, 3), np.float32))
+    with pytest.raises(ResourceLimitError, match=r"spp=1000000000000 .* needs about .* TiB"):
+        estimate_irradiance(t, [[0.0, 1.0, 0.0]], spp=10**12)
