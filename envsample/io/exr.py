@@ -153,11 +153,11 @@ def _exr_image(p: Path, part, chosen: _Layer) -> MapImage:
     height, width = int(part.height()), int(part.width())
     bases = ("R", "G", "B") if chosen.kind == "rgb" else ("Y",)
     names = [chosen.names[b] for b in bases]
-    planes = [_exr_plane(p, part, n, height, width) for n in names]
-    if chosen.kind == "rgb":
-        rgb = np.stack(planes, axis=-1)
-    else:
-        rgb = np.repeat(planes[0][..., None], 3, axis=-1)
+    # Each channel is converted straight into its place in one float32 (H, W, 3) array, so the
+    # peak is the file's own planes plus the map (no float32 planes, no stacking copy).
+    rgb = np.empty((height, width, 3), dtype=np.float32)
+    for k in range(3):
+        rgb[..., k] = _exr_plane(p, part, names[k if chosen.kind == "rgb" else 0], height, width, copy=False)
     alpha = None
     if "A" in chosen.names:
         names.append(chosen.names["A"])
@@ -167,7 +167,7 @@ def _exr_image(p: Path, part, chosen: _Layer) -> MapImage:
     compression = part.compression().name.removesuffix("_COMPRESSION").lower()
     chroma = part.header.get("chromaticities")
     return MapImage(
-        rgb=np.ascontiguousarray(rgb, dtype=np.float32),
+        rgb=rgb,
         format="exr",
         channels=names,
         pixel_type=pixel_type,
@@ -178,7 +178,8 @@ def _exr_image(p: Path, part, chosen: _Layer) -> MapImage:
     )
 
 
-def _exr_plane(p: Path, part, name: str, height: int, width: int) -> np.ndarray:
+def _exr_plane(p: Path, part, name: str, height: int, width: int, *, copy: bool = True) -> np.ndarray:
+    """One channel's pixels (H, W): a float32 copy we own, or (``copy=False``) the bindings' own array."""
     pixels = part.channels[name].pixels
     if pixels is None or pixels.shape != (height, width):
         shape = None if pixels is None else pixels.shape
@@ -186,7 +187,7 @@ def _exr_plane(p: Path, part, name: str, height: int, width: int) -> np.ndarray:
             f"{p}: channel {name!r} has shape {shape}, expected ({height}, {width}) "
             "(subsampled channels are not supported); re-export it without subsampling"
         )
-    return np.array(pixels, dtype=np.float32)  # a copy we own, independent of the file object
+    return np.array(pixels, dtype=np.float32) if copy else pixels  # a copy is independent of the file object
 
 
 def _exr_writer(p: Path, arr: np.ndarray, pixel_type: str, compression: str, chroma, alpha):
