@@ -486,10 +486,14 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
        (prefetches, or one bisection step for every lane) before any of them is needed,
        so cache misses overlap instead of queueing one sample at a time. */
     enum { B = 32 };
+    Py_ssize_t bad = 0;
     Py_BEGIN_ALLOW_THREADS
+    /* NaN or Inf in u is refused by the caller with the count this returns; it is counted
+       block by block as u is read (the outputs are then discarded) */
     const Py_ssize_t steps_h = (Py_ssize_t)ceil(log2((double)h)), steps_w = (Py_ssize_t)ceil(log2((double)w));
     for (Py_ssize_t s0 = 0; s0 < N; s0 += B) {
         const int m = (int)(N - s0 < B ? N - s0 : B);
+        for (int t = 0; t < 2 * m; t++) bad += !isfinite(u[2 * s0 + t]);
         Py_ssize_t rowv[B], colv[B];
         double fuv[B], fvv[B];
         if (method == 0) {
@@ -530,14 +534,8 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
             }
         } else {
             /* two-level alias: u0 picks the row from the row table (its leftover fraction is fv),
-               u1 the column from that row's table (its leftover fraction is fu) */
-            for (int t = 0; t < m; t++) {
-                double x = clamp_unit(u[2 * (s0 + t)]) * (double)h;
-                Py_ssize_t k = (Py_ssize_t)x;
-                if (k > h - 1) k = h - 1;
-                __builtin_prefetch(rprob + k);
-                __builtin_prefetch(ralias + k);
-            }
+               u1 the column from that row's table (its leftover fraction is fu).  The row table
+               is small (in cache); the rows' tables are prefetched for the whole block first. */
             for (int t = 0; t < m; t++) {
                 Py_ssize_t k;
                 int keep = (int)alias_pick(u[2 * (s0 + t)], h, rprob, &k, &fvv[t]);
@@ -584,7 +582,7 @@ static PyObject *sample_table(PyObject *self, PyObject *args) {
     }
     Py_END_ALLOW_THREADS
     for (int k = 0; k < nbuf; k++) PyBuffer_Release(all[k]);
-    Py_RETURN_NONE;
+    return PyLong_FromSsize_t(bad);
 }
 
 /* row_cdfs(weights f32[h*w], row_scale f64[h], out f32[h*(w+1)], totals f64[h]) */

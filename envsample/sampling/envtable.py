@@ -221,12 +221,10 @@ class EnvTable:
         if method not in self.methods:
             raise ValueError(f"this table holds only the {self.methods[0]} cell choice (built with "
                              f"cell_choice={self.methods[0]!r}); rebuild it with cell_choice='both' to sample by {method}")
-        bad = u.size - int(np.count_nonzero(np.isfinite(u)))
-        if bad:
-            raise ValueError(f"u has {bad} NaN or Inf values of {u.size}; uniforms must be finite numbers in [0, 1)")
         k_mod = kernels(backend)
         if k_mod is not None:
-            return self._sample_compiled(k_mod, u, method)
+            return self._sample_compiled(k_mod, u, method)  # the kernel counts non-finite u itself
+        _refuse_non_finite(u.size - int(np.count_nonzero(np.isfinite(u))), u.size)
         if method == "inverse":
             row, fv = dist.sample_cdf(self.marginal_cdf, u[:, 0])
             col, fu = dist.sample_row_cdfs(self.conditional_cdf, row, u[:, 1])
@@ -266,12 +264,13 @@ class EnvTable:
         cells = np.empty(n, dtype=np.int64)
         axes = tuple(v for i, sign in self._axes for v in (i, int(sign)))
         c = self._c
-        k_mod.sample_table(
+        bad = k_mod.sample_table(
             u, 0 if method == "inverse" else 1, c["marginal_cdf"], c["conditional_cdf"], c["row_alias_probability"],
             c["row_alias_index"], c["alias_probability"], c["alias_index"], c["cell_pdf"],
             self._cos_edges, self._row_sa, self.table_height, self.table_width, self._rot,
             0 if self.mapping == "equal-area" else 1, axes, d, pdf, cells, _EDGE,
         )
+        _refuse_non_finite(bad, u.size)
         return Samples(directions=d, pdf=pdf, cells=cells, _table=self)
 
     @functools.cached_property
@@ -351,6 +350,11 @@ class EnvTable:
     def arrays(self) -> dict[str, np.ndarray]:
         """The arrays stored on disk, by name (see docs/table-format.md); absent methods are left out."""
         return {name: getattr(self, name) for name in _ARRAY_NAMES if getattr(self, name) is not None}
+
+
+def _refuse_non_finite(bad: int, total: int) -> None:
+    if bad:
+        raise ValueError(f"u has {bad} NaN or Inf values of {total}; uniforms must be finite numbers in [0, 1)")
 
 
 def _finite_directions(directions) -> np.ndarray:
