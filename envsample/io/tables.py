@@ -39,6 +39,7 @@ import json
 import os
 import struct
 import zipfile
+import zlib
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
@@ -189,15 +190,59 @@ def _bin_header(doc: dict, arrays: dict, hashes: dict, layout: dict) -> bytes:
     return head + b"\0" * (HEADER_BYTES - len(head))
 
 
-def _write_npz(f, arrays: dict) -> None:
-    """numpy's NPZ (a ZIP of .npy members, stored uncompressed), written without copying the arrays."""
-    with zipfile.ZipFile(f, "w", compression=zipfile.ZIP_STORED, allowZip64=True) as zf:
-        for name, a in arrays.items():
-            with zf.open(name + ".npy", "w", force_zip64=True) as m:
-                np.lib.format.write_array_header_1_0(m, np.lib.format.header_data_from_array_1_0(a))
-                view = memoryview(a).cast("B")
-                for start in range(0, len(view), _CHUNK):
-                    m.write(view[start:start + _CHUNK])
+def _npy_header(a: np.ndarray) -> bytes:
+    """The .npy (format 1.0) header of an array, as numpy writes it."""
+    import io
+
+    buf = io.BytesIO()
+    np.lib.format.write_array_header_1_0(buf, np.lib.format.header_data_from_array_1_0(a))
+    return buf.getvalue()
+
+
+def _crc32(header: bytes, a: np.ndarray) -> int:
+    crc = zlib.crc32(header)
+    view = memoryview(a).cast("B")
+    for start in range(0, len(view), _CHUNK):
+        crc = zlib.crc32(view[start:start + _CHUNK], crc)
+    return crc
+
+
+def _write_npz(f, arrays: dict, crcs: dict | None = None) -> None:
+    """numpy's NPZ: a ZIP64 archive of stored (uncompressed) .npy members (PKWARE APPNOTE 6.3).
+
+    Written without copying the arrays.  ``crcs`` maps each name to a future of the
+    member's CRC-32 (computed on another thread while the data is written); each
+    local header's CRC is patched in once it is known.
+    """
+    entries = []
+    for name, a in arrays.items():
+        header = _npy_header(a)
+        size = len(header) + a.nbytes
+        fname = f"{name}.npy".encode()
+        offset = f.tell()
+        extra = struct.pack("<HHQQ", 1, 16, size, size)
+        f.write(struct.pack("<IHHHHHIIIHH", 0x04034B50, 45, 0, 0, 0, 0x21, 0, 0xFFFFFFFF, 0xFFFFFFFF, len(fname),
+                            len(extra)) + fname + extra)
+        f.write(header)
+        view = memoryview(a).cast("B")
+        for start in range(0, len(view), _CHUNK):
+            f.write(view[start:start + _CHUNK])
+        crc = crcs[name].result() if crcs is not None else _crc32(header, a)
+        end = f.tell()
+        f.seek(offset + 14)
+        f.write(struct.pack("<I", crc))
+        f.seek(end)
+        entries.append((fname, crc, size, offset))
+    cd_start = f.tell()
+    for fname, crc, size, offset in entries:
+        extra = struct.pack("<HHQQQ", 1, 24, size, size, offset)
+        f.write(struct.pack("<IHHHHHHIIIHHHHHII", 0x02014B50, 45, 45, 0, 0, 0, 0x21, crc, 0xFFFFFFFF, 0xFFFFFFFF,
+                            len(fname), len(extra), 0, 0, 0, 0, 0xFFFFFFFF) + fname + extra)
+    cd_end = f.tell()
+    n = len(entries)
+    f.write(struct.pack("<IQHHIIQQQQ", 0x06064B50, 44, 45, 45, 0, 0, n, n, cd_end - cd_start, cd_start))
+    f.write(struct.pack("<IIQI", 0x07064B50, 0, cd_end, 1))
+    f.write(struct.pack("<IHHHHIIH", 0x06054B50, 0, 0, 0xFFFF, 0xFFFF, 0xFFFFFFFF, 0xFFFFFFFF, 0))
 
 
 def _write_bin(f, header: bytes, arrays: dict, layout: dict) -> None:
@@ -258,41 +303,47 @@ def table_doc(table, paths: dict, arrays: dict, hashes: dict, *, raw: bool) -> d
     return doc
 
 
-def save_table(table, prefix, *, raw: bool = False, embed_radiance: bool = False) -> list[Path]:
+def save_table(table, prefix, *, raw: bool = False, embed_radiance: bool = False, check=None) -> list[Path]:
     """Write a table's files as one unit; returns the paths written (JSON last).
 
     Missing folders are created.  ``raw`` adds ``PREFIX.bin``; ``embed_radiance``
     stores a float32 copy of the map (12 bytes per pixel) for tables whose source
-    map will not travel with them.  The checksums of the arrays are computed on a
-    second thread while the NPZ is written.  A stale ``PREFIX.bin`` of an earlier save is
-    removed when ``raw`` is off, after the new JSON is in place.
+    map will not travel with them.  ``check(arrays)``, if given, runs while the files
+    are written and may raise to refuse the table: nothing is then renamed into place
+    (the temporaries are removed).  The checksums and the NPZ's CRC-32 are computed on
+    other threads while the data is written.  A stale ``PREFIX.bin`` of an earlier save
+    is removed when ``raw`` is off, after the new JSON is in place.
     """
     paths = table_paths(prefix)
     arrays = _stored_arrays(table, embed_radiance=embed_radiance)
     paths["json"].parent.mkdir(parents=True, exist_ok=True)
-    with ThreadPoolExecutor(max_workers=1) as pool:
-        futures = {name: pool.submit(_digest, a) for name, a in arrays.items()}
-
-        def write_npz(f):
-            _write_npz(f, arrays)
-
-        def write_rest():
-            hashes = {name: fut.result() for name, fut in futures.items()}
-            return hashes, table_doc(table, paths, arrays, hashes, raw=raw)
-
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        checked = pool.submit(check, arrays) if check is not None else None
+        crcs, futures = {}, {}
+        for name, a in arrays.items():  # in the order the writer needs them
+            crcs[name] = pool.submit(_crc32, _npy_header(a), a)
+            futures[name] = pool.submit(_digest, a)
         state = {}
 
+        def finish():
+            if "doc" not in state:
+                state["hashes"] = {name: fut.result() for name, fut in futures.items()}
+                state["doc"] = table_doc(table, paths, arrays, state["hashes"], raw=raw)
+            return state["hashes"], state["doc"]
+
         def write_bin(f):
-            state["hashes"], state["doc"] = write_rest()
-            _write_bin(f, _bin_header(state["doc"], arrays, state["hashes"], _layout(arrays)), arrays, _layout(arrays))
+            hashes, doc = finish()
+            _write_bin(f, _bin_header(doc, arrays, hashes, _layout(arrays)), arrays, _layout(arrays))
 
         def write_json(f):
-            if "doc" not in state:
-                state["hashes"], state["doc"] = write_rest()
-            f.write((json.dumps(state["doc"], indent=2) + "\n").encode("utf-8"))
+            _, doc = finish()
+            if checked is not None:
+                checked.result()  # a refused table raises here, before any file is renamed into place
+            f.write((json.dumps(doc, indent=2) + "\n").encode("utf-8"))
 
-        items = [(paths["npz"], write_npz)] + ([(paths["bin"], write_bin)] if raw else []) + [(paths["json"], write_json)]
-        written = atomic_write_group(items)
+        items = [(paths["npz"], lambda f: _write_npz(f, arrays, crcs))]
+        items += [(paths["bin"], write_bin)] if raw else []
+        written = atomic_write_group(items + [(paths["json"], write_json)])
     if not raw and paths["bin"].exists():
         # A raw file from an earlier save no longer matches this table: remove it so a
         # loader cannot pair it with the new JSON (which says "raw": null).

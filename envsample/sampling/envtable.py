@@ -343,9 +343,11 @@ class EnvTable:
         from envsample.io.tables import save_table, table_paths
         from envsample.sampling.checks import check_distribution
 
-        # A table that would not load is refused before anything is written.
-        check_distribution(self.arrays(), f"{table_paths(prefix)['json'].with_suffix('')} (table to be written)")
-        return save_table(self, prefix, raw=raw, embed_radiance=embed_radiance)
+        name = f"{table_paths(prefix)['json'].with_suffix('')} (table to be written)"
+        # A table that would not load is refused before any of its files is replaced; the check
+        # runs while the files are written.
+        return save_table(self, prefix, raw=raw, embed_radiance=embed_radiance,
+                          check=lambda arrays: check_distribution(arrays, name))
 
     def arrays(self) -> dict[str, np.ndarray]:
         """The arrays stored on disk, by name (see docs/table-format.md); absent methods are left out."""

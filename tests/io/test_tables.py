@@ -501,12 +501,14 @@ def test_table_paths():
 
 
 def test_npz_is_a_plain_uncompressed_zip(tmp_path, table):
-    """NPZ is numpy's zip container: every member is a stored (uncompressed) .npy file."""
+    """NPZ is numpy's zip container (PKWARE APPNOTE, read back by Python's zipfile): every member is a
+    stored (uncompressed) .npy file with the right CRC-32."""
     _, paths = _saved(tmp_path, table)
     with zipfile.ZipFile(paths["npz"]) as z:
         names = {i.filename for i in z.infolist()}
         assert names == {f"{n}.npy" for n in ARRAY_DTYPES if n != "radiance"}
         assert all(i.compress_type == zipfile.ZIP_STORED for i in z.infolist())
+        assert z.testzip() is None  # every member's CRC-32 is right (zipfile recomputes them)
 
 
 # ------------------------------------------------------------------ hostile files (issue 12, items 3 and 9)
