@@ -181,3 +181,20 @@ def test_c_loader_refuses_a_damaged_binary(tmp_path, envtab, how, message):
     r = _run(envtab, ["info", str(_damaged(tmp_path, binary, how))], [])
     assert r.returncode == 2 and message in r.stderr and len(r.stderr.strip().splitlines()) == 1, r.stderr
     assert _run(envtab, ["info", str(binary)], []).returncode == 0
+
+
+_PINNED = sorted((Path(__file__).resolve().parents[2] / "data" / "tables").glob("*/*.bin"))
+
+
+@pytest.mark.parametrize("binary", _PINNED, ids=[f"{p.parent.name}/{p.stem}" for p in _PINNED])
+def test_c_loader_reproduces_the_pinned_conformance_set(envtab, binary):
+    """Issue 14: the C loader on every pinned table of data/ matches the pinned golden vectors."""
+    doc = json.loads(binary.with_name(binary.stem + ".vectors.json").read_text())
+    u_lines = [f"{r['u'][0]!r} {r['u'][1]!r}" for r in doc["vectors"]]
+    for method in doc["methods"]:
+        r = _run(envtab, ["sample", str(binary), method], u_lines)
+        assert r.returncode == 0, r.stderr
+        rows = np.array([line.split() for line in r.stdout.splitlines()], dtype=np.float64)
+        np.testing.assert_array_equal(rows[:, 0].astype(np.int64), [v[method]["cell"] for v in doc["vectors"]])
+        np.testing.assert_allclose(rows[:, 1:4], [v[method]["direction"] for v in doc["vectors"]], atol=DIRECTION_TOL)
+        np.testing.assert_allclose(rows[:, 4], [v[method]["pdf"] for v in doc["vectors"]], rtol=PDF_TOL)
