@@ -278,6 +278,93 @@ static PyObject *build_rows(PyObject *self, PyObject *args) {
     Py_RETURN_NONE;
 }
 
+/* ------------------------------------------------------------------ luminance_rows
+ * One pass over an (H, W, 3) float32 map: the luminance (float32, clamped at 0; mode 0 = the weights,
+ * 1 = the largest channel, 2 = the channel mean), the per-row per-channel float64 sums, the smallest
+ * value and the count of non-finite values.  Rows are split across threads. */
+typedef struct {
+    const float *rgb;
+    float *lum;
+    double *sums;
+    Py_ssize_t r0, r1, w;
+    int mode;
+    float wr, wg, wb;
+    double lowest;
+    Py_ssize_t bad;
+} lum_job;
+
+static void *lum_worker(void *arg) {
+    lum_job *jb = (lum_job *)arg;
+    double lowest = INFINITY;
+    Py_ssize_t bad = 0;
+    for (Py_ssize_t r = jb->r0; r < jb->r1; r++) {
+        const float *px = jb->rgb + r * jb->w * 3;
+        float *out = jb->lum + r * jb->w;
+        double sr = 0.0, sg = 0.0, sb = 0.0;
+        float lo = INFINITY;
+        for (Py_ssize_t j = 0; j < jb->w; j++) {
+            const float R = px[3 * j], G = px[3 * j + 1], Bl = px[3 * j + 2];
+            sr += R; sg += G; sb += Bl;
+            float y = jb->mode == 0 ? R * jb->wr + G * jb->wg + Bl * jb->wb
+                    : jb->mode == 1 ? (R > G ? (R > Bl ? R : Bl) : (G > Bl ? G : Bl)) : (R + G + Bl) / 3.0f;
+            out[j] = y > 0.0f ? y : 0.0f;
+            lo = R < lo ? R : lo; lo = G < lo ? G : lo; lo = Bl < lo ? Bl : lo;
+        }
+        if (!isfinite(sr) || !isfinite(sg) || !isfinite(sb))
+            for (Py_ssize_t k = 0; k < 3 * jb->w; k++) bad += !isfinite(px[k]);
+        jb->sums[3 * r] = sr; jb->sums[3 * r + 1] = sg; jb->sums[3 * r + 2] = sb;
+        if ((double)lo < lowest) lowest = (double)lo;
+    }
+    jb->lowest = lowest;
+    jb->bad = bad;
+    return NULL;
+}
+
+/* luminance_rows(rgb f32[H*W*3], H, W, mode, (wr, wg, wb), lum f32[H*W] (out), sums f64[H*3] (out), threads)
+ *   -> (lowest value, number of non-finite values) */
+static PyObject *luminance_rows(PyObject *self, PyObject *args) {
+    (void)self;
+    Py_buffer rb, lb, sb;
+    Py_ssize_t H, W;
+    int mode, threads;
+    double wr, wg, wb;
+    if (!PyArg_ParseTuple(args, "y*nni(ddd)w*w*i", &rb, &H, &W, &mode, &wr, &wg, &wb, &lb, &sb, &threads)) return NULL;
+    Py_buffer *all[] = {&rb, &lb, &sb};
+    if (H <= 0 || W <= 0 || mode < 0 || mode > 2 || rb.len != (Py_ssize_t)(H * W * 3 * sizeof(float)) ||
+        lb.len != (Py_ssize_t)(H * W * sizeof(float)) || sb.len != (Py_ssize_t)(H * 3 * sizeof(double))) {
+        for (int k = 0; k < 3; k++) PyBuffer_Release(all[k]);
+        PyErr_SetString(PyExc_ValueError, "luminance_rows: buffer sizes do not match the map");
+        return NULL;
+    }
+    enum { MAX_THREADS = 16 };
+    if (threads < 1) threads = 1;
+    if (threads > MAX_THREADS) threads = MAX_THREADS;
+    if (threads > H) threads = (int)H;
+    lum_job jobs[MAX_THREADS];
+    pthread_t tid[MAX_THREADS];
+    int started[MAX_THREADS] = {0};
+    double lowest = INFINITY;
+    Py_ssize_t bad = 0;
+    Py_BEGIN_ALLOW_THREADS
+    for (int t = 0; t < threads; t++) {
+        jobs[t] = (lum_job){(const float *)rb.buf, (float *)lb.buf, (double *)sb.buf, H * t / threads,
+                            H * (t + 1) / threads, W, mode, (float)wr, (float)wg, (float)wb, INFINITY, 0};
+        if (t > 0) started[t] = pthread_create(&tid[t], NULL, lum_worker, &jobs[t]) == 0;
+    }
+    lum_worker(&jobs[0]);
+    for (int t = 1; t < threads; t++) {
+        if (started[t]) pthread_join(tid[t], NULL);
+        else lum_worker(&jobs[t]);
+    }
+    for (int t = 0; t < threads; t++) {
+        if (jobs[t].lowest < lowest) lowest = jobs[t].lowest;
+        bad += jobs[t].bad;
+    }
+    Py_END_ALLOW_THREADS
+    for (int k = 0; k < 3; k++) PyBuffer_Release(all[k]);
+    return Py_BuildValue("(dn)", lowest, bad);
+}
+
 /* ------------------------------------------------------------------ check_rows
  * The per-row consistency checks of envsample.sampling.checks, one pass per row:
  * status[r] = 0 ok, 1 pdf negative or non-finite, 2 conditional CDF not a CDF (ends, order,
@@ -627,6 +714,7 @@ static PyObject *row_cdfs(PyObject *self, PyObject *args) {
 static PyMethodDef methods[] = {
     {"alias_sweep", alias_sweep, METH_VARARGS, "O(n) alias table construction (sweeping method)."},
     {"build_rows", build_rows, METH_VARARGS, "Per-row conditional CDFs and alias tables, rows split across threads."},
+    {"luminance_rows", luminance_rows, METH_VARARGS, "Luminance, per-row channel sums, lowest value, non-finite count."},
     {"check_rows", check_rows, METH_VARARGS, "Per-row consistency checks of a loaded table."},
     {"sample_table", sample_table, METH_VARARGS, "Draw directions and pdfs from a table."},
     {"row_cdfs", row_cdfs, METH_VARARGS, "Conditional CDFs of every row, float64 accumulation."},

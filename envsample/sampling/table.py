@@ -60,6 +60,7 @@ from envsample.io.table_json import CELL_CHOICES
 from envsample.sampling import distribution as dist
 from envsample.sampling.checks import check_distribution
 from envsample.sampling.envtable import SAMPLE_METHODS, EnvTable, Samples
+from envsample.sampling.kernels import kernels
 from envsample.sampling.radiance import source_radiance
 
 __all__ = ["SAMPLE_METHODS", "CELL_CHOICES", "EnvTable", "Samples", "BuildPlan", "SampledFunction", "build_table",
@@ -150,16 +151,9 @@ def sampled_function(image: np.ndarray, plan: BuildPlan) -> SampledFunction:
         raise ValueError(f"the plan is for a {plan.map_size[0]}x{plan.map_size[1]} map, got {W}x{H}")
     w, h = plan.size or (W, H)
     primaries, compensate, uniform_mix = plan.primaries, plan.compensate, plan.uniform_mix
-    # One float64 pass gives the per-channel integrals and detects NaN/Inf (they
-    # poison their row's sum); float32 data cannot overflow a float64 sum.
     row_sa_full = row_solid_angles(H, W)
-    row_sums = row_channel_sums(image)
-    if not np.isfinite(row_sums).all():
-        raise MapValidationError("map has NaN or Inf pixels; repair them first (read with validate_map(repair=True))")
-    if image.min() < 0:
-        raise MapValidationError("map has negative pixels; clamp them first (validate_map does)")
+    lum, scale, row_sums = _luminance_and_row_sums(image, primaries)
     rgb_integral = [float(x) for x in (row_sums * row_sa_full[:, None]).sum(axis=0)]
-    lum, scale = _scaled_luminance(image, primaries)
     lum_integral_full = _integral(lum, row_sa_full) / scale
     if (w, h) != (W, H):
         lum = reduce_power(lum, (w, h))
@@ -189,9 +183,40 @@ def sampled_function(image: np.ndarray, plan: BuildPlan) -> SampledFunction:
     return SampledFunction(lum, rgb_integral, lum_integral_full, scale if uniform_mix == 0.0 else 1.0, notes, (W, H))
 
 
-def _scaled_luminance(image: np.ndarray, primaries: str) -> tuple[np.ndarray, float]:
+def _luminance_and_row_sums(image: np.ndarray, primaries: str) -> tuple[np.ndarray, float, np.ndarray]:
+    """The luminance (float32, scaled by a power of two if its peak is extreme), the scale, and the
+    per-row per-channel float64 sums; refuses NaN/Inf and negative pixels.
+
+    The compiled kernel does all of it in one pass over the map (rows split across threads);
+    the numpy path in four.
+    """
+    k_mod = kernels()
+    if k_mod is not None and image.dtype == np.float32 and image.flags.c_contiguous:
+        from envsample.core.constants import luminance_weights
+        from envsample.sampling.kernels import threads
+
+        H, W = image.shape[:2]
+        mode = {"max": 1, "mean": 2}.get(primaries, 0)
+        weights = (0.0, 0.0, 0.0) if mode else tuple(float(x) for x in luminance_weights(primaries))
+        lum = np.empty((H, W), dtype=np.float32)
+        row_sums = np.empty((H, 3), dtype=np.float64)
+        lowest, bad = k_mod.luminance_rows(image, H, W, mode, weights, lum, row_sums, threads())
+    else:
+        row_sums = row_channel_sums(image)
+        bad = 0 if np.isfinite(row_sums).all() else 1
+        lowest = float(image.min()) if not bad else 0.0
+        lum = None
+    if bad:
+        raise MapValidationError("map has NaN or Inf pixels; repair them first (read with validate_map(repair=True))")
+    if lowest < 0:
+        raise MapValidationError("map has negative pixels; clamp them first (validate_map does)")
+    lum, scale = _scaled_luminance(image, primaries, lum)
+    return lum, scale, row_sums
+
+
+def _scaled_luminance(image: np.ndarray, primaries: str, lum=None) -> tuple[np.ndarray, float]:
     """Luminance (float32) and the power of two it was scaled by to lie well inside float32's range."""
-    lum = luminance(image, primaries)
+    lum = luminance(image, primaries) if lum is None else lum
     peak = float(lum.max())
     if _SCALE_LOW <= peak <= _SCALE_HIGH:
         return lum, 1.0
@@ -235,6 +260,10 @@ def table_from_function(f: SampledFunction, plan: BuildPlan, *, image=None, radi
 
 def _pdf_in_place(values: np.ndarray, total: float) -> np.ndarray:
     """``values / total`` (per steradian), divided in float64 row blocks so tiny or huge totals cannot round to 0/inf."""
+    inv = 1.0 / total
+    if 1e-30 < inv < 1e30:  # float32 holds 1/total with full precision: one multiplication in place
+        np.multiply(values, np.float32(inv), out=values)
+        return values
     step = max(1, (1 << 18) // values.shape[1])
     for r0 in range(0, values.shape[0], step):
         block = values[r0:r0 + step]
