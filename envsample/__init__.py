@@ -64,7 +64,7 @@ _EXPORTS = {
     "write_png": "reports.pictures",
     # strategies and MIS
     "make_strategy": "sampling.strategies",
-    "make_frame": "sampling.strategies",
+    "make_frame": "sampling.frames",
     "TableStrategy": "sampling.strategies",
     "estimate_irradiance": "estimation.estimators",
     "estimate_glossy": "estimation.estimators",
@@ -84,9 +84,9 @@ _EXPORTS = {
     # reference and verify
     "reference_irradiance": "reference.irradiance",
     "reference_accuracy": "reference.irradiance",
-    "reference_glossy": "reference.irradiance",
-    "sh9_project": "reference.irradiance",
-    "sh9_irradiance": "reference.irradiance",
+    "reference_glossy": "reference.glossy",
+    "sh9_project": "reference.sh9",
+    "sh9_irradiance": "reference.sh9",
     "verify_map": "pipeline.verify",
     "tune_one_sample": "validation.tuning",
     "recommend": "validation.tuning",

@@ -52,7 +52,7 @@ def _rebuilt(name: str, backend: str, monkeypatch):
     from envsample.sampling.table import build_table
 
     if backend == "numpy":
-        monkeypatch.setattr(kernel_switch, "_KERNELS", None)
+        monkeypatch.setattr(kernel_switch._SWITCH, "_module", None)
     map_file, _, options = pin.TABLES[name]
     image, _ = validate_map(read_map(DATA / "maps" / map_file))
     return build_table(image, **options)

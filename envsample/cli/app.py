@@ -16,9 +16,10 @@ import traceback
 import click
 
 from envsample._version import __version__
+from envsample.core.text import one_line
 from envsample.errors import EnvsampleError
 
-__all__ = ["main", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR", "FLAG_WORDS", "flags", "one_line"]
+__all__ = ["main", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR", "FLAG_WORDS", "flags"]
 
 #: Exit status for input, usage and file errors.
 EXIT_USER_ERROR = 2
@@ -42,10 +43,6 @@ def flags(message: str) -> str:
     for lib, flag in FLAG_WORDS:
         message = message.replace(lib, flag)
     return message
-
-
-def one_line(message: str) -> str:
-    return " ".join(str(message).split())
 
 
 

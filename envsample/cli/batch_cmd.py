@@ -9,6 +9,9 @@ import click
 from envsample.cli.app import main
 from envsample.cli.options import table_options
 from envsample.cli.output import progress_bar
+from envsample.pipeline.batch import run_batch
+from envsample.pipeline.outcomes import BatchInterrupted
+from envsample.qa.profile import load_profile
 
 
 @main.command()
@@ -36,8 +39,6 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
     1 any map failed or could not be read (with --strict also any warning), 2 usage
     error, 130 interrupted.
     """
-    from envsample.pipeline.batch import BatchInterrupted, run_batch
-    from envsample.qa.profile import load_profile
 
     profile = load_profile(profile_path)
     options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,
@@ -72,7 +73,24 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
                f"({c['skipped']} up to date, not redone)")
     for dup in result.duplicates:
         click.echo("duplicate: " + " == ".join(dup["sources"]))
+    line = _reference_line(result.maps)
+    if line:
+        click.echo(line)
     if result.summary:
         names = ", ".join(Path(p).name for p in result.summary.values())
         click.echo(f"wrote {outdir}/ ({names})")
     return result.exit_code(strict=strict)
+
+
+def _reference_line(maps) -> str | None:
+    """One line on the exact references of ``--verify``: their largest error bound and their time."""
+    bounds = [m.figures["verify_reference_bound"] for m in maps
+              if isinstance(m.figures.get("verify_reference_bound"), (int, float))]
+    if not bounds:
+        return None
+    secs = [m.figures["verify_reference_seconds"] for m in maps
+            if isinstance(m.figures.get("verify_reference_seconds"), (int, float))]
+    timing = f"; {sum(secs):.1f} s in all, at most {max(secs):.2f} s for one map" if secs else ""
+    return (f"verify reference: exact irradiance on {len(bounds)} maps at their table size, relative error bound "
+            f"<= {max(bounds):.1e}{timing}")
+

@@ -12,7 +12,8 @@ import warnings
 
 import click
 
-from envsample.cli.app import flags, one_line
+from envsample.cli.app import flags
+from envsample.core.text import number, one_line
 from envsample.errors import EnvsampleWarning
 
 
@@ -60,7 +61,6 @@ def print_rows(pairs, *, out=None) -> None:
 
 def num(x: float) -> str:
     """A compact number (4 significant digits), written as in every report (:func:`envsample._text.number`)."""
-    from envsample.core.text import number
 
     return number(x, 4)
 

@@ -8,6 +8,10 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import print_rows, size_text
+from envsample.core.files import refuse_overwriting_inputs
+from envsample.io.tables import table_paths
+from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
+from envsample.sampling.table import load_table
 
 
 @main.command()
@@ -30,10 +34,6 @@ def vectors(table_path, output, count, seed, method, map_path):
     loader in another language reads the same table, feeds it the same u and
     must give the same results. The same seed always writes the same file.
     """
-    from envsample.core.files import refuse_overwriting_inputs
-    from envsample.io.tables import table_paths
-    from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
-    from envsample.sampling.table import load_table
 
     check_output_folder(output)
     inputs = list(table_paths(table_path).values()) + ([map_path] if map_path else [])

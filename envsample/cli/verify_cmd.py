@@ -9,6 +9,8 @@ import click
 from envsample.cli.app import main
 from envsample.cli.options import SIZE
 from envsample.cli.output import print_rows, progress_bar
+from envsample.estimation.estimators import estimators as estimator_names
+from envsample.pipeline.verify import verify_map
 
 
 @main.command()
@@ -36,8 +38,6 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     firefly index, time per sample, efficiency, the recommended estimator), EXR
     images of the reference and each estimate, error heat maps and a convergence plot.
     """
-    from envsample.estimation.estimators import estimators as estimator_names
-    from envsample.pipeline.verify import verify_map
 
     if list_only:
         click.echo("\n".join(estimator_names("irradiance")))
@@ -57,7 +57,9 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     print_rows([
         ("verify", f"{source}  (table {tab['cells'][0]}x{tab['cells'][1]}, {tab['mapping']})"),
         ("normals", f"{m['normals']['width']}x{m['normals']['height']} x {m['spp']} spp, seed {m['seed']}"),
-        ("reference", f"exact, relative error bound {ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s)"),
+        ("reference", f"exact at {ref['resolution'][0]}x{ref['resolution'][1]}, relative error bound "
+                      f"{ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s, its accuracy check "
+                      f"{ref['accuracy_seconds']:.1f} s; {ref['backend']} kernel)"),
     ])
     click.echo("")
     head = f"{'estimator':<20} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}  {'ns/sample':>9}  {'efficiency':>10}"

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["CAUTION", "caution", "number"]
+__all__ = ["CAUTION", "caution", "number", "one_line"]
 
 #: The caution printed, written and shown wherever envsample gives a photometric value.
 CAUTION = "estimates for asset preparation, not certified lighting calculations"
@@ -33,3 +33,11 @@ def number(x, digits: int = 4) -> str:
     if abs(x) >= 10**digits:
         return f"{x:.0f}"
     return f"{x:.{digits}g}"
+
+
+def one_line(text, *, limit: int | None = None) -> str:
+    """``text`` with every run of whitespace (newlines included) collapsed to one space, cut to ``limit`` characters."""
+    out = " ".join(str(text).split())
+    if limit is not None and len(out) > limit:
+        out = out[: limit - 3] + "..."
+    return out

@@ -73,32 +73,38 @@ References
 from __future__ import annotations
 
 import contextlib
-import csv
 import glob
 import hashlib
-import io as _io
 import json
 import math
-import multiprocessing
 import os
 import re
-import shutil
-import signal
-import uuid
-import warnings
-from collections import deque
-from collections.abc import Callable, Iterable, Mapping
-from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
-from concurrent.futures.process import BrokenProcessPool, ProcessPoolExecutor
-from dataclasses import dataclass, field
+from collections.abc import Callable, Mapping
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
-from envsample.core.files import atomic_write_text
-from envsample.core.schema import Schema
-from envsample.core.text import caution
-from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
+from envsample.errors import EnvsampleError, MapReadError
+from envsample.pipeline.outcomes import (
+    BatchInterrupted,
+    BatchProgress,
+    BatchResult,
+    MapResult,
+    count_verdicts,
+    result_from_row,
+)
+from envsample.pipeline.runners import import_distributed, make_runner
+from envsample.pipeline.summary import write_summaries
+from envsample.pipeline.tasks import (
+    MAPS_FOLDER,
+    THUMB_WIDTH,
+    VERIFY_SETTINGS,
+    process_map,
+    remove_tree,
+    up_to_date,
+)
 
 __all__ = [
     "BUILD_OPTIONS",
@@ -127,60 +133,9 @@ BUILD_OPTIONS = {
     "rotation_deg": 0.0,
 }
 
-#: Name and version of ``summary.json``.
-SUMMARY_SCHEMA = Schema("envsample.batch-summary", 2)
-#: Name and version of each map folder's ``manifest.json``.
-MANIFEST_SCHEMA = Schema("envsample.batch-map", 2)
-#: Verdicts of a map, best to worst: the QA verdict, or ``error`` when the file could
-#: not be read or processing failed.
-VERDICTS = ("pass", "warn", "fail", "error")
-#: Statuses of a source in one run.
-STATUSES = ("done", "skipped", "error")
-
-#: Columns of ``summary.csv`` (and keys of each row of ``summary.json``).
-ROW_FIELDS = (
-    "source",
-    "status",
-    "verdict",
-    "folder",
-    "sha256",
-    "duplicate_of",
-    "error",
-    "width",
-    "height",
-    "format",
-    "pixel_type",
-    "failed_checks",
-    "warned_checks",
-    "dynamic_range",
-    "sun_azimuth_deg",
-    "sun_elevation_deg",
-    "sun_share",
-    "irradiance_up",
-    "sampling_relative_rmse",
-    "peak_sample_share",
-    "luminance_integral",
-    "table_width",
-    "table_height",
-    "table_note",
-    "verify_rmse_table",
-    "verify_rmse_mis",
-)
-
-
-#: Thumbnail width in pixels (the index page shows them at this size).
-THUMB_WIDTH = 128
-#: Settings of the optional verification (small on purpose: a batch is a screening pass).
-VERIFY_SETTINGS = {
-    "spp": 32,
-    "normals": [32, 16],
-    "estimators": ["cosine", "table", "mis-balance", "one-sample-balance"],
-    "sphere": False,
-}
 # Bump when the layout or the content of a map folder changes: old folders are then redone.
 _LAYOUT_VERSION = 1
 _STAGING = ".staging"
-_MAPS = "maps"
 _NAME_CHARS = re.compile(r"[^A-Za-z0-9._-]+")
 _GLOB_CHARS = re.compile(r"[*?\[]")
 
@@ -188,113 +143,6 @@ _GLOB_CHARS = re.compile(r"[*?\[]")
 # =============================================================================
 # results
 # =============================================================================
-
-
-@dataclass
-class MapResult:
-    """The outcome of one source in a batch.
-
-    ``source`` is the path as found (string); ``status`` is ``"done"`` (processed in
-    this run), ``"skipped"`` (up-to-date outputs) or ``"error"`` (processing failed,
-    nothing written); ``verdict`` is one of :data:`VERDICTS`; ``folder`` the map
-    folder relative to OUTDIR (None when nothing was written); ``error`` a one-line
-    message or None; ``duplicate_of`` the first source (in sorted order) with the same
-    bytes, or None; ``figures`` the key figures (the remaining :data:`ROW_FIELDS`).
-    """
-
-    source: str
-    status: str
-    verdict: str
-    folder: str | None = None
-    sha256: str | None = None
-    duplicate_of: str | None = None
-    error: str | None = None
-    figures: dict = field(default_factory=dict)
-
-    def to_row(self) -> dict:
-        """The summary row: every key of :data:`ROW_FIELDS`, JSON-ready."""
-        row = {k: self.figures.get(k) for k in ROW_FIELDS}
-        row.update(source=self.source, status=self.status, verdict=self.verdict, folder=self.folder,
-                   sha256=self.sha256, duplicate_of=self.duplicate_of, error=self.error)
-        return row
-
-
-@dataclass
-class BatchProgress:
-    """Passed to the ``progress`` callback: ``done`` of ``total`` sources resolved,
-    ``counts`` per verdict (plus ``skipped``), and the latest ``item`` (None at the start)."""
-
-    done: int
-    total: int
-    counts: dict
-    item: MapResult | None = None
-
-
-@dataclass
-class BatchResult:
-    """What :func:`run_batch` did.
-
-    ``maps`` lists one :class:`MapResult` per source in sorted order; ``outdir`` the
-    output folder; ``summary`` the paths of ``summary.json``, ``summary.csv`` and
-    ``index.html`` (empty when interrupted); ``interrupted`` True after Ctrl-C;
-    ``options`` the normalised table options; ``duplicates`` lists
-    ``{"sha256", "sources"}`` for bytes found under several names.
-    """
-
-    outdir: Path
-    maps: list
-    options: dict
-    interrupted: bool = False
-    summary: dict = field(default_factory=dict)
-    duplicates: list = field(default_factory=list)
-
-    @property
-    def counts(self) -> dict:
-        """Sources per verdict, plus ``skipped``, ``done``, ``pending`` and ``maps`` (the total)."""
-        return _counts(self.maps, total=len(self.maps))
-
-    def exit_code(self, strict: bool = False) -> int:
-        """CLI status: 130 interrupted; 1 any map failed QA or errored (or, with
-        ``strict``, warned); else 0.  (Usage errors, 2, are raised before a batch starts.)"""
-        if self.interrupted:
-            return 130
-        worst = {m.verdict for m in self.maps}
-        if worst & {"fail", "error"} or (strict and "warn" in worst):
-            return 1
-        return 0
-
-    def __len__(self) -> int:
-        return len(self.maps)
-
-    def __iter__(self):
-        return iter(self.maps)
-
-
-class BatchInterrupted(KeyboardInterrupt):
-    """Ctrl-C stopped a batch; ``result`` holds the maps finished so far (``interrupted=True``).
-
-    The map folders already published are complete and a rerun resumes from them;
-    no partial folder and no staging files are left behind.
-    """
-
-    def __init__(self, result: BatchResult):
-        super().__init__("batch interrupted")
-        self.result = result
-
-
-def _counts(maps: Iterable[MapResult | None], *, total: int) -> dict:
-    out = {v: 0 for v in VERDICTS}
-    out.update(skipped=0, done=0)
-    for m in maps:
-        if m is None:
-            continue
-        out["done"] += 1
-        out[m.verdict] += 1
-        if m.status == "skipped":
-            out["skipped"] += 1
-    out["pending"] = total - out["done"]
-    out["maps"] = total
-    return out
 
 
 # =============================================================================
@@ -439,11 +287,6 @@ def _hash_all(paths: list[Path]) -> list[tuple[str | None, str | None]]:
         return list(pool.map(one, paths))
 
 
-def map_seed(sha256: str) -> int:
-    """Seed of a map's random numbers: a 64-bit word from ``SeedSequence(int(sha256, 16))``."""
-    return int(np.random.SeedSequence(int(sha256, 16)).generate_state(1, dtype=np.uint64)[0])
-
-
 def _options_key(doc: dict) -> str:
     return hashlib.sha256(json.dumps(doc, sort_keys=True, allow_nan=False).encode("utf-8")).hexdigest()
 
@@ -453,351 +296,9 @@ def _options_key(doc: dict) -> str:
 # =============================================================================
 
 
-def _one_line(error: BaseException) -> str:
-    text = " ".join(str(error).split()) or error.__class__.__name__
-    if not isinstance(error, EnvsampleError):
-        text = f"{error.__class__.__name__}: {text}"
-    return text if len(text) <= 300 else text[:297] + "..."
-
-
-def _remove(path: Path) -> None:
-    shutil.rmtree(path, ignore_errors=True)
-
-
-def _dump_json(path: Path, doc) -> None:
-    path.write_text(json.dumps(doc, indent=2, allow_nan=False) + "\n", encoding="utf-8")
-
-
-def _report_figures(report) -> dict:
-    """Key figures of a QA report for the summary row (None where a check did not run).
-
-    The same figures as a row of the HTML index (:func:`envsample.html.report_row`):
-    dynamic range in stops, the sun-like emitter (degrees, share of the light), the
-    sampling check's relative RMSE and peak sample share, the irradiance on an up-facing
-    surface (map units x sr).
-    """
-    from envsample.reports.pages import report_row
-
-    row = report_row(report)
-    return {k: row.get(k) for k in ROW_FIELDS if k in row and k not in ("source", "verdict", "error")}
-
-
-def _files_of(folder: Path) -> dict:
-    from envsample.io.maps import file_sha256
-
-    files = {}
-    for p in sorted(folder.rglob("*")):
-        if p.is_file():
-            files[p.relative_to(folder).as_posix()] = {"size": p.stat().st_size, "sha256": file_sha256(p)}
-    return files
-
-
-def _build_outputs(task: Mapping, work: Path) -> dict:
-    """Write check.json, thumb.png, the table and verify/ into ``work``; return the summary row."""
-    from envsample.io.maps import read_map, validate_map
-    from envsample.qa.run import check_map
-    from envsample.reports.pictures import thumbnail, write_png
-    from envsample.sampling.table import build_table
-
-    src = Path(task["source"])
-    try:
-        image = read_map(src)
-    except MapReadError:
-        image = None
-    if image is not None and image.sha256 != task["sha256"]:
-        raise EnvsampleError(f"{src}: the file changed while the batch ran (SHA-256 differs); rerun the batch")
-    # An unreadable file still gets its QA report (a failing "read" check) so the reviewer sees why.
-    report = check_map(src if image is None else image, profile=task["profile"])
-    _dump_json(work / "check.json", report.to_dict())
-    row = _report_figures(report)
-    row.update(source=task["display"], status="done", folder=f"{_MAPS}/{task['name']}", sha256=task["sha256"])
-    if image is None or not report.readable:
-        row.update(verdict="error", error=report.checks[0].message if report.checks else "unreadable")
-        return row
-    row["verdict"] = report.verdict
-    write_png(work / "thumb.png", thumbnail(image.rgb, width=THUMB_WIDTH))
-    # The notes of validation and of the build say what the warnings would say; a batch
-    # records them in the row instead of printing them once per map.
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", EnvsampleWarning)
-        try:
-            clean, notes = validate_map(image)
-        except MapValidationError as e:
-            row["table_note"] = "no table: " + _one_line(e).removeprefix(f"{src}: ")
-            return row
-        o = task["options"]
-        table = build_table(clean, size=o["size"], primaries=o["primaries"], mapping=o["mapping"],
-                            uniform_mix=o["uniform_mix"], up=o["up"], rotation_deg=o["rotation_deg"])
-    table.save(work / "table")
-    notes = list(notes) + [str(n) for n in table.metadata.get("notes", [])]
-    row.update(luminance_integral=float(table.integrals["luminance"]),
-               table_width=table.table_width, table_height=table.table_height,
-               table_note="; ".join(notes) or None)
-    if task["verify"]:
-        try:
-            row.update(_verify(table, work / "verify", seed=map_seed(task["sha256"])))
-        except Exception as e:
-            raise EnvsampleError(f"verify failed ({_one_line(e)})") from e
-    return row
-
-
-def _verify(table, folder: Path, *, seed: int) -> dict:
-    """Run the validation render at :data:`VERIFY_SETTINGS`; return its key figures for the row.
-
-    Only figures that depend on the seed alone go into the row: the relative RMSEs.
-    (verify's recommended estimator ranks by measured efficiency, which includes
-    timings, so it is left in ``verify/metrics.json``.)
-    """
-    from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
-
-    s = VERIFY_SETTINGS
-    doc = verify_map(table, folder, spp=s["spp"], normals=tuple(s["normals"]), estimators=tuple(s["estimators"]),
-                     seed=seed, sphere=s["sphere"])
-    est = doc.get("estimators", {})
-
-    def rmse(name):
-        v = est.get(name, {}).get("relative_rmse")
-        return float(v) if isinstance(v, (int, float)) and math.isfinite(v) else None
-
-    return {"verify_rmse_table": rmse("table"), "verify_rmse_mis": rmse("mis-balance")}
-
-
-def _publish(work: Path, final: Path, staging: Path) -> None:
-    """Rename a finished folder into place; an older folder of the same name is moved aside first."""
-    if final.exists():
-        old = staging / f"{final.name}.old.{uuid.uuid4().hex[:12]}"
-        os.replace(final, old)
-        os.replace(work, final)
-        _remove(old)
-    else:
-        os.replace(work, final)
-
-
-def process_map(task: Mapping) -> dict:
-    """Process one map and publish its folder; return ``{"status", "row"}`` (plain data).
-
-    ``task`` is the plain dict :func:`run_batch` builds (source path, expected
-    SHA-256, folder name, options, profile, options key).  Every output is written
-    into a fresh staging folder that is renamed into ``OUTDIR/maps/`` only when
-    complete (``manifest.json`` written last); on any error or interruption the
-    staging folder is removed.  Errors of the map (unreadable, invalid pixels) are
-    results, not exceptions; an unexpected exception gives ``status = "error"``
-    with a one-line message and writes nothing.
-    """
-    staging = Path(task["staging"])
-    work = staging / f"{task['name']}.{uuid.uuid4().hex[:12]}"
-    work.mkdir(parents=True)
-    try:
-        row = _build_outputs(task, work)
-        manifest = {
-            **MANIFEST_SCHEMA.header(),
-            "tool": {"name": "envsample", "version": task["version"]},
-            "source": {"path": task["display"], "sha256": task["sha256"], "size": Path(task["source"]).stat().st_size},
-            "key": task["key"],
-            "options": task["key_doc"],
-            "seed": map_seed(task["sha256"]),
-            "files": _files_of(work),
-            "row": row,
-            "caution": caution("photometric figures"),
-        }
-        _dump_json(work / "manifest.json", manifest)
-        _publish(work, Path(task["outdir"]) / _MAPS / task["name"], staging)
-        return {"status": "done", "row": row}
-    except Exception as e:
-        _remove(work)
-        return {"status": "error", "row": _error_row(task, f"processing failed: {_one_line(e)}")}
-    except BaseException:
-        _remove(work)
-        raise
-
-
-def _error_row(task: Mapping, message: str) -> dict:
-    return {"source": task["display"], "status": "error", "verdict": "error", "folder": None,
-            "sha256": task.get("sha256"), "error": message}
-
-
-def _result_from_row(row: Mapping, *, status: str | None = None) -> MapResult:
-    known = ("source", "status", "verdict", "folder", "sha256", "duplicate_of", "error")
-    figures = {k: v for k, v in row.items() if k not in known}
-    return MapResult(source=row["source"], status=status or row["status"], verdict=row["verdict"],
-                     folder=row.get("folder"), sha256=row.get("sha256"), duplicate_of=row.get("duplicate_of"),
-                     error=row.get("error"), figures=figures)
-
-
-def _up_to_date(folder: Path, sha256: str, key: str, version: str) -> dict | None:
-    """The stored summary row if ``folder`` holds complete outputs for these bytes and options."""
-    try:
-        doc = json.loads((folder / "manifest.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    if not isinstance(doc, dict) or not MANIFEST_SCHEMA.matches(doc) or doc.get("key") != key:
-        return None
-    if doc.get("source", {}).get("sha256") != sha256 or doc.get("tool", {}).get("version") != version:
-        return None
-    files = doc.get("files")
-    if not isinstance(files, dict) or not isinstance(doc.get("row"), dict):
-        return None
-    for rel, info in files.items():
-        try:
-            if (folder / rel).stat().st_size != info["size"]:
-                return None
-        except (OSError, KeyError, TypeError):
-            return None
-    return doc["row"]
-
-
 # =============================================================================
 # runners: in this process, a local process pool, a Dask cluster
 # =============================================================================
-
-
-def _worker_init() -> None:
-    # Ctrl-C reaches the whole process group; only the parent decides what to stop.
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-    # A worker whose parent was killed (SIGKILL, OOM) would otherwise wait forever on the
-    # task queue, whose pipe it holds open itself: leave as soon as the parent is gone.
-    parent = multiprocessing.parent_process()
-    if parent is not None:
-        import threading
-        from multiprocessing.connection import wait as wait_for
-
-        def watch():
-            wait_for([parent.sentinel])
-            os._exit(1)
-
-        threading.Thread(target=watch, name="envsample-parent-watch", daemon=True).start()
-
-
-def _run_inline(tasks, task_fn):
-    for index, task in tasks:
-        yield index, task_fn(task)
-
-
-def _terminate(executor) -> None:
-    """Stop a pool's workers now.  ProcessPoolExecutor has no public way to do this before
-    Python 3.14 (``terminate_workers``); ``_processes`` is its map of worker processes."""
-    procs = list((getattr(executor, "_processes", None) or {}).values())
-    for p in procs:
-        with contextlib.suppress(Exception):
-            p.terminate()
-    for p in procs:
-        with contextlib.suppress(Exception):
-            p.join(10)
-
-
-def _run_pool(tasks, task_fn, workers: int):
-    """Yield (index, outcome) as tasks finish in spawned worker processes.
-
-    At most ``workers`` tasks are in flight, so a worker that dies (a crash in a
-    decoder, the out-of-memory killer) takes down few others.  Tasks caught in a
-    broken pool are retried one at a time; a task that breaks the pool on its own
-    is recorded as an error.
-    """
-    ctx = multiprocessing.get_context("spawn")
-    queue = deque(tasks)
-    suspects: deque = deque()
-    in_flight: dict = {}
-    executor = None
-    finished = False
-    try:
-        while queue or suspects or in_flight:
-            if executor is None:
-                executor = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_worker_init)
-                broken = False
-            if not broken:
-                if suspects:
-                    if not in_flight:
-                        item = suspects.popleft()
-                        in_flight[executor.submit(task_fn, item[1])] = (item, True)
-                else:
-                    while queue and len(in_flight) < workers:
-                        item = queue.popleft()
-                        in_flight[executor.submit(task_fn, item[1])] = (item, False)
-            done, _ = wait(list(in_flight), return_when=FIRST_COMPLETED)
-            for fut in done:
-                item, alone = in_flight.pop(fut)
-                try:
-                    outcome = fut.result()
-                except BrokenProcessPool:
-                    broken = True
-                    if alone:
-                        msg = "the worker process died on this map (a crash or out of memory); check the file"
-                        yield item[0], {"status": "error", "row": _error_row(item[1], msg)}
-                    else:
-                        suspects.append(item)
-                    continue
-                except KeyboardInterrupt:
-                    raise
-                except Exception as e:
-                    outcome = {"status": "error", "row": _error_row(item[1], f"processing failed: {_one_line(e)}")}
-                yield item[0], outcome
-            if broken and not in_flight:
-                executor.shutdown(wait=True)
-                executor = None
-        finished = True
-    finally:
-        if executor is not None:
-            if not finished:
-                for fut in in_flight:
-                    fut.cancel()
-                _terminate(executor)
-            executor.shutdown(wait=True, cancel_futures=True)
-
-
-def _import_distributed():
-    """dask.distributed, imported only when a scheduler is given (an optional extra)."""
-    try:
-        import distributed
-    except ImportError as e:
-        raise EnvsampleError(
-            "scheduler: dask.distributed is not installed; install it with 'pip install envsample[dask]'"
-        ) from e
-    return distributed
-
-
-def _dask_client(scheduler):
-    distributed = _import_distributed()
-    if isinstance(scheduler, str):
-        try:
-            return distributed, distributed.Client(scheduler, timeout="30s"), True
-        except (OSError, TimeoutError) as e:
-            raise EnvsampleError(
-                f"scheduler {scheduler}: cannot connect ({_one_line(e)}); check the address (e.g. tcp://host:8786)"
-            ) from e
-    if hasattr(scheduler, "submit") and hasattr(scheduler, "cancel"):
-        return distributed, scheduler, False
-    raise TypeError(f"scheduler must be an address string or a dask.distributed Client, got {type(scheduler).__name__}")
-
-
-def _run_dask(tasks, task_fn, scheduler):
-    """Yield (index, outcome) as tasks finish on a Dask cluster (the same task function).
-
-    The workers must see OUTDIR and the sources at the same paths (a shared file
-    system) and have envsample installed.
-    """
-    distributed, client, owned = _dask_client(scheduler)
-    futures = {}
-    finished = False
-    try:
-        run = uuid.uuid4().hex[:8]
-        for index, task in tasks:
-            fut = client.submit(task_fn, task, key=f"envsample-batch-{task['name']}-{run}", pure=False)
-            futures[fut] = (index, task)
-        for fut in distributed.as_completed(list(futures)):
-            index, task = futures[fut]
-            try:
-                outcome = fut.result()
-            except Exception as e:
-                outcome = {"status": "error", "row": _error_row(task, f"processing failed on the cluster: {_one_line(e)}")}
-            yield index, outcome
-        finished = True
-    finally:
-        if not finished and futures:
-            with contextlib.suppress(Exception):
-                client.cancel(list(futures))
-        if owned:
-            with contextlib.suppress(Exception):
-                client.close()
 
 
 # =============================================================================
@@ -838,9 +339,6 @@ def _check_workers(workers) -> int:
     return int(workers)
 
 
-_TASK = process_map  # the function the runners call; replaceable in tests
-
-
 def run_batch(
     sources,
     outdir,
@@ -852,6 +350,7 @@ def run_batch(
     options: Mapping | None = None,
     profile=None,
     progress: Callable[[BatchProgress], None] | None = None,
+    task: Callable[[Mapping], dict] = process_map,
 ) -> BatchResult:
     """Check, build tables for and optionally verify every map of a library.
 
@@ -883,6 +382,11 @@ def run_batch(
         QA thresholds (:func:`envsample.qa.load_profile`).
     progress : callable, optional
         Called with a :class:`BatchProgress` once at the start and after every source.
+    task : callable, optional
+        The function each worker runs on one map's task dict (default
+        :func:`envsample.pipeline.tasks.process_map`).  Give a wrapper of it to
+        instrument or restrict a batch; with worker processes or Dask it must be a
+        top-level function the workers can import.
 
     Returns
     -------
@@ -913,7 +417,7 @@ def run_batch(
         shown = ", ".join(os.fspath(s) for s in ([sources] if isinstance(sources, (str, os.PathLike)) else sources))
         raise EnvsampleError(f"no map files found in {shown or 'the sources given'}; pass .exr/.hdr files, folders or globs")
     if scheduler is not None:
-        _import_distributed()
+        import_distributed()
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
     key_doc = {
@@ -926,19 +430,11 @@ def run_batch(
     }
     with _locked(out):
         return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
-                           runner=_runner(scheduler, n_workers), progress=progress)
+                           runner=make_runner(scheduler, n_workers), progress=progress, task=task)
 
 
-def _runner(scheduler, workers: int):
-    """A function (tasks, task_fn) -> generator of (index, outcome): Dask, a process pool, or inline."""
-    if scheduler is not None:
-        return lambda tasks, fn: _run_dask(tasks, fn, scheduler)
-    if workers == 0:
-        return _run_inline
-    return lambda tasks, fn: _run_pool(tasks, fn, min(workers, len(tasks))) if tasks else _run_inline(tasks, fn)
-
-
-def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bool, runner, progress) -> BatchResult:
+def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bool, runner, progress,
+                task) -> BatchResult:
     """The batch proper, with OUTDIR locked: plan, run, write the summaries; Ctrl-C anywhere -> BatchInterrupted."""
     version = key_doc["tool_version"]
     staging = out / _STAGING
@@ -948,12 +444,12 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
     def emit(item):
         if progress is not None:
             progress(BatchProgress(done=sum(r is not None for r in results), total=len(results),
-                                   counts=_counts(results, total=len(results)), item=item))
+                                   counts=count_verdicts(results, total=len(results)), item=item))
 
     jobs = None
     try:
-        _remove(staging)  # left by a batch that was killed
-        (out / _MAPS).mkdir(exist_ok=True)
+        remove_tree(staging)  # left by a batch that was killed
+        (out / MAPS_FOLDER).mkdir(exist_ok=True)
         plan = _plan(paths, out, force=force, key=key, version=version)
         results[:] = plan.results
         duplicates = plan.duplicates
@@ -967,7 +463,7 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
                       "verify": key_doc["verify"] is not None, "profile": profile, "key": key,
                       "key_doc": key_doc, "version": version})
                  for i in plan.todo]
-        jobs = runner(tasks, _TASK)
+        jobs = runner(tasks, task)
         for index, outcome in jobs:
             results[index] = _finish(plan, index, outcome)
             emit(results[index])
@@ -976,7 +472,7 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
                 emit(results[j])
         jobs.close()
         result = BatchResult(outdir=out, maps=results, options=key_doc["build"], duplicates=duplicates)
-        result.summary = _write_summaries(result, key_doc, profile)
+        result.summary = write_summaries(result, key_doc, profile)
         return result
     except KeyboardInterrupt:
         if jobs is not None:
@@ -987,7 +483,7 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
     finally:
         if jobs is not None:
             jobs.close()
-        _remove(staging)
+        remove_tree(staging)
 
 
 @dataclass
@@ -1029,9 +525,9 @@ def _plan(paths: list[Path], out: Path, *, force: bool, key: str, version: str) 
             aliases.setdefault(owner, []).append(i)
             continue
         owners[name.casefold()] = i
-        row = None if force else _up_to_date(out / _MAPS / name, sha, key, version)
+        row = None if force else up_to_date(out / MAPS_FOLDER / name, sha, key, version)
         if row is not None:
-            results[i] = _result_from_row({**row, "source": display, "duplicate_of": dup_of[i]}, status="skipped")
+            results[i] = result_from_row({**row, "source": display, "duplicate_of": dup_of[i]}, status="skipped")
         else:
             todo.append(i)
     for owner, members in aliases.items():
@@ -1045,7 +541,7 @@ def _plan(paths: list[Path], out: Path, *, force: bool, key: str, version: str) 
 def _finish(plan: _Plan, index: int, outcome: Mapping) -> MapResult:
     row = dict(outcome["row"])
     row["duplicate_of"] = plan.dup_of[index]
-    return _result_from_row(row)
+    return result_from_row(row)
 
 
 def _alias(owner: MapResult, display: str, dup_of: str | None) -> MapResult:
@@ -1058,74 +554,3 @@ def _alias(owner: MapResult, display: str, dup_of: str | None) -> MapResult:
 # =============================================================================
 
 
-def _csv_value(v) -> str:
-    if v is None:
-        return ""
-    if isinstance(v, bool):
-        return "yes" if v else "no"
-    if isinstance(v, float):
-        return f"{v:.6g}"
-    if isinstance(v, (list, tuple)):
-        return ";".join(str(x) for x in v)
-    return str(v)
-
-
-def _write_summaries(result: BatchResult, key_doc: dict, profile) -> dict:
-    """summary.json, summary.csv and index.html in OUTDIR, each by temporary file and rename."""
-    from envsample._version import __version__
-
-    rows = [m.to_row() for m in result.maps]
-    doc = {
-        **SUMMARY_SCHEMA.header(),
-        "tool": {"name": "envsample", "version": __version__},
-        "options": {k: v for k, v in key_doc.items() if k != "profile"},
-        "profile": {"name": profile.name, "path": profile.path},
-        "counts": result.counts,
-        "duplicates": result.duplicates,
-        "maps": rows,
-        "caution": caution("photometric figures"),
-    }
-    paths = {"json": result.outdir / "summary.json", "csv": result.outdir / "summary.csv",
-             "html": result.outdir / "index.html"}
-    atomic_write_text(paths["json"], json.dumps(doc, indent=2, allow_nan=False) + "\n")
-    buf = _io.StringIO()
-    writer = csv.writer(buf, lineterminator="\n")
-    writer.writerow(ROW_FIELDS)
-    for row in rows:
-        writer.writerow([_csv_value(row[k]) for k in ROW_FIELDS])
-    atomic_write_text(paths["csv"], buf.getvalue())
-    from envsample.reports.pages import index_page
-
-    index_page(_index_rows(result, rows), paths["html"])
-    return paths
-
-
-def _index_rows(result: BatchResult, rows: list[dict]) -> list[dict]:
-    """Rows for :func:`envsample.html.index_page`: the summary row plus picture, links and a note."""
-    out = []
-    for row in rows:
-        r = dict(row)
-        notes = []
-        folder = row.get("folder")
-        if folder:
-            r["links"] = {"report": f"{folder}/check.json"}
-            if (result.outdir / folder / "table.json").is_file():
-                r["links"]["table"] = f"{folder}/table.json"
-            if (result.outdir / folder / "verify" / "metrics.json").is_file():
-                r["links"]["verify"] = f"{folder}/verify/metrics.json"
-            if (result.outdir / folder / "thumb.png").is_file():
-                r["thumbnail"] = f"{folder}/thumb.png"
-        if row.get("table_width"):
-            notes.append(f"table {row['table_width']}\u00d7{row['table_height']}")
-        if row.get("table_note"):
-            notes.append(row["table_note"])
-        if row.get("verify_rmse_table") is not None or row.get("verify_rmse_mis") is not None:
-            figures = ", ".join(f"{label} {row[key]:.3g}" for label, key in (("table", "verify_rmse_table"),
-                                                                            ("MIS", "verify_rmse_mis"))
-                                if row.get(key) is not None)
-            notes.append(f"verify relative RMSE: {figures}")
-        if row.get("duplicate_of"):
-            notes.append(f"same bytes as {row['duplicate_of']}")
-        r["note"] = "; ".join(notes) or None
-        out.append(r)
-    return out

@@ -57,11 +57,12 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 import numpy as np
 
-from envsample.core.sphere import to_local, to_world
+from envsample.core.sphere import to_world
+from envsample.sampling.frames import Frame, check_u, make_frame
+from envsample.sampling.ggx import GGXReflection
 
 __all__ = [
     "Frame",
@@ -75,106 +76,11 @@ __all__ = [
     "STRATEGIES",
     "make_strategy",
     "concentric_disk",
-    "ggx_d",
-    "ggx_lambda",
-    "ggx_g1",
-    "ggx_g2",
 ]
 
 INV_PI = 1.0 / math.pi
 INV_2PI = 1.0 / (2.0 * math.pi)
 INV_4PI = 1.0 / (4.0 * math.pi)
-
-#: Smallest GGX alpha accepted: below it D overflows float64 near the peak.
-MIN_ROUGHNESS = 1e-4
-
-
-@dataclass(frozen=True)
-class Frame:
-    """Per-sample shading frames.
-
-    Attributes
-    ----------
-    normals : float64 (N, 3)
-        Unit surface normals, world space.
-    wo : float64 (N, 3) or None
-        Unit view directions pointing away from the surface (BSDF strategies only).
-    roughness : float64 (N,) or None
-        GGX alpha (Walter et al. 2007's alpha_g, the width of D; *not* squared
-        "perceptual" roughness), in [1e-4, 1].
-    """
-
-    normals: np.ndarray
-    wo: np.ndarray | None = None
-    roughness: np.ndarray | None = None
-
-    def __len__(self) -> int:
-        return self.normals.shape[0]
-
-    def take(self, index) -> "Frame":
-        """The frames of a subset of samples (boolean mask or integer index)."""
-        return Frame(
-            self.normals[index],
-            None if self.wo is None else self.wo[index],
-            None if self.roughness is None else self.roughness[index],
-        )
-
-    def repeat(self, count: int) -> "Frame":
-        """Each frame repeated ``count`` times in a row (frame i -> rows i*count .. i*count+count-1)."""
-        return Frame(
-            np.repeat(self.normals, count, axis=0),
-            None if self.wo is None else np.repeat(self.wo, count, axis=0),
-            None if self.roughness is None else np.repeat(self.roughness, count, axis=0),
-        )
-
-
-def _unit_vectors(x, name: str, n: int | None = None) -> np.ndarray:
-    a = np.asarray(x, dtype=np.float64)
-    if a.ndim == 1:
-        a = a[None, :]
-    if a.ndim != 2 or a.shape[1] != 3:
-        raise ValueError(f"{name} must have shape (N, 3) or (3,), got {np.shape(x)}; pass unit vectors")
-    if n is not None and a.shape[0] not in (1, n):
-        raise ValueError(f"{name} has {a.shape[0]} rows but the normals have {n}; pass one per normal or one for all")
-    if not np.all(np.isfinite(a)):
-        raise ValueError(f"{name} contains NaN or Inf; pass finite unit vectors")
-    norm = np.linalg.norm(a, axis=1)
-    if np.any(norm < 1e-12):
-        raise ValueError(f"{name} contains a zero vector; pass unit vectors")
-    a = a / norm[:, None]
-    if n is not None and a.shape[0] == 1 and n != 1:
-        a = np.broadcast_to(a, (n, 3)).copy()
-    return a
-
-
-def make_frame(normals, wo=None, roughness=None) -> Frame:
-    """Validate and normalise inputs into a :class:`Frame`.
-
-    ``normals`` (N, 3) or (3,); ``wo`` (N, 3) or (3,) broadcast to every normal;
-    ``roughness`` scalar or (N,) GGX alpha.  Vectors are normalised; zero, NaN or Inf
-    vectors and roughness outside [1e-4, 1] raise ValueError.
-    """
-    n = _unit_vectors(normals, "normals")
-    count = n.shape[0]
-    w = None if wo is None else _unit_vectors(wo, "wo", count)
-    r = None
-    if roughness is not None:
-        r = np.asarray(roughness, dtype=np.float64)
-        if r.ndim == 0:
-            r = np.full(count, float(r))
-        if r.shape != (count,):
-            raise ValueError(f"roughness must be a scalar or shape ({count},), got {r.shape}")
-        if not np.all(np.isfinite(r)) or np.any(r < MIN_ROUGHNESS) or np.any(r > 1.0):
-            raise ValueError(f"roughness (GGX alpha) must lie in [{MIN_ROUGHNESS}, 1]; got min {r.min()}, max {r.max()}")
-    return Frame(n, w, r)
-
-
-def _check_u(u, frame: Frame) -> np.ndarray:
-    u = np.asarray(u, dtype=np.float64)
-    if u.ndim != 2 or u.shape[1] != 2 or u.shape[0] != len(frame):
-        raise ValueError(f"u must have shape ({len(frame)}, 2) (one uniform pair per frame), got {u.shape}")
-    return u
-
 
 def concentric_disk(u) -> np.ndarray:
     """Map uniforms (N, 2) in [0,1)^2 to points (N, 2) on the unit disk, uniformly in area.
@@ -204,7 +110,7 @@ class CosineHemisphere:
     compensated = False
 
     def sample(self, u, frame: Frame):
-        u = _check_u(u, frame)
+        u = check_u(u, frame)
         d = concentric_disk(u)
         z = np.sqrt(np.maximum(0.0, 1.0 - d[:, 0] ** 2 - d[:, 1] ** 2))
         local = np.column_stack([d, z])
@@ -222,7 +128,7 @@ class UniformHemisphere:
     compensated = False
 
     def sample(self, u, frame: Frame):
-        u = _check_u(u, frame)
+        u = check_u(u, frame)
         z = u[:, 0]  # cos theta uniform in [0, 1) gives uniform solid angle (Archimedes)
         s = np.sqrt(np.maximum(0.0, 1.0 - z * z))
         phi = 2.0 * math.pi * u[:, 1]
@@ -242,7 +148,7 @@ class UniformSphere:
     compensated = False
 
     def sample(self, u, frame: Frame):
-        u = _check_u(u, frame)
+        u = check_u(u, frame)
         z = 1.0 - 2.0 * u[:, 0]
         s = np.sqrt(np.maximum(0.0, 1.0 - z * z))
         phi = 2.0 * math.pi * u[:, 1]
@@ -279,146 +185,6 @@ class LambertBSDF(CosineHemisphere):
 # --- GGX (Trowbridge-Reitz) pieces, local frame (normal = +z) ------------------
 
 
-def ggx_d(h, alpha) -> np.ndarray:
-    """GGX normal distribution D(h) per sr of microfacet normals, local unit h (N, 3).
-
-    Walter et al. (2007), eq. 33 (from memory): D = alpha^2 / (pi cos^4 t (alpha^2 + tan^2 t)^2),
-    written as alpha^2 / (pi (cos^2 t (alpha^2 - 1) + 1)^2); zero for h_z <= 0.
-    Normalised so that integral of D(h) cos t_h over the hemisphere is 1.
-    """
-    h = np.asarray(h, dtype=np.float64)
-    a2 = np.asarray(alpha, dtype=np.float64) ** 2
-    c2 = h[:, 2] ** 2
-    denom = c2 * (a2 - 1.0) + 1.0
-    return np.where(h[:, 2] > 0.0, a2 / (math.pi * denom * denom), 0.0)
-
-
-def ggx_lambda(v, alpha) -> np.ndarray:
-    """Smith Lambda for GGX, local unit v (N, 3): (-1 + sqrt(1 + alpha^2 tan^2 t)) / 2.
-
-    Heitz (2014), section 5; written with tan^2 = (1 - z^2)/z^2 and evaluated as
-    (sqrt(z^2 + alpha^2 (1 - z^2)) / |z| - 1)/2 to stay finite at grazing angles.
-    """
-    v = np.asarray(v, dtype=np.float64)
-    a2 = np.asarray(alpha, dtype=np.float64) ** 2
-    z2 = v[:, 2] ** 2
-    az = np.maximum(np.abs(v[:, 2]), 1e-300)
-    return 0.5 * (np.sqrt(z2 + a2 * np.maximum(0.0, 1.0 - z2)) / az - 1.0)
-
-
-def ggx_g1(v, alpha) -> np.ndarray:
-    """Smith masking G1(v) = 1 / (1 + Lambda(v)) for v above the surface, else 0 (Heitz 2014)."""
-    v = np.asarray(v, dtype=np.float64)
-    return np.where(v[:, 2] > 0.0, 1.0 / (1.0 + ggx_lambda(v, alpha)), 0.0)
-
-
-def ggx_g2(wi, wo, alpha) -> np.ndarray:
-    """Height-correlated Smith masking-shadowing G2 = 1 / (1 + Lambda(wo) + Lambda(wi)) (Heitz 2014, eq. 99 from memory).
-
-    Reflection only: zero unless both directions are above the surface.
-    """
-    wi = np.asarray(wi, dtype=np.float64)
-    wo = np.asarray(wo, dtype=np.float64)
-    g = 1.0 / (1.0 + ggx_lambda(wi, alpha) + ggx_lambda(wo, alpha))
-    return np.where((wi[:, 2] > 0.0) & (wo[:, 2] > 0.0), g, 0.0)
-
-
-def _ggx_sample_vndf(v, alpha, u) -> np.ndarray:
-    """Visible-normal sample of Heitz (2018), listing 1, isotropic alpha; local v with v_z > 0."""
-    vh = np.column_stack([alpha * v[:, 0], alpha * v[:, 1], v[:, 2]])
-    vh /= np.linalg.norm(vh, axis=1)[:, None]
-    lensq = vh[:, 0] ** 2 + vh[:, 1] ** 2
-    inv = np.where(lensq > 0.0, 1.0 / np.sqrt(np.where(lensq > 0.0, lensq, 1.0)), 0.0)
-    t1 = np.where(
-        (lensq > 0.0)[:, None],
-        np.column_stack([-vh[:, 1] * inv, vh[:, 0] * inv, np.zeros_like(inv)]),
-        np.array([1.0, 0.0, 0.0]),
-    )
-    t2 = np.cross(vh, t1)
-    r = np.sqrt(u[:, 0])
-    phi = 2.0 * math.pi * u[:, 1]
-    p1 = r * np.cos(phi)
-    p2 = r * np.sin(phi)
-    s = 0.5 * (1.0 + vh[:, 2])
-    p2 = (1.0 - s) * np.sqrt(np.maximum(0.0, 1.0 - p1 * p1)) + s * p2
-    p3 = np.sqrt(np.maximum(0.0, 1.0 - p1 * p1 - p2 * p2))
-    nh = p1[:, None] * t1 + p2[:, None] * t2 + p3[:, None] * vh
-    ne = np.column_stack([alpha * nh[:, 0], alpha * nh[:, 1], np.maximum(1e-300, nh[:, 2])])
-    return ne / np.linalg.norm(ne, axis=1)[:, None]
-
-
-class GGXReflection:
-    """GGX microfacet reflection, visible-normal sampling (Heitz 2018), F = 1, height-correlated G2.
-
-    ``frame.wo`` and ``frame.roughness`` (GGX alpha) are required.
-
-    * ``eval`` = D(h) G2(wi, wo) F / (4 |n.wi| |n.wo|) with h = normalize(wi + wo),
-      zero when wi or wo is below the surface (Walter et al. 2007, eq. 20 from memory).
-    * ``pdf`` of the reflected direction = G1(wo) D(h) / (4 wo_z): the visible-normal
-      density G1(wo) max(0, wo.h) D(h) / wo_z (Heitz 2018) times the reflection
-      Jacobian 1/(4 wo.h) (Walter et al. 2007).  It is non-zero for reflected
-      directions below the surface: they are sampled, contribute nothing, and are
-      kept in the normalisation.  Zero when wo is below the surface.
-    """
-
-    name = "ggx"
-    compensated = False
-
-    @staticmethod
-    def _require_view(frame: Frame) -> None:
-        if frame.wo is None or frame.roughness is None:
-            raise ValueError("the ggx strategy needs frame.wo and frame.roughness; build the frame with make_frame(normals, wo, roughness)")
-
-    @staticmethod
-    def _local(directions, frame: Frame):
-        GGXReflection._require_view(frame)
-        wi = to_local(np.asarray(directions, dtype=np.float64), frame.normals)
-        wo = to_local(frame.wo, frame.normals)
-        return wi, wo, frame.roughness
-
-    @staticmethod
-    def _half(wi, wo):
-        h = wi + wo
-        norm = np.linalg.norm(h, axis=1)
-        ok = norm > 1e-12
-        h = h / np.where(ok, norm, 1.0)[:, None]
-        return h, ok
-
-    def sample(self, u, frame: Frame):
-        u = _check_u(u, frame)
-        self._require_view(frame)
-        wo = to_local(frame.wo, frame.normals)
-        alpha = frame.roughness
-        above = wo[:, 2] > 0.0
-        # Views from below see no visible normals; sample something harmless with pdf 0.
-        v = np.where(above[:, None], wo, np.array([0.0, 0.0, 1.0]))
-        h = _ggx_sample_vndf(v, alpha, u)
-        wi = 2.0 * np.sum(v * h, axis=1)[:, None] * h - v
-        wi /= np.linalg.norm(wi, axis=1)[:, None]
-        pdf = self._pdf_local(wi, v, alpha, h)
-        pdf = np.where(above, pdf, 0.0)
-        return to_world(wi, frame.normals), pdf
-
-    @staticmethod
-    def _pdf_local(wi, wo, alpha, h):
-        vz = np.maximum(wo[:, 2], 1e-300)
-        p = ggx_g1(wo, alpha) * ggx_d(h, alpha) / (4.0 * vz)
-        return np.where(wo[:, 2] > 0.0, p, 0.0)
-
-    def pdf(self, directions, frame: Frame):
-        wi, wo, alpha = self._local(directions, frame)
-        h, ok = self._half(wi, wo)
-        return np.where(ok, self._pdf_local(wi, wo, alpha, h), 0.0)
-
-    def eval(self, directions, frame: Frame):
-        wi, wo, alpha = self._local(directions, frame)
-        h, ok = self._half(wi, wo)
-        up = ok & (wi[:, 2] > 0.0) & (wo[:, 2] > 0.0)
-        denom = 4.0 * np.where(up, wi[:, 2] * wo[:, 2], 1.0)
-        f = ggx_d(h, alpha) * ggx_g2(wi, wo, alpha) / denom  # F = 1
-        return np.where(up, f, 0.0)
-
-
 class TableStrategy:
     """An environment sampling table as a strategy; the frame is ignored.
 
@@ -439,7 +205,7 @@ class TableStrategy:
         self.compensated = bool(getattr(table, "compensated", False))
 
     def sample(self, u, frame: Frame):
-        u = _check_u(u, frame)
+        u = check_u(u, frame)
         s = self.table.sample(u, method=self.method)
         return np.asarray(s.directions, dtype=np.float64), np.asarray(s.pdf, dtype=np.float64)
 

@@ -38,3 +38,14 @@ def test_batch_usage_errors_exit_two(tmp_path):
     r = _run("batch", tmp_path / "nothing-here", "-o", tmp_path / "out")
     assert r.exit_code == 2
     assert r.output.startswith("error:")
+
+
+def test_batch_verify_prints_the_reference_bound_and_time(tmp_path):
+    src = tmp_path / "library"
+    src.mkdir()
+    write_map(src / "overcast.exr", make_sky("overcast", width=64), pixel_type="float")
+    r = _run("batch", src, "-o", tmp_path / "out", "--workers", "0", "--verify")
+    assert r.exit_code == 0, r.output
+    line = next(x for x in r.output.splitlines() if x.startswith("verify reference:"))
+    assert "exact irradiance on 1 maps at their table size, relative error bound <=" in line
+    assert "s in all, at most" in line

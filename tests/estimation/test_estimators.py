@@ -20,7 +20,9 @@ from envsample.estimation.estimators import (
     estimators,
     firefly_index,
 )
-from envsample.sampling.strategies import CosineHemisphere, GGXReflection, TableStrategy, make_frame
+from envsample.sampling.frames import make_frame
+from envsample.sampling.ggx import GGXReflection
+from envsample.sampling.strategies import CosineHemisphere, TableStrategy
 from envsample.sampling.table import build_table
 
 #: Allowed deviation of an unbiased estimate, in standard errors.

@@ -31,17 +31,14 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from support.batch_tasks import crash_on_studio
 
 from envsample.errors import EnvsampleError
 from envsample.io.maps import write_map
-from envsample.pipeline import batch
-from envsample.pipeline.batch import (
-    ROW_FIELDS,
-    BatchInterrupted,
-    expand_sources,
-    normalize_options,
-    run_batch,
-)
+from envsample.pipeline.batch import expand_sources, normalize_options, run_batch
+from envsample.pipeline.outcomes import ROW_FIELDS, VERDICTS, BatchInterrupted
+from envsample.pipeline.summary import SUMMARY_SCHEMA
+from envsample.pipeline.tasks import VERIFY_SETTINGS, map_seed, process_map
 from envsample.sampling.table import load_table
 from envsample.synth.skies import make_sky
 
@@ -169,8 +166,8 @@ def test_normalize_options_checks_names_and_values():
 def test_map_seed_comes_from_the_sha256_through_seedsequence():
     digest = hashlib.sha256(b"a map").hexdigest()
     expected = int(np.random.SeedSequence(int(digest, 16)).generate_state(1, dtype=np.uint64)[0])
-    assert batch.map_seed(digest) == expected
-    assert batch.map_seed(hashlib.sha256(b"another map").hexdigest()) != expected
+    assert map_seed(digest) == expected
+    assert map_seed(hashlib.sha256(b"another map").hexdigest()) != expected
 
 
 # --------------------------------------------------------------------------- the main run
@@ -215,7 +212,7 @@ def test_batch_reports_the_corrupt_file_and_finishes_the_rest(tmp_path):
 
     # Summaries: one row per source, in every format.
     summary = json.loads((out / "summary.json").read_text())
-    assert batch.SUMMARY_SCHEMA.matches(summary) and summary["schema"] == "envsample.batch-summary" and len(summary["maps"]) == 7
+    assert SUMMARY_SCHEMA.matches(summary) and summary["schema"] == "envsample.batch-summary" and len(summary["maps"]) == 7
     assert summary["counts"]["error"] == 1 and summary["counts"]["fail"] == 1
     with open(out / "summary.csv", newline="") as fh:
         table_rows = list(csv.DictReader(fh))
@@ -237,7 +234,7 @@ def test_batch_reports_the_corrupt_file_and_finishes_the_rest(tmp_path):
     assert events[0].done == 0 and events[0].item is None
     assert [e.done for e in events] == list(range(8))
     last = events[-1].counts
-    assert sum(last[v] for v in batch.VERDICTS) == 7 and last["pending"] == 0
+    assert sum(last[v] for v in VERDICTS) == 7 and last["pending"] == 0
     assert result.exit_code() == 1  # one failure and one error
 
     assert not (out / ".staging").exists()
@@ -279,42 +276,34 @@ def test_second_run_skips_everything_force_redoes_and_new_options_redo(tmp_path)
     assert {k: v for k, v in fingerprint(files.values()).items() if k in before} == before
 
 
-def test_a_failing_map_is_recorded_and_the_batch_goes_on(tmp_path, monkeypatch):
+def _fail_inside_studio(task):
+    """Task wrapper: the studio map fails inside process_map (its profile is not one), the others run."""
+    if task["name"].startswith("studio-"):
+        task = {**task, "profile": object()}
+    return process_map(task)
+
+
+def test_a_failing_map_is_recorded_and_the_batch_goes_on(tmp_path):
     files = make_library(tmp_path / "lib")
-    original = batch._build_outputs
-
-    def flaky(task, work):
-        if task["name"].startswith("studio-"):
-            (work / "half-written.bin").write_bytes(b"\0" * 10)
-            raise RuntimeError("simulated failure\nwith a second line")
-        return original(task, work)
-
-    monkeypatch.setattr(batch, "_build_outputs", flaky)
     out = tmp_path / "out"
-    rows = by_source(run_batch([tmp_path / "lib"], out, workers=0))
+    rows = by_source(run_batch([tmp_path / "lib"], out, workers=0, task=_fail_inside_studio))
     bad = rows["studio.exr"]
     assert bad.status == "error" and bad.folder is None
-    assert bad.error == "processing failed: RuntimeError: simulated failure with a second line"
-    assert not list((out / "maps").glob("studio-*"))
+    assert bad.error.startswith("processing failed: TypeError: profile must be a path")
+    assert not list((out / "maps").glob("studio-*")) and not (out / ".staging").exists()
     assert all(m.status == "done" for n, m in rows.items() if n != "studio.exr")
-    monkeypatch.setattr(batch, "_build_outputs", original)
     # Errors are not cached: the next run tries the map again and skips the others.
     rows = by_source(run_batch([tmp_path / "lib"], out, workers=0))
     assert rows["studio.exr"].status == "done" and rows["sun.exr"].status == "skipped"
     assert files["studio"].exists()
 
 
-def _crash_on_studio(task):
-    """Task stand-in that kills its worker process on one map (a crash in a decoder)."""
-    if task["name"].startswith("studio-"):
-        os._exit(3)
-    return batch.process_map(task)
 
 
-def test_a_crashing_worker_costs_only_its_map(tmp_path, monkeypatch):
+def test_a_crashing_worker_costs_only_its_map(tmp_path):
     make_library(tmp_path / "lib")
-    monkeypatch.setattr(batch, "_TASK", _crash_on_studio)
-    rows = by_source(run_batch([tmp_path / "lib" / "sub", tmp_path / "lib" / "uniform.exr"], tmp_path / "out", workers=1))
+    rows = by_source(run_batch([tmp_path / "lib" / "sub", tmp_path / "lib" / "uniform.exr"], tmp_path / "out", workers=1,
+                               task=crash_on_studio))
     assert rows["studio.exr"].status == "error" and "worker process died" in rows["studio.exr"].error
     assert rows["uniform.exr"].status == "done" and rows["sun_copy.exr"].status == "done"
 
@@ -365,7 +354,7 @@ def test_usage_errors_are_raised_before_anything_runs(tmp_path):
 # --------------------------------------------------------------------------- interruption
 
 
-def test_simulated_ctrl_c_cancels_cleans_up_and_a_rerun_completes(tmp_path, monkeypatch):
+def test_simulated_ctrl_c_cancels_cleans_up_and_a_rerun_completes(tmp_path):
     make_library(tmp_path / "lib")
     calls = []
 
@@ -377,12 +366,11 @@ def test_simulated_ctrl_c_cancels_cleans_up_and_a_rerun_completes(tmp_path, monk
             work.mkdir(parents=True)
             (work / "check.json").write_text("{")
             raise KeyboardInterrupt
-        return batch.process_map(task)
+        return process_map(task)
 
-    monkeypatch.setattr(batch, "_TASK", interrupt_on_third)
     out = tmp_path / "out"
     with pytest.raises(BatchInterrupted) as info:
-        run_batch([tmp_path / "lib"], out, workers=0)
+        run_batch([tmp_path / "lib"], out, workers=0, task=interrupt_on_third)
     partial = info.value.result
     assert partial.interrupted and partial.exit_code() == 130
     assert len(partial.maps) == 2 and all(m.status == "done" for m in partial.maps)
@@ -391,7 +379,6 @@ def test_simulated_ctrl_c_cancels_cleans_up_and_a_rerun_completes(tmp_path, monk
     assert len(folders) == 2
     for f in folders:
         assert_complete(f)
-    monkeypatch.setattr(batch, "_TASK", batch.process_map)
     rerun = run_batch([tmp_path / "lib"], out, workers=0)
     assert sorted(m.status for m in rerun.maps) == ["done"] * 5 + ["skipped"] * 2
 
@@ -497,10 +484,10 @@ def test_verify_figures_match_the_closed_form_variance_of_a_constant_sky(tmp_pat
     m = result.maps[0]
     folder = out / m.folder
     metrics = json.loads((folder / "verify" / "metrics.json").read_text())
-    spp = batch.VERIFY_SETTINGS["spp"]
-    assert metrics["seed"] == batch.map_seed(m.sha256) and metrics["spp"] == spp
+    spp = VERIFY_SETTINGS["spp"]
+    assert metrics["seed"] == map_seed(m.sha256) and metrics["spp"] == spp
     expected = math.sqrt(5.0 / 3.0 / spp)
-    w, h = batch.VERIFY_SETTINGS["normals"]
+    w, h = VERIFY_SETTINGS["normals"]
     n_eff = 8.0 / math.pi ** 2 * w * h
     tolerance = 4.0 * 0.5 * math.sqrt(2.0 / n_eff)
     assert m.figures["verify_rmse_table"] == pytest.approx(expected, rel=tolerance)
@@ -510,3 +497,23 @@ def test_verify_figures_match_the_closed_form_variance_of_a_constant_sky(tmp_pat
     assert run_batch([lib], out, workers=0, verify=True).maps[0].status == "skipped"
     plain = run_batch([lib], out, workers=0)
     assert plain.maps[0].status == "done" and not (out / plain.maps[0].folder / "verify").exists()
+
+
+def test_verify_reports_the_exact_reference_bound_in_the_summary_and_its_time_in_the_manifest(tmp_path):
+    """The reference's relative error bound (seed-independent, so byte-stable) is a summary field;
+    its seconds, a timing, stay out of the summaries and reach the command through the row."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "sky.exr", make_sky("rooftop", width=WIDTH))
+    out = tmp_path / "out"
+    m = run_batch([lib], out, workers=0, verify=True).maps[0]
+    metrics = json.loads((out / m.folder / "verify" / "metrics.json").read_text())
+    bound = metrics["reference"]["relative_error_bound"]
+    assert 0.0 <= bound < 1e-9 and m.figures["verify_reference_bound"] == bound
+    assert metrics["reference"]["resolution"] == [m.figures["table_width"], m.figures["table_height"]]
+    assert m.figures["verify_reference_seconds"] == metrics["reference"]["seconds"] > 0.0
+    row = json.loads((out / "summary.json").read_text())["maps"][0]
+    assert row["verify_reference_bound"] == bound and "verify_reference_seconds" not in row
+    skipped = run_batch([lib], out, workers=0, verify=True).maps[0]
+    assert skipped.status == "skipped"
+    assert skipped.figures["verify_reference_seconds"] == m.figures["verify_reference_seconds"]

@@ -471,7 +471,7 @@ def test_index_page_refuses_absolute_links_and_nameless_rows(tmp_path):
 
 def test_index_page_of_batch_rows_as_they_are(tmp_path):
     """Rows shaped like envsample.batch summary rows (ROW_FIELDS) render without extra keys."""
-    from envsample.pipeline.batch import ROW_FIELDS
+    from envsample.pipeline.outcomes import ROW_FIELDS
 
     row = {k: None for k in ROW_FIELDS}
     row.update(source="lib/sky.exr", status="skipped", verdict="pass", width=64, height=32, format="exr",
