@@ -53,24 +53,7 @@ def atomic_write(path, write, *, fsync: bool = True) -> Path:
     The folder must exist (FileNotFoundError names it otherwise).  On any failure the
     temporary file is removed and an existing file at ``path`` is left untouched.
     """
-    path = Path(path)
-    if not path.parent.exists():
-        raise FileNotFoundError(f"{path.parent}: output folder does not exist; create it first")
-    mode = file_mode(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name[:80]}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            write(f)
-            f.flush()
-            if fsync:
-                os.fsync(f.fileno())
-        os.chmod(tmp, mode)
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-    return path
+    return atomic_write_group([(path, write)], fsync=fsync)[0]
 
 
 def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:

@@ -32,20 +32,9 @@ attribute, Radiance ``PRIMARIES=`` header line); ``None`` means unspecified.
 
 References
 ----------
-- Kainz, F., Bogart, R., Stanczyk, P. and Hillman, P. *Technical Introduction to
-  OpenEXR*. Industrial Light & Magic / Academy Software Foundation (OpenEXR
-  documentation): channel naming ``layer.R``, multi-part files, the
-  ``chromaticities`` and ``envmap`` attributes, compression methods (from memory).
-- IEEE 754-2008, *Standard for Floating-Point Arithmetic*: binary16 ("half")
-  has an 11-bit significand (relative rounding error at most 2**-11 for normal
-  numbers) and a largest finite value of 65504.
-- Ward, G. (1991). Real Pixels. In J. Arvo (ed.), *Graphics Gems II*,
-  pp. 80-83. Academic Press: the shared-exponent RGBE encoding.
-- Ward Larson, G. and Shakespeare, R. (1998). *Rendering with Radiance*. Morgan
-  Kaufmann: the Radiance picture header (``#?RADIANCE``, ``FORMAT=``,
-  ``EXPOSURE=``, ``PRIMARIES=``, the ``-Y H +X W`` resolution line) and its
-  run-length encoded scanlines (from memory).
-- IEC 61966-2-1:1999, sRGB: the encoding that 8-bit images usually carry.
+The formats' references are in the codec modules: :mod:`envsample.io.exr` (OpenEXR,
+IEEE 754 binary16), :mod:`envsample.io.radiance` (Ward 1991; Ward Larson &
+Shakespeare 1998) and :mod:`envsample.io.ldr` (IEC 61966-2-1, sRGB).
 """
 
 from __future__ import annotations

@@ -199,34 +199,68 @@ static void alias_row(const float *wt, Py_ssize_t n, double acc, float *prob, ui
     for (Py_ssize_t t = j; t < nh; t++) { Py_ssize_t k = list[n - 1 - t]; prob[k] = 1.0f; alias[k] = (uint16_t)k; }
 }
 
+/* ------------------------------------------------------------------ rows across threads
+ * parallel_rows calls fn(ctx, r0, r1) on contiguous ranges of rows [0, h), one per thread (at
+ * most MAX_THREADS; a thread that cannot be started runs its range here).  fn returns nonzero
+ * when it ran out of memory.  Rows are independent, so any thread count gives the same bits. */
+typedef int (*rows_fn)(void *ctx, Py_ssize_t r0, Py_ssize_t r1);
+typedef struct { rows_fn fn; void *ctx; Py_ssize_t r0, r1; int failed; } span_job;
+enum { MAX_THREADS = 16 };
+
+static void *span_worker(void *arg) {
+    span_job *j = (span_job *)arg;
+    j->failed = j->fn(j->ctx, j->r0, j->r1);
+    return NULL;
+}
+
+/* returns nonzero if any range failed; call without the GIL */
+static int parallel_rows(rows_fn fn, void *ctx, Py_ssize_t h, int threads) {
+    span_job jobs[MAX_THREADS];
+    pthread_t tid[MAX_THREADS];
+    int started[MAX_THREADS] = {0}, failed = 0;
+    if (threads < 1) threads = 1;
+    if (threads > MAX_THREADS) threads = MAX_THREADS;
+    if (threads > h) threads = (int)h;
+    for (int t = 0; t < threads; t++) {
+        jobs[t] = (span_job){fn, ctx, h * t / threads, h * (t + 1) / threads, 0};
+        if (t > 0) started[t] = pthread_create(&tid[t], NULL, span_worker, &jobs[t]) == 0;
+    }
+    span_worker(&jobs[0]);
+    for (int t = 1; t < threads; t++) {
+        if (started[t]) pthread_join(tid[t], NULL);
+        else span_worker(&jobs[t]);
+    }
+    for (int t = 0; t < threads; t++) failed |= jobs[t].failed;
+    return failed;
+}
+
 typedef struct {
     const float *wt;
     const double *scale;
     float *cdf, *prob;
     uint16_t *alias;
     double *totals;
-    Py_ssize_t r0, r1, n;
-    int failed;
-} rows_job;
+    Py_ssize_t n;
+} rows_ctx;
 
-static void *rows_worker(void *arg) {
-    rows_job *jb = (rows_job *)arg;
-    const Py_ssize_t n = jb->n;
+static int rows_span(void *arg, Py_ssize_t r0, Py_ssize_t r1) {
+    const rows_ctx *c = (const rows_ctx *)arg;
+    const Py_ssize_t n = c->n;
     int32_t *list = NULL;
-    if (jb->prob != NULL) {
+    if (c->prob != NULL) {
         list = (int32_t *)malloc((size_t)n * sizeof(int32_t));
-        if (list == NULL) { jb->failed = 1; return NULL; }
+        if (list == NULL) return 1;
     }
-    for (Py_ssize_t r = jb->r0; r < jb->r1; r++) {
-        const float *src = jb->wt + r * n;
+    for (Py_ssize_t r = r0; r < r1; r++) {
+        const float *src = c->wt + r * n;
         double acc = 0.0;
         for (Py_ssize_t k = 0; k < n; k++) acc += (double)src[k];
-        jb->totals[r] = acc * jb->scale[r];
-        if (jb->cdf != NULL) cdf_row(src, n, acc, jb->cdf + r * (n + 1));
-        if (jb->prob != NULL) alias_row(src, n, acc, jb->prob + r * n, jb->alias + r * n, list);
+        c->totals[r] = acc * c->scale[r];
+        if (c->cdf != NULL) cdf_row(src, n, acc, c->cdf + r * (n + 1));
+        if (c->prob != NULL) alias_row(src, n, acc, c->prob + r * n, c->alias + r * n, list);
     }
     free(list);
-    return NULL;
+    return 0;
 }
 
 /* build_rows(weights f32[h*w], row_scale f64[h], h, w, cdf f32[h*(w+1)] or b"", prob f32[h*w] or b"",
@@ -250,28 +284,11 @@ static PyObject *build_rows(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "build_rows: buffer sizes do not match the table");
         return NULL;
     }
-    enum { MAX_THREADS = 16 };
-    if (threads < 1) threads = 1;
-    if (threads > MAX_THREADS) threads = MAX_THREADS;
-    if (threads > h) threads = (int)h;
-    rows_job jobs[MAX_THREADS];
-    pthread_t tid[MAX_THREADS];
-    int started[MAX_THREADS] = {0};
-    int failed = 0;
+    rows_ctx ctx = {(const float *)wb.buf, (const double *)sb.buf, want_cdf ? (float *)cb.buf : NULL,
+                    want_alias ? (float *)pb.buf : NULL, want_alias ? (uint16_t *)ab.buf : NULL, (double *)tb.buf, w};
+    int failed;
     Py_BEGIN_ALLOW_THREADS
-    for (int t = 0; t < threads; t++) {
-        jobs[t] = (rows_job){(const float *)wb.buf, (const double *)sb.buf, want_cdf ? (float *)cb.buf : NULL,
-                             want_alias ? (float *)pb.buf : NULL, want_alias ? (uint16_t *)ab.buf : NULL,
-                             (double *)tb.buf, h * t / threads, h * (t + 1) / threads, w, 0};
-        /* thread 0 is this one; the others are started (or, if that fails, run here) */
-        if (t > 0) started[t] = pthread_create(&tid[t], NULL, rows_worker, &jobs[t]) == 0;
-    }
-    rows_worker(&jobs[0]);
-    for (int t = 1; t < threads; t++) {
-        if (started[t]) pthread_join(tid[t], NULL);
-        else rows_worker(&jobs[t]);
-    }
-    for (int t = 0; t < threads; t++) failed |= jobs[t].failed;
+    failed = parallel_rows(rows_span, &ctx, h, threads);
     Py_END_ALLOW_THREADS
     for (int k = 0; k < 6; k++) PyBuffer_Release(all[k]);
     if (failed) return PyErr_NoMemory();
@@ -285,39 +302,36 @@ static PyObject *build_rows(PyObject *self, PyObject *args) {
 typedef struct {
     const float *rgb;
     float *lum;
-    double *sums;
-    Py_ssize_t r0, r1, w;
+    double *sums, *lowest; /* lowest: per row */
+    Py_ssize_t *bad;       /* per row */
+    Py_ssize_t w;
     int mode;
     float wr, wg, wb;
-    double lowest;
-    Py_ssize_t bad;
-} lum_job;
+} lum_ctx;
 
-static void *lum_worker(void *arg) {
-    lum_job *jb = (lum_job *)arg;
-    double lowest = INFINITY;
-    Py_ssize_t bad = 0;
-    for (Py_ssize_t r = jb->r0; r < jb->r1; r++) {
-        const float *px = jb->rgb + r * jb->w * 3;
-        float *out = jb->lum + r * jb->w;
+static int lum_span(void *arg, Py_ssize_t r0, Py_ssize_t r1) {
+    const lum_ctx *c = (const lum_ctx *)arg;
+    for (Py_ssize_t r = r0; r < r1; r++) {
+        const float *px = c->rgb + r * c->w * 3;
+        float *out = c->lum + r * c->w;
         double sr = 0.0, sg = 0.0, sb = 0.0;
         float lo = INFINITY;
-        for (Py_ssize_t j = 0; j < jb->w; j++) {
+        Py_ssize_t bad = 0;
+        for (Py_ssize_t j = 0; j < c->w; j++) {
             const float R = px[3 * j], G = px[3 * j + 1], Bl = px[3 * j + 2];
             sr += R; sg += G; sb += Bl;
-            float y = jb->mode == 0 ? R * jb->wr + G * jb->wg + Bl * jb->wb
-                    : jb->mode == 1 ? (R > G ? (R > Bl ? R : Bl) : (G > Bl ? G : Bl)) : (R + G + Bl) / 3.0f;
+            float y = c->mode == 0 ? R * c->wr + G * c->wg + Bl * c->wb
+                    : c->mode == 1 ? (R > G ? (R > Bl ? R : Bl) : (G > Bl ? G : Bl)) : (R + G + Bl) / 3.0f;
             out[j] = y > 0.0f ? y : 0.0f;
             lo = R < lo ? R : lo; lo = G < lo ? G : lo; lo = Bl < lo ? Bl : lo;
         }
         if (!isfinite(sr) || !isfinite(sg) || !isfinite(sb))
-            for (Py_ssize_t k = 0; k < 3 * jb->w; k++) bad += !isfinite(px[k]);
-        jb->sums[3 * r] = sr; jb->sums[3 * r + 1] = sg; jb->sums[3 * r + 2] = sb;
-        if ((double)lo < lowest) lowest = (double)lo;
+            for (Py_ssize_t k = 0; k < 3 * c->w; k++) bad += !isfinite(px[k]);
+        c->sums[3 * r] = sr; c->sums[3 * r + 1] = sg; c->sums[3 * r + 2] = sb;
+        c->lowest[r] = (double)lo;
+        c->bad[r] = bad;
     }
-    jb->lowest = lowest;
-    jb->bad = bad;
-    return NULL;
+    return 0;
 }
 
 /* luminance_rows(rgb f32[H*W*3], H, W, mode, (wr, wg, wb), lum f32[H*W] (out), sums f64[H*3] (out), threads)
@@ -336,31 +350,26 @@ static PyObject *luminance_rows(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "luminance_rows: buffer sizes do not match the map");
         return NULL;
     }
-    enum { MAX_THREADS = 16 };
-    if (threads < 1) threads = 1;
-    if (threads > MAX_THREADS) threads = MAX_THREADS;
-    if (threads > H) threads = (int)H;
-    lum_job jobs[MAX_THREADS];
-    pthread_t tid[MAX_THREADS];
-    int started[MAX_THREADS] = {0};
+    double *row_low = (double *)PyMem_RawMalloc((size_t)H * sizeof(double));
+    Py_ssize_t *row_bad = (Py_ssize_t *)PyMem_RawMalloc((size_t)H * sizeof(Py_ssize_t));
+    if (row_low == NULL || row_bad == NULL) {
+        PyMem_RawFree(row_low); PyMem_RawFree(row_bad);
+        for (int k = 0; k < 3; k++) PyBuffer_Release(all[k]);
+        return PyErr_NoMemory();
+    }
+    lum_ctx ctx = {(const float *)rb.buf, (float *)lb.buf, (double *)sb.buf, row_low, row_bad, W, mode,
+                   (float)wr, (float)wg, (float)wb};
     double lowest = INFINITY;
     Py_ssize_t bad = 0;
     Py_BEGIN_ALLOW_THREADS
-    for (int t = 0; t < threads; t++) {
-        jobs[t] = (lum_job){(const float *)rb.buf, (float *)lb.buf, (double *)sb.buf, H * t / threads,
-                            H * (t + 1) / threads, W, mode, (float)wr, (float)wg, (float)wb, INFINITY, 0};
-        if (t > 0) started[t] = pthread_create(&tid[t], NULL, lum_worker, &jobs[t]) == 0;
-    }
-    lum_worker(&jobs[0]);
-    for (int t = 1; t < threads; t++) {
-        if (started[t]) pthread_join(tid[t], NULL);
-        else lum_worker(&jobs[t]);
-    }
-    for (int t = 0; t < threads; t++) {
-        if (jobs[t].lowest < lowest) lowest = jobs[t].lowest;
-        bad += jobs[t].bad;
+    parallel_rows(lum_span, &ctx, H, threads);
+    for (Py_ssize_t r = 0; r < H; r++) {
+        if (row_low[r] < lowest) lowest = row_low[r];
+        bad += row_bad[r];
     }
     Py_END_ALLOW_THREADS
+    PyMem_RawFree(row_low);
+    PyMem_RawFree(row_bad);
     for (int k = 0; k < 3; k++) PyBuffer_Release(all[k]);
     return Py_BuildValue("(dn)", lowest, bad);
 }
@@ -377,8 +386,7 @@ typedef struct {
     double atol, rtol;
     double *sums;
     int32_t *status;
-    Py_ssize_t r0, r1, w;
-    int failed;
+    Py_ssize_t w;
 } check_job;
 
 static inline int differs(double got, double want, double atol, double rtol) {
@@ -431,16 +439,16 @@ static int check_one_row(const check_job *jb, Py_ssize_t r, double *enc) {
     return 0;
 }
 
-static void *check_worker(void *arg) {
-    check_job *jb = (check_job *)arg;
+static int check_span(void *arg, Py_ssize_t r0, Py_ssize_t r1) {
+    const check_job *jb = (const check_job *)arg;
     double *enc = NULL;
     if (jb->prob != NULL) {
         enc = (double *)malloc((size_t)jb->w * sizeof(double));
-        if (enc == NULL) { jb->failed = 1; return NULL; }
+        if (enc == NULL) return 1;
     }
-    for (Py_ssize_t r = jb->r0; r < jb->r1; r++) jb->status[r] = check_one_row(jb, r, enc);
+    for (Py_ssize_t r = r0; r < r1; r++) jb->status[r] = check_one_row(jb, r, enc);
     free(enc);
-    return NULL;
+    return 0;
 }
 
 /* check_rows(pdf f32[h*w], h, w, cdf f32[h*(w+1)] or b"", prob f32[h*w] or b"", alias u16[h*w] or b"",
@@ -466,28 +474,12 @@ static PyObject *check_rows(PyObject *self, PyObject *args) {
         PyErr_SetString(PyExc_ValueError, "check_rows: buffer sizes do not match the table");
         return NULL;
     }
-    enum { MAX_THREADS = 16 };
-    if (threads < 1) threads = 1;
-    if (threads > MAX_THREADS) threads = MAX_THREADS;
-    if (threads > h) threads = (int)h;
-    check_job jobs[MAX_THREADS];
-    pthread_t tid[MAX_THREADS];
-    int started[MAX_THREADS] = {0};
-    int failed = 0;
+    check_job ctx = {(const float *)fb.buf, want_cdf ? (const float *)cb.buf : NULL,
+                     want_alias ? (const float *)pb.buf : NULL, want_alias ? (const uint16_t *)ab.buf : NULL,
+                     atol, rtol, (double *)sb.buf, (int32_t *)tb.buf, w};
+    int failed;
     Py_BEGIN_ALLOW_THREADS
-    for (int t = 0; t < threads; t++) {
-        jobs[t] = (check_job){(const float *)fb.buf, want_cdf ? (const float *)cb.buf : NULL,
-                              want_alias ? (const float *)pb.buf : NULL,
-                              want_alias ? (const uint16_t *)ab.buf : NULL, atol, rtol, (double *)sb.buf,
-                              (int32_t *)tb.buf, h * t / threads, h * (t + 1) / threads, w, 0};
-        if (t > 0) started[t] = pthread_create(&tid[t], NULL, check_worker, &jobs[t]) == 0;
-    }
-    check_worker(&jobs[0]);
-    for (int t = 1; t < threads; t++) {
-        if (started[t]) pthread_join(tid[t], NULL);
-        else check_worker(&jobs[t]);
-    }
-    for (int t = 0; t < threads; t++) failed |= jobs[t].failed;
+    failed = parallel_rows(check_span, &ctx, h, threads);
     Py_END_ALLOW_THREADS
     for (int k = 0; k < 6; k++) PyBuffer_Release(all[k]);
     if (failed) return PyErr_NoMemory();
@@ -694,17 +686,7 @@ static PyObject *row_cdfs(PyObject *self, PyObject *args) {
         double acc = 0.0;
         for (Py_ssize_t j = 0; j < w; j++) acc += (double)src[j];
         tot[r] = acc * scale[r];
-        dst[0] = 0.0f;
-        if (acc > 0.0) {
-            double inv = 1.0 / acc, run = 0.0;
-            for (Py_ssize_t j = 0; j < w; j++) {
-                run += (double)src[j];
-                dst[j + 1] = (float)(run * inv);
-            }
-        } else {
-            for (Py_ssize_t j = 0; j < w; j++) dst[j + 1] = (float)((double)(j + 1) / (double)w);
-        }
-        dst[w] = 1.0f;
+        cdf_row(src, w, acc, dst);
     }
     Py_END_ALLOW_THREADS
     PyBuffer_Release(&wb); PyBuffer_Release(&sb); PyBuffer_Release(&ob); PyBuffer_Release(&tb);
