@@ -31,6 +31,7 @@ _EXPORTS = {
     "validate_map": "io.maps",
     "supported_extensions": "io.maps",
     "MapWriteError": "errors",
+    "SunSplitError": "errors",
     # sphere
     "uv_to_direction": "core.sphere",
     "direction_to_uv": "core.sphere",
@@ -59,6 +60,16 @@ _EXPORTS = {
     "rooftop_scene": "synth.skies",
     "studio_scene": "synth.skies",
     "sun_direction": "synth.skies",
+    # the sun as its own light
+    "SunLight": "sampling.sun",
+    "find_sun": "lights.finder",
+    "SunEstimate": "lights.finder",
+    "split_sun": "lights.split",
+    "SunSplit": "lights.split",
+    "reference_split_irradiance": "reference.sun",
+    "clear_sky": "core.clearsky",
+    "split_map_file": "pipeline.split",
+    "load_sun": "pipeline.split",
     # pictures
     "tonemap": "reports.pictures",
     "thumbnail": "reports.pictures",

@@ -14,6 +14,7 @@ __all__ = [
     "TableFormatError",
     "MapWriteError",
     "ResourceLimitError",
+    "SunSplitError",
     "EnvsampleWarning",
 ]
 
@@ -48,3 +49,7 @@ class ResourceLimitError(EnvsampleError, ValueError):
 
 class EnvsampleWarning(UserWarning):
     """Suspicious but legal input (an all-black map, clamped negative pixels, a map that looks upside down)."""
+
+
+class SunSplitError(EnvsampleError, ValueError):
+    """A map's sun cannot be split off: none was found, or restoring it lacks what it needs."""

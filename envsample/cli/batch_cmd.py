@@ -21,6 +21,8 @@ from envsample.qa.profile import load_profile
 @click.option("--workers", type=click.IntRange(0, None), default=None,
               help="Worker processes (default: the cores available; 0 runs in this process).")
 @click.option("--verify", is_flag=True, help="Also run a small validation render per map.")
+@click.option("--split-sun", is_flag=True, help="Also split the sun off every map whose sun holds the sampling "
+              "check's analytic_light_share of the light (envsample split, into maps/NAME/split/).")
 @click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
@@ -28,7 +30,7 @@ from envsample.qa.profile import load_profile
               help="QA thresholds (TOML); default: the built-in profile.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
 @table_options
-def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
+def batch(sources, outdir, workers, verify, split_sun, force, scheduler, profile_path, strict, size, primaries, mapping,
           uniform_mix, up, rotation_deg):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
@@ -54,7 +56,7 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
 
     try:
         with bar:
-            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force,
+            result = run_batch(list(sources), outdir, workers=workers, verify=verify, split_sun=split_sun, force=force,
                                scheduler=scheduler, options=options, profile=profile, progress=progress)
     except BatchInterrupted as e:
         c = e.result.counts

@@ -72,6 +72,8 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
                                                                    else "  (mean off: misses rare bright light)")
         click.echo(f"{name:<20} {e['relative_rmse']:>9.4g}  {bias:>17}  {e['firefly_index']:>8.3g}  "
                    f"{e['time_per_sample_s'] * 1e9:>9.0f}  {e['efficiency']:>10.3g}{mark}")
+    if m.get("split"):
+        _print_split(m["split"])
     click.echo("")
     print_rows([
         ("recommended", f"{rec['estimator']} (highest efficiency among estimators whose bias is within 4 SE; "
@@ -81,3 +83,20 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     ])
     click.echo(f"({m['caution']})")
     return 0
+
+
+def _print_split(doc: dict) -> None:
+    """The split against its original map, side by side at equal samples (split.json)."""
+    click.echo("")
+    if not doc.get("compared"):
+        click.echo(f"split      {doc.get('reason')}")
+        return
+    verdict = "agrees" if doc["consistent"] else "DISAGREES"
+    click.echo(f"split      sky + sun {verdict} with {doc['original']} within the Monte Carlo error "
+               f"(references differ by {doc['reference_difference']:+.1e} of the mean); "
+               f"{doc['normals'][0]}x{doc['normals'][1]} normals x {doc['spp']} spp")
+    click.echo(f"{'scene':<8} {'estimator':<24} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}")
+    for e in doc["estimators"].values():
+        bias = f"{e['mean_bias']:+.3f} +- {e['mean_bias_se']:.3f}"
+        click.echo(f"{e['scene']:<8} {e['estimator']:<24} {e['relative_rmse']:>9.4g}  {bias:>17}  "
+                   f"{e['firefly_index']:>8.3g}")

@@ -202,6 +202,16 @@ def check_table_doc(doc, path: Path) -> None:
         top.fail("source", "is null although radiance is 'source'")
     if top.get("recommendation", optional=True) is not None:
         top.sub("recommendation")
+    lights = top.get("lights", optional=True)
+    if lights is not None:
+        if not isinstance(lights, list):
+            top.fail("lights", f"must be a list of light entries, got {_short(lights)}")
+        for k, light in enumerate(lights):
+            entry = _Fields(light, f"lights[{k}]", path)
+            entry.str("kind")
+            entry.str("file")
+            entry.str("schema")
+            entry.int("schema_version", 1, 1 << 20)
     summary = top.sub("summary")
     summary.int("nonzero_cells", 0, w * h)
     cell = summary.sub("largest_cell")

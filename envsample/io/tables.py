@@ -300,6 +300,9 @@ def table_doc(table, paths: dict, arrays: dict, hashes: dict, *, raw: bool) -> d
     }
     if "recommendation" in meta:
         doc["recommendation"] = meta["recommendation"]
+    if meta.get("lights"):
+        # Analytic lights that go with this table (a split map's sun): a renderer loads both.
+        doc["lights"] = meta["lights"]
     return doc
 
 

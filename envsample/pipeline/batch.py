@@ -345,6 +345,7 @@ def run_batch(
     *,
     workers: int | None = None,
     verify: bool = False,
+    split_sun: bool = False,
     force: bool = False,
     scheduler=None,
     options: Mapping | None = None,
@@ -369,6 +370,11 @@ def run_batch(
     verify : bool
         Also run the validation render (:func:`envsample.verify.verify_map`) at
         :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.
+    split_sun : bool
+        Also split the sun off every map whose sun holds at least the profile's
+        ``[sampling] analytic_light_share`` of the light (the share from which the check
+        advises it): ``maps/NAME/split/`` holds ``map.sky.exr``, ``map.sun.json`` and the
+        sky's table (:func:`envsample.pipeline.split.write_split`); the row's ``split_note`` says why not.
     force : bool
         Redo maps whose outputs are up to date.
     scheduler : str or dask.distributed.Client, optional
@@ -428,6 +434,8 @@ def run_batch(
         "thumb_width": THUMB_WIDTH,
         "profile": prof.to_dict()["settings"],
     }
+    if split_sun:  # only when asked, so the options key of batches without it stays the same
+        key_doc["split_sun"] = True
     with _locked(out):
         return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
                            runner=make_runner(scheduler, n_workers), progress=progress, task=task)
@@ -460,7 +468,8 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
         tasks = [(i, {"source": os.fspath(paths[i].resolve()), "display": os.fspath(paths[i]),
                       "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(out),
                       "staging": os.fspath(staging), "options": key_doc["build"],
-                      "verify": key_doc["verify"] is not None, "profile": profile, "key": key,
+                      "verify": key_doc["verify"] is not None, "split_sun": bool(key_doc.get("split_sun")),
+                      "profile": profile, "key": key,
                       "key_doc": key_doc, "version": version})
                  for i in plan.todo]
         jobs = runner(tasks, task)

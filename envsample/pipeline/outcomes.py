@@ -153,6 +153,7 @@ ROW_FIELDS = (
     "verify_rmse_table",
     "verify_rmse_mis",
     "verify_reference_bound",
+    "split_note",
 )
 
 

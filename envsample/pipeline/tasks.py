@@ -23,7 +23,7 @@ import numpy as np
 
 from envsample.core.schema import Schema
 from envsample.core.text import caution, one_line
-from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
+from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, SunSplitError
 from envsample.pipeline.outcomes import ROW_FIELDS
 
 #: Name and version of each map folder's ``manifest.json``.
@@ -136,12 +136,37 @@ def _build_outputs(task: Mapping, work: Path) -> dict:
     row.update(luminance_integral=float(table.integrals["luminance"]),
                table_width=table.table_width, table_height=table.table_height,
                table_note="; ".join(notes) or None)
+    if task.get("split_sun"):
+        row.update(_split(clean, work / "split", task))
     if task["verify"]:
         try:
             row.update(_verify(table, work / "verify", seed=map_seed(task["sha256"])))
         except Exception as e:
             raise EnvsampleError(f"verify failed ({error_line(e)})") from e
     return row
+
+
+def _split(image, folder: Path, task: Mapping) -> dict:
+    """``split/``: the sky, sun and sky table of a map whose sun holds the sampling check's share; else a note.
+
+    The threshold is the profile's ``[sampling] analytic_light_share`` (the share from which
+    the check advises an analytic sun); the sun is the shared finder's.
+    """
+    from envsample.lights.split import split_sun
+    from envsample.pipeline.split import write_split
+
+    share = float(task["profile"].section("sampling")["analytic_light_share"])
+    o = task["options"]
+    try:
+        sp = split_sun(image.rgb, primaries=o["primaries"], up=o["up"], rotation_deg=o["rotation_deg"])
+    except SunSplitError:
+        return {"split_note": "no sun-like emitter: not split"}
+    if sp.found.share < share:
+        return {"split_note": f"sun holds {sp.found.share:.1%} of the light, under {share:.0%}: not split"}
+    folder.mkdir()
+    write_split(sp, folder, "map", source={"map": task["display"], "sha256": task["sha256"]}, size=o["size"])
+    return {"split_note": f"split: sun {sp.found.share:.1%} of the light"
+                          + (", core clipped" if sp.found.clipped else "")}
 
 
 def _verify(table, folder: Path, *, seed: int) -> dict:

@@ -424,6 +424,8 @@ def load_table(prefix_or_path, *, source=None) -> EnvTable:
         metadata["valid_only_inside_mis"] = True
     if "recommendation" in doc:
         metadata["recommendation"] = doc["recommendation"]
+    if doc.get("lights"):
+        metadata["lights"] = doc["lights"]
     arrays = dict(stored.arrays)
     image = arrays.pop("radiance", None)
     loader = None

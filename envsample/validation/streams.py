@@ -17,7 +17,7 @@ from envsample.core.latlong import parse_size
 __all__ = ["STREAM_PURPOSES", "stream", "check_seed", "check_spp", "check_normals"]
 
 #: Purposes of the random streams (first word of the SeedSequence spawn key).
-STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6}
+STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6, "split": 7}
 
 
 def stream(seed: int, purpose: str, name: str, index: int = 0) -> np.random.SeedSequence:

@@ -517,3 +517,21 @@ def test_verify_reports_the_exact_reference_bound_in_the_summary_and_its_time_in
     skipped = run_batch([lib], out, workers=0, verify=True).maps[0]
     assert skipped.status == "skipped"
     assert skipped.figures["verify_reference_seconds"] == m.figures["verify_reference_seconds"]
+
+
+def test_split_sun_splits_only_maps_whose_sun_holds_the_sampling_checks_share(tmp_path):
+    """batch --split-sun: maps/NAME/split/ for a sun over half the light; a note for the others."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "noon.exr", make_sky("sun", width=256, elevation_deg=50.0), pixel_type="float")
+    write_map(lib / "grey.exr", make_sky("overcast", width=WIDTH))
+    result = run_batch([lib], tmp_path / "out", workers=0, split_sun=True)
+    rows = {Path(m.source).name: m.to_row() for m in result.maps}
+    assert rows["noon.exr"]["split_note"].startswith("split: sun")
+    assert rows["grey.exr"]["split_note"] == "no sun-like emitter: not split"
+    split = tmp_path / "out" / rows["noon.exr"]["folder"] / "split"
+    assert json.loads((split / "map.sky.json").read_text())["lights"][0]["file"] == "map.sun.json"
+    assert (split / "map.sky.exr").exists() and not (tmp_path / "out" / rows["grey.exr"]["folder"] / "split").exists()
+    # Without the option nothing is split.
+    again = run_batch([lib], tmp_path / "out2", workers=0)
+    assert all(m.to_row()["split_note"] is None for m in again.maps)
