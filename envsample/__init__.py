@@ -20,6 +20,7 @@ _EXPORTS = {
     "MapReadError": "errors",
     "MapValidationError": "errors",
     "TableFormatError": "errors",
+    "ResourceLimitError": "errors",
     "EnvsampleWarning": "errors",
     # constants
     "luminance_weights": "core.constants",

@@ -13,6 +13,7 @@ __all__ = [
     "MapValidationError",
     "TableFormatError",
     "MapWriteError",
+    "ResourceLimitError",
     "SunSplitError",
     "EnvsampleWarning",
 ]
@@ -39,6 +40,11 @@ class MapWriteError(EnvsampleError):
 
 class TableFormatError(EnvsampleError):
     """A sampling table on disk is corrupt, truncated, of another schema version or inconsistent."""
+
+
+class ResourceLimitError(EnvsampleError, ValueError):
+    """A request would need more memory (or cells) than a limit allows; the message names the estimate
+    and how to raise the limit on purpose (see :mod:`envsample.core.limits`)."""
 
 
 class EnvsampleWarning(UserWarning):

@@ -7,7 +7,7 @@ from pathlib import Path
 import click
 
 from envsample.cli.app import flags, main
-from envsample.cli.options import table_options
+from envsample.cli.options import max_memory_option, table_options
 from envsample.cli.output import print_rows, progress_bar, rgb_line, size_text, warnings_as_lines
 from envsample.core.text import caution
 from envsample.pipeline.workflow import build_from_file
@@ -24,12 +24,18 @@ from envsample.pipeline.workflow import build_from_file
               "valid only inside an MIS combination.")
 @click.option("--tune", is_flag=True, help="Run a short pilot and store the best one-sample MIS selection "
               "(heuristic, table fraction, measured variance ratio) in the table's metadata.")
-@click.option("--raw", is_flag=True, help="Also write PREFIX.bin: little-endian arrays at offsets listed in the JSON.")
+@click.option("--raw", is_flag=True, help="Also write PREFIX.bin: a self-describing binary (fixed header with sizes, "
+              "offsets and checksums, 64-byte aligned arrays) for loaders without numpy or a JSON parser.")
+@click.option("--cell-choice", type=click.Choice(["both", "inverse", "alias"]), default="both", show_default=True,
+              help="Cell-choice methods to store: both (14 bytes per cell), inverse only (8) or alias only (10).")
+@click.option("--embed-radiance", is_flag=True, help="Store a float32 copy of the map in the table (12 bytes per "
+              "pixel) instead of recording the source map's path and sha256.")
+@max_memory_option
 @click.option("--repair", is_flag=True, help="Replace NaN/Inf pixels with 0 (and say how many) instead of refusing.")
 @click.option("--allow-aspect", is_flag=True, help="Accept a map that is not 2:1.")
 @click.option("--layer", default=None, metavar="NAME", help="EXR layer to read when the file has several.")
-def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_deg, compensate, tune, raw, repair,
-          allow_aspect, layer):
+def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_deg, compensate, tune, raw, cell_choice,
+          embed_radiance, max_memory, repair, allow_aspect, layer):
     """Build the sampling table of MAP (.exr or .hdr).
 
     The map is read and checked (HDR, finite, 2:1, at least 8x4; negative
@@ -47,17 +53,21 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_
         result = build_from_file(
             map_path, prefix, raw=raw, repair=repair, allow_aspect=allow_aspect, layer=layer, progress=progress,
             size=size, primaries=primaries.lower(), mapping=mapping, uniform_mix=uniform_mix, up=up,
-            rotation_deg=rotation_deg, compensate=compensate, tune=tune,
+            rotation_deg=rotation_deg, compensate=compensate, tune=tune, cell_choice=cell_choice,
+            embed_radiance=embed_radiance, max_memory=max_memory, keep_map=False,
         )
         printed.extend(result.notes)
-    t, img = result.table, result.image
+    t, img = result.table, result.map_info
     opts = [t.mapping, f"primaries {t.primaries}", f"up {t.up}", f"rotation {t.rotation_deg:g} deg"]
+    if t.methods != ("inverse", "alias"):
+        opts.append(f"{t.methods[0]} cell choice only")
     if t.uniform_mix:
         opts.append(f"uniform mix {t.uniform_mix:g}")
     if t.compensated:
         opts.append("compensated (valid only inside MIS)")
     rows = [
-        ("map", f"{img.path}  {img.width}x{img.height} {img.format} {img.pixel_type}, sha256 {img.sha256[:12]}"),
+        ("map", f"{img['path']}  {img['width']}x{img['height']} {img['format']} {img['pixel_type']}, "
+                f"sha256 {img['sha256'][:12]}"),
         ("table", f"{t.table_width}x{t.table_height} cells, " + ", ".join(opts)),
         ("integral", rgb_line(t.integrals["rgb"], t.integrals["luminance"]) + "  (map units x sr)"),
         ("time", f"{result.seconds:.2f} s to build"),

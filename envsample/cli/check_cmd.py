@@ -9,7 +9,7 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import progress_bar
-from envsample.core.files import atomic_write_text, refuse_inputs_as_outputs
+from envsample.core.files import atomic_write_text, refuse_overwriting_inputs
 from envsample.qa.profile import load_profile
 from envsample.qa.report import format_report, report_to_json
 from envsample.qa.run import check_map
@@ -36,7 +36,9 @@ def check(maps, profile_path, json_path, html_path, strict, only):
     (with --strict also any warn), 2 unreadable input or usage error.
     Light levels are estimates for asset preparation, not certified lighting calculations.
     """
-    refuse_inputs_as_outputs([json_path, html_path], list(maps) + ([profile_path] if profile_path else []))
+    inputs = list(maps) + ([profile_path] if profile_path else [])
+    refuse_overwriting_inputs([json_path], inputs, option="--json")
+    refuse_overwriting_inputs([html_path], inputs, option="--html")
     if json_path is not None and html_path is not None and str(json_path) != "-" and str(json_path) == str(html_path):
         raise click.UsageError(f"{json_path}: --json and --html name the same file; give each its own")
     profile = load_profile(profile_path)

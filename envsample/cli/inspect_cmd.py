@@ -60,7 +60,7 @@ def _print_map_facts(f: dict) -> None:
 def _print_table_facts(f: dict) -> None:
     o, integ, big = f["options"], f["integrals"], f["largest_cell"]
     conv = f["convention"]
-    opts = [f["mapping"], f"primaries {f['primaries']}", f"up {conv['up_axis']}",
+    opts = [f["mapping"], f"primaries {f['primaries']}", f"up {conv['up']}",
             f"rotation {float(conv['rotation_deg']):g} deg"]
     if o.get("uniform_mix"):
         opts.append(f"uniform mix {o['uniform_mix']:g}")
@@ -83,6 +83,10 @@ def _print_table_facts(f: dict) -> None:
         ("cells", f"{f['nonzero_cells']} of {f['cells']} have nonzero probability "
                   f"({100.0 * f['nonzero_cells'] / f['cells']:.1f}%)"),
         ("largest", f"p {num(big['probability'])} ({num(big['pdf_per_sr'])} /sr) at {direction_text(big)}"),
+        ("radiance", {"source": "from the source map (re-read and verified on demand)",
+                      "embedded": "embedded copy", "none": "none (built from an in-memory map)"}[f["radiance"]]),
+        ("verified", "every checksum and the distribution checked" if f["verified"]
+         else "metadata and file sizes only (--verify reads and checks the arrays)"),
     ]
     if f.get("recommendation"):
         rows.append(("advice", json.dumps(f["recommendation"])))
@@ -102,16 +106,21 @@ def _print_table_facts(f: dict) -> None:
 @click.option("--up", type=click.Choice(["y", "z"]), default="y", show_default=True,
               help="Up axis for a map's direction vectors (azimuth and elevation do not depend on it).")
 @click.option("--layer", default=None, metavar="NAME", help="EXR layer to read when the file has several.")
-def inspect_command(target, as_json, primaries, up, layer):
+@click.option("--verify/--no-verify", "verify", default=None,
+              help="For a table: read every array and check its checksum and the distribution. Default: only "
+                   "when MAP_OR_TABLE is the table's .npz or .bin file itself.")
+def inspect_command(target, as_json, primaries, up, layer, verify):
     """Show the facts of a map or of a saved table.
 
     MAP_OR_TABLE is a map (.exr, .hdr, or an LDR image, which build refuses),
-    or a table given by its prefix or its .json/.npz/.bin file. A table is
-    loaded and verified (checksums, shapes, CDFs) on the way.
+    or a table given by its prefix or its .json/.npz/.bin file. For a table,
+    the JSON is checked and the files' sizes compared with it; the arrays are
+    read and verified (checksums, distribution) with --verify, or when the
+    .npz or .bin file itself is given.
     """
 
     if _is_table(target):
-        facts = table_facts(target)
+        facts = table_facts(target, verify=verify)
         show = _print_table_facts
     else:
 

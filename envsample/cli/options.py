@@ -86,3 +86,25 @@ def table_options(command):
     for option in reversed(options):
         command = option(command)
     return command
+
+
+class ByteSizeType(click.ParamType):
+    """``16G``, ``500M``, a byte count, or ``none`` -> the text (checked by :func:`envsample.core.limits.parse_bytes`)."""
+
+    name = "SIZE"
+
+    def convert(self, value, param, ctx):
+        from envsample.core.limits import parse_bytes
+
+        try:
+            parse_bytes(value, name="--max-memory")
+        except ValueError as e:
+            self.fail(str(e), param, ctx)
+        return value
+
+
+def max_memory_option(command):
+    """``--max-memory SIZE``: raise (or lower) the memory limit of one run on purpose (envsample.core.limits)."""
+    return click.option("--max-memory", "max_memory", type=ByteSizeType(), default=None, metavar="SIZE",
+                        help="Memory limit of this run, e.g. 16G (default 8G or $ENVSAMPLE_MAX_MEMORY; "
+                             "'none' removes it). Requests estimated above it are refused before any work.")(command)

@@ -19,19 +19,28 @@ from envsample.errors import EnvsampleWarning
 
 @contextlib.contextmanager
 def warnings_as_lines(notes_seen: list[str]):
-    """Collect envsample warnings and print each once as ``warning: ...``, unless a printed note says it."""
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", EnvsampleWarning)
-        try:
+    """Collect warnings and print each distinct one once as ``warning: ...``, unless a printed note says it.
+
+    The warnings are printed after the recording context is closed: showing a
+    library's warning while recording would record it again (an endless loop).
+    """
+    caught: list = []
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", EnvsampleWarning)
             yield
-        finally:
-            for w in caught:
-                text = one_line(str(w.message))
-                if issubclass(w.category, EnvsampleWarning):
-                    if not any(n and n in text for n in notes_seen):
-                        click.echo(f"warning: {flags(text)}", err=True)
-                else:
-                    warnings.showwarning(w.message, w.category, w.filename, w.lineno)
+    finally:
+        seen = set()
+        for w in list(caught):
+            text = one_line(str(w.message))
+            if (w.category, text) in seen:
+                continue
+            seen.add((w.category, text))
+            if issubclass(w.category, EnvsampleWarning):
+                if not any(n and n in text for n in notes_seen):
+                    click.echo(f"warning: {flags(text)}", err=True)
+            else:
+                click.echo(f"warning: {w.category.__name__}: {text}", err=True)
 
 
 def progress_bar(total: int, desc: str):

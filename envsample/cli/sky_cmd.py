@@ -9,7 +9,7 @@ from pathlib import Path
 import click
 
 from envsample.cli.app import main
-from envsample.cli.options import DEGREES, SIZE, FiniteFloat
+from envsample.cli.options import DEGREES, SIZE, FiniteFloat, max_memory_option
 from envsample.cli.output import num, print_rows, rgb_line, size_text
 from envsample.core.constants import HALF_FLOAT_MAX
 from envsample.core.text import caution
@@ -83,7 +83,8 @@ def _sky_help() -> str:
 @click.option("--light", "lights", multiple=True, metavar="AZ0,AZ1,EL0,EL1,L",
               help="studio: a rectangular light from azimuth AZ0 to AZ1 and elevation EL0 to EL1 (degrees) "
                    "with radiance L; repeat for more lights.")
-def sky(kind, output, size, pixel_type, **given):
+@max_memory_option
+def sky(kind, output, size, pixel_type, max_memory, **given):
     """Write an analytic map of the given KIND.
 
     \b
@@ -108,6 +109,11 @@ def sky(kind, output, size, pixel_type, **given):
             )
         options[keyword] = [_parse_light(v) for v in value] if name == "lights" else value
     width, height = size
+    from envsample.core.limits import check_memory
+
+    # The map (12 B per pixel) and the float64 directions and temporaries the sky models use.
+    check_memory(64 * width * height, what=f"sky --size {width}x{height}", limit=max_memory,
+                 remedy="choose a smaller --size")
     rgb = make_sky(kind, width=width, height=height, **options)
     peak = float(rgb.max())
     if output.suffix.lower() == ".exr" and pixel_type == "half" and peak > HALF_FLOAT_MAX:

@@ -8,6 +8,7 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import print_rows, size_text
+from envsample.core.files import refuse_overwriting_inputs
 from envsample.io.tables import table_paths
 from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
 from envsample.sampling.table import load_table
@@ -22,8 +23,10 @@ from envsample.sampling.table import load_table
 @click.option("--seed", "-s", type=click.IntRange(0, None), default=0, show_default=True,
               help="Seed of numpy.random.default_rng that draws the uniforms.")
 @click.option("--method", type=click.Choice(["inverse", "alias", "both"]), default="both", show_default=True,
-              help="Cell choice to record.")
-def vectors(table_path, output, count, seed, method):
+              help="Cell choice to record (both = every method the table holds).")
+@click.option("--map", "map_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="MAP",
+              help="The table's source map, if it has moved (its sha256 must match the one recorded).")
+def vectors(table_path, output, count, seed, method, map_path):
     """Write golden test vectors of a saved TABLE (prefix or its .json).
 
     Each vector holds the two uniforms u that went in and, per method, the
@@ -33,7 +36,12 @@ def vectors(table_path, output, count, seed, method):
     """
 
     check_output_folder(output)
-    table = load_table(table_path)
+    inputs = list(table_paths(table_path).values()) + ([map_path] if map_path else [])
+    refuse_overwriting_inputs(output, inputs, option="-o")
+    table = load_table(table_path, source=map_path)
+    src = (table.metadata.get("source") or {}).get("path")
+    if src:
+        refuse_overwriting_inputs(output, [src], option="-o")
     doc = golden_vectors(table, count=count, seed=seed, method=method, table_json=table_paths(table_path)["json"])
     path = write_vectors(output, doc)
     print_rows([

@@ -2,7 +2,13 @@
 
 A file is written to a temporary name in its target folder and renamed into place
 with :func:`os.replace`, so readers see either the old file or the complete new
-one, never a half-written one.  ``mkstemp`` creates 0600 files; the result gets
+one, never a half-written one.  :func:`atomic_write_group` does the same for files
+that change as one unit (a table's ``.npz``, ``.bin`` and ``.json``): every new file
+is written and flushed to disk before the first rename, so a full disk or any other
+write error leaves all the old files as they were.  :func:`refuse_overwriting_inputs`
+is the one check that an output path does not name one of a command's inputs.
+
+``mkstemp`` creates 0600 files; the result gets
 the permissions of the file it replaces, else those a plain ``open()`` would give.
 """
 
@@ -15,37 +21,12 @@ from pathlib import Path
 
 from envsample.errors import EnvsampleError
 
-__all__ = ["OutputIsInputError", "atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode",
-           "refuse_inputs_as_outputs", "same_file", "temporary_path"]
+__all__ = ["OutputIsInputError", "atomic_write", "atomic_write_bytes", "atomic_write_text", "atomic_write_group",
+           "file_mode", "temporary_path", "refuse_overwriting_inputs", "same_file"]
 
 
 class OutputIsInputError(EnvsampleError, ValueError):
     """An output path names one of the command's inputs (it would be replaced)."""
-
-
-def same_file(a, b) -> bool:
-    """True when paths ``a`` and ``b`` name the same file (links and relative paths resolved)."""
-    pa, pb = Path(a), Path(b)
-    with contextlib.suppress(OSError):
-        if pa.exists() and pb.exists():
-            return os.path.samefile(pa, pb)
-    return os.path.realpath(pa) == os.path.realpath(pb)
-
-
-def refuse_inputs_as_outputs(outputs, inputs, *, what: str = "output") -> None:
-    """Raise :class:`OutputIsInputError` when an output path (None and "-" skipped) names an input file.
-
-    Called before anything is read or written, so that ``check m.exr --json m.exr`` refuses
-    with one line instead of replacing the map.
-    """
-    ins = [Path(i) for i in inputs]
-    for out in outputs:
-        if out is None or str(out) == "-":
-            continue
-        for i in ins:
-            if same_file(out, i):
-                raise OutputIsInputError(
-                    f"{out}: this {what} would replace the input {i}; choose another file name")
 
 
 def file_mode(path) -> int:
@@ -67,7 +48,7 @@ def file_mode(path) -> int:
 def temporary_path(path, *, suffix: str = ".tmp") -> str:
     """Create and return an empty temporary file beside ``path`` (the caller renames or removes it)."""
     p = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=suffix, dir=p.parent)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name[:80]}.", suffix=suffix, dir=p.parent)
     os.close(fd)
     return tmp
 
@@ -78,24 +59,7 @@ def atomic_write(path, write, *, fsync: bool = True) -> Path:
     The folder must exist (FileNotFoundError names it otherwise).  On any failure the
     temporary file is removed and an existing file at ``path`` is left untouched.
     """
-    path = Path(path)
-    if not path.parent.exists():
-        raise FileNotFoundError(f"{path.parent}: output folder does not exist; create it first")
-    mode = file_mode(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            write(f)
-            f.flush()
-            if fsync:
-                os.fsync(f.fileno())
-        os.chmod(tmp, mode)
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
-        raise
-    return path
+    return atomic_write_group([(path, write)], fsync=fsync)[0]
 
 
 def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:
@@ -106,3 +70,78 @@ def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:
 def atomic_write_text(path, text: str) -> Path:
     """Write UTF-8 ``text`` to ``path`` atomically (see :func:`atomic_write`)."""
     return atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def _fsync_folder(folder: Path) -> None:
+    with contextlib.suppress(OSError):
+        fd = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+def atomic_write_group(items, *, fsync: bool = True) -> list[Path]:
+    """Write several files as one unit: all to temporaries first, then rename them in the given order.
+
+    ``items`` is a list of ``(path, write)`` pairs (``write(fileobj)`` as in
+    :func:`atomic_write`); put the file that readers open first (a table's JSON) last.
+    Every temporary is complete and flushed before the first rename, so a failure
+    while writing (a full disk, an exception in ``write``) removes the temporaries
+    and leaves every existing file untouched.  Returns the paths in order.
+    """
+    items = [(Path(p), w) for p, w in items]
+    for p, _ in items:
+        if not p.parent.exists():
+            raise FileNotFoundError(f"{p.parent}: output folder does not exist; create it first")
+    temps: list[str] = []
+    try:
+        for p, write in items:
+            mode = file_mode(p)
+            fd, tmp = tempfile.mkstemp(prefix=f".{p.name[:80]}.", suffix=".tmp", dir=p.parent)
+            temps.append(tmp)
+            with os.fdopen(fd, "wb") as f:
+                write(f)
+                f.flush()
+                if fsync:
+                    os.fsync(f.fileno())
+            os.chmod(tmp, mode)
+        for (p, _), tmp in zip(items, temps):
+            os.replace(tmp, p)
+    except BaseException:
+        for tmp in temps:
+            with contextlib.suppress(FileNotFoundError):
+                os.unlink(tmp)
+        raise
+    if fsync:
+        for folder in {p.parent for p, _ in items}:
+            _fsync_folder(folder)
+    return [p for p, _ in items]
+
+
+def same_file(a, b) -> bool:
+    """True when paths ``a`` and ``b`` name the same file (same resolved path, or the same inode: hard links)."""
+    pa, pb = Path(a), Path(b)
+    with contextlib.suppress(OSError):
+        if pa.exists() and pb.exists():
+            return os.path.samefile(pa, pb)
+    return pa.absolute().resolve() == pb.absolute().resolve()
+
+
+def refuse_overwriting_inputs(outputs, inputs, *, option: str = "the output") -> None:
+    """Raise :class:`OutputIsInputError` when an output path names one of the inputs.
+
+    ``outputs`` and ``inputs`` are paths (or iterables of paths; None and ``"-"``,
+    standard output, are skipped); ``option`` names the output in the message (e.g.
+    ``"-o"`` or ``"--json"``).  Call it before any work is done: a command must never
+    replace the file it reads (``check m.exr --json m.exr`` refuses with one line).
+    """
+
+    def listed(x):
+        items = [x] if isinstance(x, (str, os.PathLike)) else list(x)
+        return [p for p in items if p is not None and str(p) != "-"]
+
+    for out in listed(outputs):
+        for inp in listed(inputs):
+            if same_file(out, inp):
+                raise OutputIsInputError(f"{out}: {option} would overwrite the input {inp}; choose another output path")

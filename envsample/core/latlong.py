@@ -27,7 +27,10 @@ MAPPINGS = ("equal-area", "uv-linear")
 
 
 def parse_size(size) -> tuple[int, int] | None:
-    """``None``, ``(width, height)`` or ``"WxH"`` -> ``(width, height)`` of positive ints."""
+    """``None``, ``(width, height)`` or ``"WxH"`` -> ``(width, height)`` of positive ints.
+
+    Fractional, non-finite or boolean sizes are refused (ValueError), never truncated.
+    """
     if size is None:
         return None
     if isinstance(size, str):
@@ -35,7 +38,17 @@ def parse_size(size) -> tuple[int, int] | None:
         if len(parts) != 2 or not all(p.isdigit() for p in parts):
             raise ValueError(f"size {size!r} is not of the form WIDTHxHEIGHT, e.g. 2048x1024")
         size = (int(parts[0]), int(parts[1]))
-    w, h = (int(size[0]), int(size[1]))
+    try:
+        pair = tuple(size)
+    except TypeError:
+        raise ValueError(f"size must be (width, height) or 'WxH', got {size!r}") from None
+    if len(pair) != 2:
+        raise ValueError(f"size must be (width, height) or 'WxH', got {size!r}")
+    for x in pair:
+        whole = isinstance(x, (int, np.integer)) or (isinstance(x, (float, np.floating)) and float(x).is_integer())
+        if isinstance(x, (bool, np.bool_)) or not whole:
+            raise ValueError(f"size must be whole numbers of cells, got {size!r}; e.g. (2048, 1024)")
+    w, h = (int(pair[0]), int(pair[1]))
     if w < 1 or h < 1:
         raise ValueError(f"size must be positive, got {w}x{h}")
     return w, h

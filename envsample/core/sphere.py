@@ -74,19 +74,23 @@ def _frame(up: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 @renamed_keywords(rotate_deg="rotation_deg")
 def convention(up: str = "y", rotation_deg: float = 0.0) -> dict:
-    """A JSON-ready description of the direction convention, stored in every table."""
+    """A JSON-ready description of the direction convention, stored in every table.
+
+    ``up`` is the axis letter (``"y"`` or ``"z"``) wherever it appears; the frame's unit
+    vectors are ``up_vector``, ``forward_vector`` and ``right_vector``.
+    """
     f, r, a = _frame(up)
     return {
         "projection": "equirectangular",
-        "up_axis": str(up).lower(),
-        "forward": f.tolist(),
-        "right": r.tolist(),
-        "up": a.tolist(),
+        "up": str(up).lower(),
+        "up_vector": a.tolist(),
+        "forward_vector": f.tolist(),
+        "right_vector": r.tolist(),
         "handedness": "right",
         "rotation_deg": float(rotation_deg),
         "u": "0 at the left edge, increasing to the right; phi = 2*pi*(u - 0.5) + rotation",
         "v": "0 at the top row (zenith), 1 at the bottom row (nadir); theta = pi * v",
-        "direction": "d = sin(theta)*(cos(phi)*forward + sin(phi)*right) + cos(theta)*up",
+        "direction": "d = sin(theta)*(cos(phi)*forward_vector + sin(phi)*right_vector) + cos(theta)*up_vector",
     }
 
 

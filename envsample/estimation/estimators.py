@@ -50,6 +50,7 @@ import numpy as np
 
 from envsample.core.color import luminance
 from envsample.core.compat import renamed_keywords
+from envsample.core.limits import check_memory
 from envsample.estimation.heuristics import heuristic_name, mis_weights, sample_counts
 from envsample.sampling.frames import Frame, make_frame
 from envsample.sampling.ggx import GGXReflection
@@ -69,6 +70,9 @@ __all__ = [
 
 #: Samples per processing chunk (normals x spp); bounds memory to tens of MB.
 DEFAULT_CHUNK_SAMPLES = 1 << 17
+#: Bytes one sample of a chunk holds at once (uniforms, directions, pdfs and weights of every
+#: strategy, radiance): an upper estimate for envsample.core.limits.check_memory.
+_BYTES_PER_SAMPLE = 256
 
 
 # --- heuristics ----------------------------------------------------------------
@@ -417,9 +421,12 @@ def estimate(table, frame: Frame, factor, strategies, *, kind: str = "single", f
     biased.  ValueError "valid only inside MIS".
     """
     spp = _check_spp(spp)
+    n = len(frame)
+    # A chunk holds at least one normal's spp samples; kept samples hold all of them.
+    check_memory(max(int(max_chunk_samples), spp) * _BYTES_PER_SAMPLE + (n * spp * 9 if return_samples else 0),
+                 what=f"estimating with spp={spp} for {n} normals", remedy="use fewer samples per normal (spp)")
     combo = Combination.make(strategies, kind=kind, spp=spp, fractions=fractions, heuristic=heuristic, params=params)
     f = Integrand(table, factor, getattr(table, "primaries", "bt709"), tuple(lights))
-    n = len(frame)
     rng = np.random.default_rng(seed)
     out = np.zeros((n, 3))
     tally = _Tally()

@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.constants import HALF_FLOAT_MAX, luminance_weights
-from envsample.core.files import atomic_write_text, refuse_inputs_as_outputs
+from envsample.core.files import atomic_write_text, refuse_overwriting_inputs
 from envsample.core.schema import Schema
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError
@@ -174,7 +174,7 @@ def fix_map(source, output, *, remedies: Mapping | None = None, auto: bool = Fal
         Unknown remedy, bad options, or nothing to do.
     """
     src, out = Path(source), Path(output)
-    refuse_inputs_as_outputs([out, log_path(out)], [src])
+    refuse_overwriting_inputs([out, log_path(out)], [src], option="-o")
     prof = load_profile(profile)
     image = read_map(src)
     before = check_map(image, profile=prof)

@@ -25,7 +25,7 @@ from pathlib import Path
 
 from envsample.core.files import atomic_write_text
 from envsample.errors import EnvsampleError, TableFormatError
-from envsample.io.maps import read_map, validate_map, write_map
+from envsample.io.maps import MapImage, file_sha256, read_map, validate_map, write_map
 from envsample.lights.split import SUN_SCHEMA, SunSplit, split_sun
 from envsample.pipeline.workflow import check_output_folder
 from envsample.sampling.sun import SunLight
@@ -76,10 +76,13 @@ def write_split(sp: SunSplit, out: Path, stem: str, *, source: dict, size=None) 
     ``out`` must exist.  Returns the table and ``{"sky_map", "sun", "table": [...]}`` paths.
     """
     names = {"sky_map": f"{stem}.sky.exr", "sun": f"{stem}.sun.json", "table": f"{stem}.sky.json"}
-    table = build_table(sp.sky, size=size, primaries=sp.primaries, up=sp.up, rotation_deg=sp.rotation_deg)
+    paths = {"sky_map": write_map(out / names["sky_map"], sp.sky, pixel_type="float")}
+    # The table records the sky map it samples (path and sha256: table format v2 keeps no copy of it).
+    sky = MapImage(rgb=sp.sky, path=paths["sky_map"], format="exr", pixel_type="float",
+                   sha256=file_sha256(paths["sky_map"]))
+    table = build_table(sky, size=size, primaries=sp.primaries, up=sp.up, rotation_deg=sp.rotation_deg)
     table.metadata["lights"] = [{"kind": "sun", "file": names["sun"], "schema": SUN_SCHEMA.name,
                                  "schema_version": SUN_SCHEMA.version}]
-    paths = {"sky_map": write_map(out / names["sky_map"], sp.sky, pixel_type="float")}
     doc = sp.document(files=names, source=source)
     paths["sun"] = atomic_write_text(out / names["sun"], json.dumps(doc, indent=2) + "\n")
     paths["table"] = [Path(p) for p in table.save(out / f"{stem}.sky")]
@@ -102,7 +105,8 @@ def load_sun(path) -> SunLight:
 
         half = 0.5 * math.radians(float(doc["angular_diameter_deg"]))
         conv = doc.get("convention", {})
-        return SunLight(doc["direction"], half, doc["radiance_rgb"], up=conv.get("up_axis", "y"),
+        up = conv.get("up", conv.get("up_axis", "y"))  # "up" is the axis letter since table format v2
+        return SunLight(doc["direction"], half, doc["radiance_rgb"], up=up,
                         rotation_deg=float(conv.get("rotation_deg", 0.0)))
     except (KeyError, TypeError, ValueError) as exc:
         raise TableFormatError(f"{p}: malformed sun file ({type(exc).__name__}: {exc}); "

@@ -38,7 +38,7 @@ from envsample.core.compat import renamed_keywords
 from envsample.core.schema import Schema
 from envsample.core.sphere import direction_angles, row_solid_angles, uv_to_direction
 from envsample.core.text import caution
-from envsample.errors import EnvsampleError, MapValidationError
+from envsample.errors import EnvsampleError, MapValidationError, TableFormatError
 
 __all__ = [
     "BuildResult",
@@ -55,7 +55,7 @@ __all__ = [
 ]
 
 #: Schema name of the golden-vector files.
-VECTORS_SCHEMA = Schema("envsample.golden-vectors", 1)
+VECTORS_SCHEMA = Schema("envsample.golden-vectors", 2)
 
 #: Largest number of golden vectors per file: they check exactness, not statistics.
 MAX_VECTORS = 100_000
@@ -87,9 +87,10 @@ def _pixel_direction(row: int, col: int, height: int, width: int, *, up: str, ro
 class BuildResult:
     """What :func:`build_from_file` did.
 
-    ``image`` is the validated map, ``table`` the built table, ``notes`` the
-    validation and build notes (repairs, clamped negatives...), ``paths`` the
-    files written (JSON last) and ``seconds`` the time of ``build_table`` alone.
+    ``image`` is the validated map (None with ``keep_map=False``), ``map_info`` its
+    description (path, size, format, pixel type, sha256...), ``table`` the built
+    table, ``notes`` the validation and build notes (repairs, clamped negatives...),
+    ``paths`` the files written (JSON last) and ``seconds`` the time of the build alone.
     """
 
     image: object
@@ -98,6 +99,7 @@ class BuildResult:
     paths: list[Path]
     seconds: float
     prefix: Path
+    map_info: dict | None = None
 
 
 def _tick(progress: Progress | None, label: str) -> None:
@@ -136,6 +138,9 @@ def build_from_file(
     layer: str | None = None,
     make_dirs: bool = True,
     tune: bool = False,
+    keep_map: bool = True,
+    embed_radiance: bool = False,
+    max_memory=None,
     progress: Progress | None = None,
     **build_options,
 ) -> BuildResult:
@@ -145,30 +150,50 @@ def build_from_file(
     ----------
     map_path : path of an ``.exr`` / ``.hdr`` map (see :func:`envsample.io.read_map`).
     prefix : table prefix (see :func:`output_prefix`); ``PREFIX.npz`` and
-        ``PREFIX.json`` (and ``PREFIX.bin`` with ``raw``) are written.
-    repair, allow_aspect : passed to :func:`envsample.io.validate_map`.
+        ``PREFIX.json`` (and ``PREFIX.bin`` with ``raw``) are written.  A prefix whose
+        files would replace the map is refused before anything is read.
+    repair, allow_aspect : passed to :func:`envsample.io.validate_map` (and the build).
     layer : EXR layer, passed to :func:`envsample.io.read_map`.
     make_dirs : create the prefix's folder if it is missing.  It is created only
         after the map was read, validated and its table built, so bad input
         writes nothing at all.
-    tune : also run the one-sample MIS tuning pilot (:func:`envsample.verify.recommend`)
+    tune : also run the one-sample MIS tuning pilot (:func:`envsample.validation.tuning.recommend`)
         and store its result in the table's metadata under ``"recommendation"``.
+    keep_map : keep the decoded map in memory (``result.image``, ``table.image``).
+        With False the pixels are released as soon as the luminance is computed, so
+        the build's peak memory stays near the decoded map's; ``table.image`` then
+        re-reads the file if asked.
+    embed_radiance : store a float32 copy of the map in the table (``--embed-radiance``).
+    max_memory : memory limit of the build (:mod:`envsample.core.limits`).
     progress : called with a short label before each stage.
-    build_options : passed to :func:`envsample.table.build_table` (size,
-        primaries, mapping, uniform_mix, up, rotation_deg, compensate).
+    build_options : passed to :func:`envsample.sampling.table.plan_build` (size,
+        primaries, mapping, uniform_mix, up, rotation_deg, compensate, cell_choice).
     """
+    from envsample.core.files import refuse_overwriting_inputs
     from envsample.io.maps import read_map, validate_map
-    from envsample.sampling.table import build_table
+    from envsample.io.tables import table_paths
+    from envsample.sampling.radiance import source_radiance
+    from envsample.sampling.table import plan_build, sampled_function, table_from_function
 
     out = output_prefix(prefix, map_path)
     check_output_folder(out)
+    refuse_overwriting_inputs(list(table_paths(out).values()), [map_path], option="the table prefix (-o)")
     _tick(progress, "read")
     image = read_map(map_path, layer=layer)
     _tick(progress, "check")
     image, notes = validate_map(image, repair=repair, allow_aspect=allow_aspect)
     _tick(progress, "build")
     start = time.perf_counter()
-    table = build_table(image, **build_options)
+    plan = plan_build((image.width, image.height), allow_aspect=allow_aspect, max_memory=max_memory, **build_options)
+    info = image.describe()
+    source = {**info, "layer": layer, "repair": bool(repair)}
+    f = sampled_function(image.rgb, plan)
+    keep = keep_map or tune or embed_radiance
+    if not keep:
+        image = None  # the pixels go before the table's arrays are allocated
+    doc = {"source": source, "image": {"width": info["width"], "height": info["height"]}}
+    table = table_from_function(f, plan, image=image.rgb if keep else None, source=source,
+                                radiance_source=source_radiance(doc, Path(map_path).absolute()))
     seconds = time.perf_counter() - start
     notes = list(notes) + [n for n in table.metadata.get("notes", []) if n not in notes]
     if tune:
@@ -179,8 +204,9 @@ def build_from_file(
     _tick(progress, "save")
     if make_dirs and not out.parent.exists():
         out.parent.mkdir(parents=True)
-    paths = table.save(out, raw=raw)
-    return BuildResult(image=image, table=table, notes=notes, paths=paths, seconds=seconds, prefix=out)
+    paths = table.save(out, raw=raw, embed_radiance=embed_radiance)
+    return BuildResult(image=image if keep_map else None, table=table, notes=notes, paths=paths, seconds=seconds,
+                       prefix=out, map_info=info)
 
 
 # --------------------------------------------------------------------------- golden vectors
@@ -195,8 +221,10 @@ _VECTOR_FIELDS = {
     "radiance": "output: RGB radiance of the full-resolution map in that direction (float32 values)",
     "methods": "inverse = marginal/conditional CDF inversion, alias = alias-table cell choice; "
     "the table JSON's 'usage' spells out both",
-    "comparing": "a float32 loader should give the same cells except where u lies within rounding of a "
-    "CDF step, directions to about 1e-6 and pdfs to about 1e-5 relative (common practice, not a standard)",
+    "comparing": "a loader that follows docs/table-format.md (float32 arrays, double arithmetic) gives the same "
+    "cells and directions and pdfs to the last bits of sin/cos (the reference C loader: identical); its test "
+    "accepts 1e-5 for directions (absolute) and pdfs (relative). Float32 arithmetic is not enough (measured in "
+    "docs/table-format.md)",
 }
 
 
@@ -217,9 +245,11 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
 
     ``u = numpy.random.default_rng(seed).random((count, 2))``, then
     ``table.sample(u, method=m)`` for each method (``"inverse"``, ``"alias"``
-    or ``"both"``).  Floats are Python floats, whose JSON text round-trips
-    exactly, so a loaded file reproduces ``table.sample`` bit for bit.
-    ``table_json`` (the table's JSON path) adds its name and sha256.
+    or ``"both"`` = every method the table holds).  Floats are Python floats, whose
+    JSON text round-trips exactly, so a loaded file reproduces ``table.sample`` bit
+    for bit.  ``table_json`` (the table's JSON path) adds its name and sha256.  The
+    radiance comes from :attr:`EnvTable.image` (the source map, verified, or the
+    embedded copy); a table that has neither gets no radiance fields.
     """
     count = int(count)
     if not 1 <= count <= MAX_VECTORS:
@@ -227,31 +257,38 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
     seed = int(seed)
     if seed < 0:
         raise ValueError(f"seed must be a non-negative integer, got {seed}")
-    methods = _methods(method)
+    methods = tuple(table.methods) if method == "both" else _methods(method)
     u = np.random.default_rng(seed).random((count, 2))
+    with_radiance = table.has_image or table._radiance_source is not None
     outputs = {}
     for m in methods:
         s = table.sample(u, method=m)
-        outputs[m] = (s.directions.tolist(), s.pdf.tolist(), s.cells.tolist(), s.radiance.tolist())
+        rad = s.radiance.tolist() if with_radiance else None
+        outputs[m] = (s.directions.tolist(), s.pdf.tolist(), s.cells.tolist(), rad)
     records = []
     for k, uk in enumerate(u.tolist()):
         rec = {"u": uk}
         for m, (d, p, c, r) in outputs.items():
-            rec[m] = {"direction": d[k], "pdf": p[k], "cell": c[k], "radiance": r[k]}
+            rec[m] = {"direction": d[k], "pdf": p[k], "cell": c[k]}
+            if r is not None:
+                rec[m]["radiance"] = r[k]
         records.append(rec)
     from envsample._version import __version__
     from envsample.io.maps import file_sha256
     from envsample.io.tables import array_checksums
 
+    from envsample.io.tables import SCHEMA_VERSION as TABLE_FORMAT
+
     info = {
+        "format_version": TABLE_FORMAT,
         "image": {"width": table.width, "height": table.height},
         "table": {"width": table.table_width, "height": table.table_height},
         "mapping": table.mapping,
         "primaries": table.primaries,
-        "up_axis": table.up,
+        "up": table.up,
         "rotation_deg": table.rotation_deg,
         "uniform_mix": table.uniform_mix,
-        "array_sha256": array_checksums(table),
+        "array_xxh64": array_checksums(table),
     }
     if table_json is not None:
         path = Path(table_json)
@@ -259,7 +296,7 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
     return {
         **VECTORS_SCHEMA.header(),
         "tool": {"name": "envsample", "version": __version__},
-        "fields": dict(_VECTOR_FIELDS),
+        "fields": {k: v for k, v in _VECTOR_FIELDS.items() if with_radiance or k != "radiance"},
         "seed": seed,
         "count": count,
         "generator": "numpy.random.default_rng(seed).random((count, 2)), float64",
@@ -369,56 +406,74 @@ def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotation_deg: f
             "units": "map radiance units times steradians",
         },
         "brightest": brightest,
-        "convention": {"up_axis": up, "rotation_deg": float(rotation_deg)},
+        "convention": {"up": up, "rotation_deg": float(rotation_deg)},
         "build": usable,
         "caution": caution("integrals"),
     }
 
 
-def table_facts(prefix_or_path) -> dict:
-    """JSON-ready facts about a saved table, which is loaded and verified (checksums, shapes, CDFs).
+def table_facts(prefix_or_path, *, verify: bool | None = None) -> dict:
+    """JSON-ready facts about a saved table.
 
-    Image and table sizes, mapping, primaries, convention, options, integrals,
-    the number of cells with nonzero probability, the largest cell probability
-    and the direction of that cell's centre, notes, and the files with their sizes.
+    The JSON is always read with the strict reader, and the array files' sizes are
+    checked against it (a ``.bin``'s header is read and verified).  The arrays
+    themselves are read only when verifying: ``verify=True``, or ``None`` (the
+    default) when ``prefix_or_path`` is the ``.npz`` or ``.bin`` file itself; then
+    every checksum and the distribution are checked (:func:`envsample.sampling.table.load_table`).
+    Image and table sizes, mapping, primaries, convention, options, integrals, the
+    number of cells with nonzero probability, the largest cell probability and the
+    direction of that cell's centre (from the JSON's summary), notes, and the files
+    with their sizes.
     """
-    from envsample.io.tables import read_table_json, table_paths
+    from envsample.io.tables import read_bin_header, read_table_json, table_paths
     from envsample.sampling.table import load_table
 
     paths = table_paths(prefix_or_path)
+    suffix = Path(prefix_or_path).suffix.lower()
+    if verify is None:
+        verify = suffix in (".npz", ".bin")
     doc = read_table_json(prefix_or_path)
-    table = load_table(prefix_or_path)
-    prob = table.cell_probability
-    h, w = prob.shape
-    row, col = divmod(int(np.argmax(prob)), w)
-    largest = _pixel_direction(row, col, h, w, up=table.up, rotation_deg=table.rotation_deg)
-    largest["probability"] = float(prob[row, col])
-    largest["pdf_per_sr"] = float(table.cell_pdf[row, col])
     files = []
-    for key in ("json", "npz", "bin"):
+    for key, name in (("json", "json"), ("npz", "npz"), ("bin", "raw")):
         p = paths[key]
-        if p.exists():
-            files.append({"path": str(p), "bytes": p.stat().st_size})
+        if key != "json" and doc["files"][name] is None:
+            continue
+        if not p.exists():
+            raise TableFormatError(f"{p}: table file not found (the JSON names it); rebuild the table")
+        files.append({"path": str(p), "bytes": p.stat().st_size})
+    if doc["files"]["raw"] is not None:
+        read_bin_header(paths["bin"])
+    if verify:
+        load_table(prefix_or_path)
+    summary = doc["summary"]
+    big = summary["largest_cell"]
+    w, h = doc["table"]["width"], doc["table"]["height"]
     conv = doc["convention"]
+    largest = _pixel_direction(big["row"], big["col"], h, w, up=conv["up"], rotation_deg=conv["rotation_deg"])
+    largest["probability"] = big["probability"]
+    largest["pdf_per_sr"] = big["pdf_per_sr"]
+    opts = doc["options"]
     return {
         "kind": "table",
         "path": str(paths["json"]),
         "schema": f"{doc['schema']} v{doc['schema_version']}",
-        "tool_version": doc.get("tool", {}).get("version"),
+        "tool_version": doc["tool"]["version"],
         "source": doc.get("source"),
-        "image": {"width": table.width, "height": table.height},
-        "table": {"width": table.table_width, "height": table.table_height},
-        "mapping": table.mapping,
-        "primaries": table.primaries,
-        "convention": {"up_axis": conv["up_axis"], "rotation_deg": conv["rotation_deg"], "handedness": conv["handedness"]},
-        "options": doc["options"],
+        "radiance": doc["radiance"],
+        "image": doc["image"],
+        "table": doc["table"],
+        "mapping": opts["mapping"],
+        "primaries": opts["primaries"],
+        "convention": {"up": conv["up"], "rotation_deg": conv["rotation_deg"], "handedness": conv["handedness"]},
+        "options": opts,
         "integrals": doc["integrals"],
-        "cells": int(prob.size),
-        "nonzero_cells": int(np.count_nonzero(prob > 0)),
+        "cells": w * h,
+        "nonzero_cells": summary["nonzero_cells"],
         "largest_cell": largest,
-        "valid_only_inside_mis": bool(doc.get("valid_only_inside_mis", False)),
+        "valid_only_inside_mis": bool(doc["valid_only_inside_mis"]),
         "recommendation": doc.get("recommendation"),
-        "notes": doc.get("notes", []),
+        "notes": doc["notes"],
         "files": files,
+        "verified": bool(verify),
         "caution": caution("integrals"),
     }

@@ -434,7 +434,7 @@ def _pdf_png(rgb: np.ndarray, primaries: str) -> tuple[bytes, str]:
     with warnings.catch_warnings():
         # A black map gives a uniform table with a warning; the caption says it instead.
         warnings.simplefilter("ignore", EnvsampleWarning)
-        table = build_table(rgb, size=size, primaries=primaries)
+        table = build_table(rgb, size=size, primaries=primaries, allow_aspect=True)
     pdf = np.asarray(table.cell_pdf, dtype=np.float64)
     positive = pdf[pdf > 0]
     hi = float(positive.max()) if positive.size else 1.0 / (4.0 * math.pi)

@@ -46,6 +46,8 @@ __all__ = [
     "sample_row_cdfs",
     "build_alias",
     "sample_alias",
+    "build_rows",
+    "sample_row_alias",
     "alias_cell_probabilities",
     "check_cdf",
 ]
@@ -221,10 +223,11 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
 
     A draw picks bucket ``k = floor(u * n)`` uniformly and keeps ``k`` with
     probability ``prob[k]``, else returns ``alias[k]``.  An all-zero input gives the
-    uniform table.  See the module docstring for the construction (Vose 1991;
-    Hübschle-Schneider & Sanders 2022).  ``backend`` chooses the compiled sweep
-    (O(n), over lists of light and heavy cells, 4 bytes of scratch per cell) or the vectorised numpy version
-    (see :mod:`envsample._accel`); both encode the same probabilities to float32 rounding.
+    uniform table; a cell of zero weight is never kept (``prob`` exactly 0).  See the
+    module docstring for the construction (Vose 1991; Hübschle-Schneider & Sanders
+    2022).  ``backend`` chooses the compiled sweep (O(n), over lists of light and heavy
+    cells, 4 bytes of scratch per cell) or the vectorised numpy version (see
+    :mod:`envsample.sampling.kernels`); both encode the same probabilities to float32 rounding.
     """
     w = np.asarray(weights)
     if w.ndim not in (1, 2) or w.size == 0:
@@ -232,26 +235,34 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
     if w.size >= 2**31:
         raise ValueError(f"alias tables hold at most 2**31 - 1 cells, got {w.size}")
     w2 = w.reshape(1, -1) if w.ndim == 1 else w
-    h, ncol = w2.shape
-    scale = np.ones(h) if row_scale is None else np.asarray(row_scale, dtype=np.float64)
-    n = w.size
+    scale = np.ones(w2.shape[0]) if row_scale is None else np.asarray(row_scale, dtype=np.float64)
+    # numpy's pairwise sums keep the total exact to ~1e-16 relative; a naive running
+    # sum over 33 M cells would drift by ~1e-12, which the sweep hands (times n) to
+    # the last heavy cell.
     total = float(np.dot(w2.sum(axis=1, dtype=np.float64), scale))
     k_mod = kernels(backend)
     if k_mod is not None:
-        wc = w2 if w2.dtype in (np.float32, np.float64) else w2.astype(np.float64)
-        wc = np.ascontiguousarray(wc)
-        prob = np.empty(n, dtype=np.float32)
-        alias = np.empty(n, dtype=np.int32)
-        # numpy's pairwise sums keep the total exact to ~1e-16 relative; a naive running
-        # sum over 33 M cells would drift by ~1e-12, which the sweep hands (times n) to
-        # the last heavy cell.
-        k_mod.alias_sweep(wc, int(wc.dtype == np.float64), np.ascontiguousarray(scale), ncol, total, prob, alias)
-        return prob, alias
+        return _alias_compiled(k_mod, w2, scale, total)
+    return _alias_numpy(w2, scale, total)
+
+
+def _alias_compiled(k_mod, w2: np.ndarray, scale: np.ndarray, total: float) -> tuple[np.ndarray, np.ndarray]:
+    wc = w2 if w2.dtype in (np.float32, np.float64) else w2.astype(np.float64)
+    wc = np.ascontiguousarray(wc)
+    prob = np.empty(wc.size, dtype=np.float32)
+    alias = np.empty(wc.size, dtype=np.int32)
+    k_mod.alias_sweep(wc, int(wc.dtype == np.float64), np.ascontiguousarray(scale), wc.shape[1], total, prob, alias)
+    return prob, alias
+
+
+def _alias_numpy(w2: np.ndarray, scale: np.ndarray, total: float) -> tuple[np.ndarray, np.ndarray]:
+    """The vectorised sweep: heavies and their cumulative excess, then the lights chunk by chunk."""
+    h, ncol = w2.shape
+    n = w2.size
     prob = np.ones(n, dtype=np.float32)
     alias = np.arange(n, dtype=np.int32)
     if not (total > 0.0 and np.isfinite(total)):
         return prob, alias
-
     step = max(1, _CHUNK_CELLS // ncol)
     chunks = [(r0, min(h, r0 + step)) for r0 in range(0, h, step)]
 
@@ -260,7 +271,20 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
         # pile up on the last cells of the sweep.
         return (w2[r0:r1] * (scale[r0:r1, None] * (n / total))).reshape(-1)
 
-    # Pass 1: heavy cells (p >= 1) in index order and their excess; the float64 sum of p.
+    heavy, excess, c = _heavies(chunks, scaled, ncol, n)
+    if heavy.size == 0:  # cannot happen for a finite positive total, but keep the table valid
+        return prob, alias
+    # Heavies start as buckets of their own (prob 1, alias self), which is also the
+    # right ending for any last heavy that rounding leaves unresolved.
+    d_before = 0.0
+    drift = [0.0]
+    for r0, r1 in chunks:
+        d_before = _serve_lights(scaled(r0, r1), r0 * ncol, c, heavy, excess, d_before, drift, prob, alias)
+    return prob, alias
+
+
+def _heavies(chunks, scaled, ncol: int, n: int) -> tuple[np.ndarray, np.ndarray, float]:
+    """Pass 1: heavy cells (p >= 1) in index order, their cumulative excess E_j, and the normaliser c."""
     heavy_idx, heavy_p = [], []
     psum = 0.0
     for r0, r1 in chunks:
@@ -271,59 +295,103 @@ def build_alias(weights, *, row_scale=None, backend: str = "auto") -> tuple[np.n
         heavy_p.append(p[k])
     c = n / psum
     heavy = np.concatenate(heavy_idx)
-    del heavy_idx
     excess = np.concatenate(heavy_p)
-    del heavy_p
     excess *= c
     excess -= 1.0
     np.maximum(excess, 0.0, out=excess)
     np.cumsum(excess, out=excess)
-    nh = heavy.size
-    if nh == 0:  # cannot happen for a finite positive total, but keep the table valid
-        return prob, alias
-    # Heavies start as buckets of their own (prob 1, alias self), which is also the
-    # right ending for any last heavy that rounding leaves unresolved.
+    return heavy, excess, c
 
-    # Pass 2: lights (p < 1) in index order with their cumulative deficit D_i.
-    d_before = 0.0
-    drift = [0.0]
-    for r0, r1 in chunks:
-        p = scaled(r0, r1)
-        k = np.flatnonzero(p < 1.0)
-        if k.size == 0:
-            continue
-        # Book the deficit of the float32 probability actually stored, so a heavy that
-        # serves many lights does not gather their rounding errors; the stored values
-        # are rounded so that the global drift the last heavy absorbs stays within
-        # about one float32 ulp.
-        pl = _stored_float32(p[k] * c, drift)
-        d_end = np.cumsum(np.maximum(1.0 - pl, 0.0))
-        d_end += d_before
-        # Heavies j < jlo have E_j < D before this chunk; j >= jhi are not reached in it.
-        jlo = int(np.searchsorted(excess, d_before, side="left"))
-        jhi = int(np.searchsorted(excess, d_end[-1], side="left"))
-        # pos_j: the first light of the chunk whose cumulative deficit passes E_j.  Heavy j
-        # becomes a bucket there, and every later light is served by a later heavy.
-        e = excess[jlo:jhi]
-        pos = np.searchsorted(d_end, e, side="right")
-        # Light i is served by the first heavy whose E_j reaches D_{i-1}:
-        # j(i) = jlo + #{window heavies with pos_j <= i - 1}.
-        served = np.empty(k.size, dtype=np.int64)
-        served[0] = jlo
-        if k.size > 1:
-            np.cumsum(np.bincount(pos, minlength=k.size)[: k.size - 1], out=served[1:])
-            served[1:] += jlo
-        np.minimum(served, nh - 1, out=served)
-        cells = k + r0 * ncol
-        prob[cells] = pl
-        alias[cells] = heavy[served]
-        if jhi > jlo:
-            # Heavy j keeps what is left of it and is aliased to the next heavy.
-            hj = heavy[jlo:jhi]
-            prob[hj] = np.clip(e - d_end[pos] + 1.0, 0.0, 1.0)
-            alias[hj] = heavy[jlo + 1 : min(nh, jhi + 1)] if jhi < nh else np.append(heavy[jlo + 1 : nh], heavy[nh - 1])
-        d_before = float(d_end[-1])
-    return prob, alias
+
+def _serve_lights(p, offset, c, heavy, excess, d_before, drift, prob, alias) -> float:
+    """Pass 2 on one chunk: its lights (p < 1) in index order with their cumulative deficit D_i.
+
+    Writes the lights' and the finished heavies' entries; returns the deficit after the chunk.
+    """
+    nh = heavy.size
+    k = np.flatnonzero(p < 1.0)
+    if k.size == 0:
+        return d_before
+    # Book the deficit of the float32 probability actually stored, so a heavy that
+    # serves many lights does not gather their rounding errors; the stored values
+    # are rounded so that the global drift the last heavy absorbs stays within
+    # about one float32 ulp.
+    pl = _stored_float32(p[k] * c, drift)
+    d_end = np.cumsum(np.maximum(1.0 - pl, 0.0))
+    d_end += d_before
+    # Heavies j < jlo have E_j < D before this chunk; j >= jhi are not reached in it.
+    jlo = int(np.searchsorted(excess, d_before, side="left"))
+    jhi = int(np.searchsorted(excess, d_end[-1], side="left"))
+    # pos_j: the first light of the chunk whose cumulative deficit passes E_j.  Heavy j
+    # becomes a bucket there, and every later light is served by a later heavy.
+    e = excess[jlo:jhi]
+    pos = np.searchsorted(d_end, e, side="right")
+    # Light i is served by the first heavy whose E_j reaches D_{i-1}:
+    # j(i) = jlo + #{window heavies with pos_j <= i - 1}.
+    served = np.empty(k.size, dtype=np.int64)
+    served[0] = jlo
+    if k.size > 1:
+        np.cumsum(np.bincount(pos, minlength=k.size)[: k.size - 1], out=served[1:])
+        served[1:] += jlo
+    np.minimum(served, nh - 1, out=served)
+    cells = k + offset
+    prob[cells] = pl
+    alias[cells] = heavy[served]
+    if jhi > jlo:
+        # Heavy j keeps what is left of it and is aliased to the next heavy.
+        hj = heavy[jlo:jhi]
+        prob[hj] = np.clip(e - d_end[pos] + 1.0, 0.0, 1.0)
+        alias[hj] = heavy[jlo + 1 : min(nh, jhi + 1)] if jhi < nh else np.append(heavy[jlo + 1 : nh], heavy[nh - 1])
+    return float(d_end[-1])
+
+
+def build_rows(weights, *, row_scale=None, cdf: bool = True, alias: bool = True, backend: str = "auto"):
+    """The per-row parts of a 2D table in one pass: conditional CDFs and per-row alias tables.
+
+    ``weights`` (h, w), ``w <= 65536``, non-negative and finite.  Each row gets its
+    conditional CDF (``cdf``; as :func:`build_row_cdfs`) and its own alias table over
+    its columns (``alias``; as :func:`build_alias` on the row alone, column indices as
+    uint16): the second level of a two-level alias table whose first level is
+    :func:`build_alias` over the row totals (Walker 1977; Vose 1991).  Each row's
+    sweep stays in cache, and the compiled kernel splits the rows across
+    :func:`envsample.sampling.kernels.threads` threads (any count gives the same bits).
+
+    Returns ``(cdf float32 (h, w + 1) or None, prob float32 (h, w) or None,
+    alias uint16 (h, w) or None, totals float64 (h,))`` where ``totals`` are the row
+    sums times ``row_scale``.  Zero-weight cells have ``prob`` exactly 0; a row of zero
+    total gets the uniform CDF and the identity alias table (the first level never
+    chooses it).
+    """
+    w = np.asarray(weights)
+    if w.ndim != 2 or w.size == 0:
+        raise ValueError(f"weights must be a non-empty 2D array, got shape {w.shape}")
+    h, n = w.shape
+    if n > 65536:
+        raise ValueError(f"rows hold at most 65536 cells (uint16 column indices), got {n}")
+    scale = np.ones(h) if row_scale is None else np.ascontiguousarray(row_scale, dtype=np.float64)
+    out_cdf = np.empty((h, n + 1), dtype=np.float32) if cdf else None
+    prob = np.empty((h, n), dtype=np.float32) if alias else None
+    idx = np.empty((h, n), dtype=np.uint16) if alias else None
+    k_mod = kernels(backend)
+    if k_mod is not None and w.dtype == np.float32 and w.flags.c_contiguous:
+        from envsample.sampling.kernels import threads
+
+        totals = np.empty(h, dtype=np.float64)
+        empty = np.empty(0, dtype=np.uint8)
+        k_mod.build_rows(w, scale, h, n, empty if out_cdf is None else out_cdf, empty if prob is None else prob,
+                         empty if idx is None else idx, totals, threads())
+        return out_cdf, prob, idx, totals
+    if cdf:
+        out_cdf, totals = build_row_cdfs(w, row_scale=scale, out=out_cdf, backend="numpy")
+    else:
+        totals = w.sum(axis=1, dtype=np.float64) * scale
+    if alias:
+        for r in range(h):
+            row = w[r]
+            p, a = _alias_numpy(row.reshape(1, -1), np.ones(1), float(row.sum(dtype=np.float64)))
+            prob[r] = p
+            idx[r] = a
+    return out_cdf, prob, idx, totals
 
 
 def _stored_float32(p: np.ndarray, drift: list) -> np.ndarray:
@@ -375,6 +443,31 @@ def sample_alias(prob, alias, u) -> tuple[np.ndarray, np.ndarray]:
     rest = np.where(keep, frac, frac - p)
     fresh = np.divide(rest, q, out=np.zeros_like(rest), where=q > 0)
     return cell, np.clip(fresh, 0.0, np.nextafter(1.0, 0.0))
+
+
+def sample_row_alias(prob2d, alias2d, rows, u) -> tuple[np.ndarray, np.ndarray]:
+    """The second level of a two-level alias draw: a column of each sample's own row.
+
+    ``prob2d`` float32 (h, w) and ``alias2d`` (h, w) are the per-row tables of
+    :func:`build_rows`; ``rows`` (N,) int and ``u`` (N,) in [0, 1).  The same
+    arithmetic as :func:`sample_alias` within the row: returns the column (int64) and
+    the leftover fraction rescaled to [0, 1) (float64).
+    """
+    prob2d = np.asarray(prob2d)
+    rows = np.asarray(rows, dtype=np.int64)
+    w = prob2d.shape[1]
+    x = _clip_unit(u) * w
+    k = x.astype(np.int64)
+    np.minimum(k, w - 1, out=k)
+    frac = x - k
+    flat = rows * w + k
+    p = prob2d.reshape(-1)[flat].astype(np.float64)
+    keep = frac < p
+    col = np.where(keep, k, np.asarray(alias2d).reshape(-1)[flat].astype(np.int64))
+    q = np.where(keep, p, 1.0 - p)
+    rest = np.where(keep, frac, frac - p)
+    fresh = np.divide(rest, q, out=np.zeros_like(rest), where=q > 0)
+    return col, np.clip(fresh, 0.0, np.nextafter(1.0, 0.0))
 
 
 def alias_cell_probabilities(prob, alias) -> np.ndarray:

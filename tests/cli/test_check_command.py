@@ -90,7 +90,7 @@ def test_an_output_that_is_the_input_is_refused_and_the_map_kept(maps, tmp_path,
     before = m.read_bytes()
     r = _run("check", m, option, tmp_path / "." / "m.exr")
     assert r.exit_code == 2
-    assert "would replace the input" in r.output and "\n" not in r.output.strip()
+    assert "would overwrite the input" in r.output and "\n" not in r.output.strip()
     assert m.read_bytes() == before
 
 

@@ -413,9 +413,12 @@ def test_the_old_rotate_flag_still_works_but_help_shows_one_spelling(run, tmp_pa
 def test_inspect_refuses_a_tampered_table(run, tmp_path):
     run("build", _map(tmp_path / "m.exr", _gradient()), "-o", tmp_path / "t")
     doc = json.loads((tmp_path / "t.json").read_text())
-    doc["arrays"]["cell_pdf"]["sha256"] = "0" * 64
+    doc["arrays"]["cell_pdf"]["xxh64"] = "0" * 16
     (tmp_path / "t.json").write_text(json.dumps(doc))
-    _assert_one_line_error(run("inspect", tmp_path / "t.json"), "fails its sha256 check")
+    # The JSON alone reads no array (issue 8); --verify, or naming the array file itself, checks them.
+    assert run("inspect", tmp_path / "t.json").exit_code == 0
+    _assert_one_line_error(run("inspect", tmp_path / "t.json", "--verify"), "fails its checksum")
+    _assert_one_line_error(run("inspect", tmp_path / "t.npz"), "fails its checksum")
     _assert_one_line_error(run("inspect", tmp_path / "nothing.json"), "table metadata file not found")
 
 
@@ -448,7 +451,7 @@ def test_vectors_reproduce_sampling_exactly(run, tmp_path, table_prefix):
         np.testing.assert_allclose(table.pdf(s.directions), s.pdf, rtol=1e-5)
     assert doc["seed"] == 9 and doc["count"] == 50 and doc["methods"] == ["inverse", "alias"]
     stored = json.loads((tmp_path / "t.json").read_text())["arrays"]
-    assert doc["table"]["array_sha256"] == {k: v["sha256"] for k, v in stored.items()}
+    assert doc["table"]["array_xxh64"] == {k: v["xxh64"] for k, v in stored.items()}
     assert doc["table"]["json_sha256"] == hashlib.sha256((tmp_path / "t.json").read_bytes()).hexdigest()
     assert set(doc["fields"]) >= {"u", "direction", "pdf", "cell", "radiance"}
 

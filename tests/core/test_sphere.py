@@ -98,8 +98,9 @@ def test_documented_frame_is_right_handed(up):
     m = np.stack([f, r, a])
     np.testing.assert_allclose(m @ m.T, np.eye(3), atol=0)
     conv = convention(up, 12.5)
-    assert conv["handedness"] == "right" and conv["up_axis"] == up
-    assert conv["forward"] == f.tolist() and conv["right"] == r.tolist() and conv["up"] == a.tolist()
+    assert conv["handedness"] == "right" and conv["up"] == up
+    assert conv["forward_vector"] == f.tolist() and conv["right_vector"] == r.tolist()
+    assert conv["up_vector"] == a.tolist()
     assert conv["rotation_deg"] == 12.5
 
 

@@ -333,6 +333,16 @@ def test_estimator_names_and_bad_arguments(overcast_table):
                  [CosineHemisphere(), CosineHemisphere()], kind="single", spp=4)
 
 
+def test_an_enormous_sample_count_is_refused_before_allocation():
+    """Issue 12, item 4: spp=10**12 used to end in MemoryError (873 TiB attempted); the memory
+    estimate refuses it first, in one line naming the estimate."""
+    from envsample.errors import ResourceLimitError
+
+    t = build_table(np.ones((8, 16, 3), np.float32))
+    with pytest.raises(ResourceLimitError, match=r"spp=1000000000000 .* needs about .* TiB"):
+        estimate_irradiance(t, [[0.0, 1.0, 0.0]], spp=10**12)
+
+
 # --- the sun as a third strategy (issue 11) -------------------------------------------
 
 SUN_ESTIMATORS = ["sun-mis-balance", "sun-mis-power", "sun-one-sample-balance", "sun-one-sample-power"]

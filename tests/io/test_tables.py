@@ -1,12 +1,14 @@
-"""Tests of envsample.tableio: the NPZ + JSON (+ raw .bin) table files.
+"""Tests of envsample.io.tables: the NPZ + JSON (+ self-describing .bin) table files, format v2.
 
 External references used here:
 - numpy's NPZ/NPY container (numpy.lib.format) and ``numpy.frombuffer`` with explicit
   little-endian dtypes ('<f4', '<i4') read the raw file independently of envsample.
-- hashlib.sha256 over the C-order bytes recomputes every checksum the JSON lists.
-- The JSON schema and the drawing recipe are our own, documented in docs/table-format.md;
-  a from-scratch loader below follows that text (not envsample's code) and must reproduce
-  EnvTable.sample, which is what a renderer developer's C++/GPU loader would do.
+- xxhash.xxh64 (the reference binding of Collet's XXH64) over the C-order bytes recomputes every
+  checksum the JSON and the binary header list.
+- The JSON schema, the binary header and the drawing recipe are our own, documented in
+  docs/table-format.md; a from-scratch loader below follows that text (not envsample's code),
+  parses the .bin header with struct alone (no JSON) and must reproduce EnvTable.sample, which
+  is what a renderer developer's C++/GPU loader would do.
 """
 
 from __future__ import annotations
@@ -16,12 +18,14 @@ import json
 import math
 import os
 import re
+import struct
 import zipfile
 from bisect import bisect_right
 from pathlib import Path
 
 import numpy as np
 import pytest
+import xxhash
 
 from envsample.errors import TableFormatError
 from envsample.io import tables as tableio
@@ -101,24 +105,28 @@ def test_json_describes_the_table(tmp_path, table):
     """The JSON names the schema and version, sizes, convention, mapping, and a recipe for its mapping."""
     _, paths = _saved(tmp_path, table)
     doc = read_table_json(paths["json"])
-    assert doc["schema"] == SCHEMA_NAME and doc["schema_version"] == SCHEMA_VERSION
+    assert doc["schema"] == SCHEMA_NAME and doc["schema_version"] == SCHEMA_VERSION == 2
     assert doc["image"] == {"width": 32, "height": 16} and doc["table"] == {"width": 16, "height": 8}
-    assert doc["convention"]["up_axis"] == "z" and doc["convention"]["rotation_deg"] == 30.0
-    assert doc["convention"]["handedness"] == "right"
-    assert doc["mapping"] == "uv-linear" and "uv-linear" in doc["usage"] and "equal-area" not in doc["usage"]
+    conv = doc["convention"]
+    assert conv["up"] == "z" and conv["up_vector"] == [0.0, 0.0, 1.0] and conv["rotation_deg"] == 30.0
+    assert conv["handedness"] == "right" and "up_axis" not in conv
+    assert doc["options"]["mapping"] == "uv-linear" and "uv-linear" in doc["usage"] and "equal-area" not in doc["usage"]
+    # One place for each fact: mapping and primaries only in options, sizes only in image/table.
+    assert "mapping" not in doc and "primaries" not in doc
     assert doc["files"] == {"npz": "rooftop.npz", "raw": None}
-    assert set(doc["arrays"]) == set(ARRAY_DTYPES)
+    assert set(doc["arrays"]) == set(ARRAY_DTYPES) - {"radiance"}  # no copy of the map by default
+    assert doc["radiance"] == "none"  # built from an in-memory array
 
 
-def test_checksums_in_json_match_hashlib(tmp_path, table):
-    """sha256 (hashlib) of each array's C-order little-endian bytes equals the JSON entry."""
+def test_checksums_in_json_match_xxhash(tmp_path, table):
+    """XXH64 (the xxhash package) of each array's C-order little-endian bytes equals the JSON entry."""
     _, paths = _saved(tmp_path, table)
     doc = json.loads(paths["json"].read_text())
     with np.load(paths["npz"]) as z:
         for name, entry in doc["arrays"].items():
             a = np.ascontiguousarray(z[name], dtype=np.dtype(entry["dtype"]))
-            assert hashlib.sha256(a.tobytes()).hexdigest() == entry["sha256"], name
-            assert entry["byte_order"] == "little" and entry["dtype"] in ("<f4", "<i4")
+            assert xxhash.xxh64(a.tobytes()).hexdigest() == entry["xxh64"], name
+            assert entry["dtype"] in ("<f4", "<u4", "<u2")
 
 
 def test_raw_file_holds_the_arrays_at_the_json_offsets(tmp_path, table):
@@ -139,28 +147,47 @@ def test_raw_file_holds_the_arrays_at_the_json_offsets(tmp_path, table):
             assert entry["offset"] % 64 == 0 and entry["nbytes"] == count * dtype.itemsize
             a = np.frombuffer(blob, dtype=dtype, count=count, offset=entry["offset"]).reshape(entry["shape"])
             np.testing.assert_array_equal(a, z[name], err_msg=name)
-            assert hashlib.sha256(blob[entry["offset"] : entry["offset"] + entry["nbytes"]]).hexdigest() == entry["sha256"]
+            assert xxhash.xxh64(blob[entry["offset"] : entry["offset"] + entry["nbytes"]]).hexdigest() == entry["xxh64"]
             end = max(end, entry["offset"] + entry["nbytes"])
     assert len(blob) == end
     load_table(prefix)  # a raw table loads like any other
+    load_table(paths["bin"])  # and from its binary
 
 
 # ------------------------------------------------------------------ an independent loader
 class _DocLoader:
-    """A loader written from docs/table-format.md alone: raw bytes + JSON, plain Python per sample."""
+    """A loader written from docs/table-format.md alone: the .bin header parsed with struct, no JSON."""
 
-    def __init__(self, prefix):
-        doc = json.loads(Path(str(prefix) + ".json").read_text())
-        blob = Path(str(prefix) + ".bin").read_bytes()
+    SLOTS = ("marginal_cdf", "conditional_cdf", "row_alias_probability", "row_alias_index",
+             "alias_probability", "alias_index", "cell_pdf", "radiance")
+    DTYPES = {1: "<f4", 2: "<u2", 3: "<u4"}
+
+    def __init__(self, path):
+        blob = Path(path).read_bytes()
+        assert blob[:8] == b"\x89ENVTBL\n"
+        (version, header_bytes, file_bytes, self.w, self.h, _, _, mapping, up, rot_deg, _, _, _, nslots,
+         slot_bytes) = struct.unpack_from("<IIQIIIIIIdIIdII", blob, 8)
+        assert (version, header_bytes, file_bytes, nslots, slot_bytes) == (2, 576, len(blob), 8, 48)
+        assert xxhash.xxh64_intdigest(blob[:512]) == struct.unpack_from("<Q", blob, 512)[0]
         self.arr = {}
-        for name, e in doc["arrays"].items():
-            a = np.frombuffer(blob, dtype=np.dtype(e["dtype"]), count=int(np.prod(e["shape"])), offset=e["offset"])
-            self.arr[name] = a.reshape(e["shape"])
-        self.h, self.w = doc["table"]["height"], doc["table"]["width"]
-        conv = doc["convention"]
-        self.f, self.r, self.a = (np.array(conv[k], dtype=np.float64) for k in ("forward", "right", "up"))
-        self.rot = math.radians(conv["rotation_deg"])
-        self.mapping = doc["mapping"]
+        for k, name in enumerate(self.SLOTS):
+            code, ndim, s0, s1, s2, _, off, n, digest = struct.unpack_from("<IIIIIIQQQ", blob, 128 + 48 * k)
+            if code:
+                assert xxhash.xxh64_intdigest(blob[off:off + n]) == digest
+                self.arr[name] = np.frombuffer(blob, self.DTYPES[code], n // np.dtype(self.DTYPES[code]).itemsize,
+                                               off).reshape((s0, s1, s2)[:ndim])
+        self.f, self.r, self.a = {0: ((0, 0, -1), (1, 0, 0), (0, 1, 0)), 1: ((0, 1, 0), (1, 0, 0), (0, 0, 1))}[up]
+        self.f, self.r, self.a = (np.array(v, dtype=np.float64) for v in (self.f, self.r, self.a))
+        self.rot = rot_deg * (math.pi / 180.0)
+        self.mapping = ("equal-area", "uv-linear")[mapping]
+
+    @staticmethod
+    def _alias(u, n, prob, alias):
+        x = u * n
+        k = min(int(x), n - 1)
+        f = x - k
+        p = float(prob[k])
+        return (k, f / p) if f < p else (int(alias[k]), (f - p) / (1 - p))
 
     def sample(self, u0, u1, method):
         h, w = self.h, self.w
@@ -171,18 +198,10 @@ class _DocLoader:
             c = [float(x) for x in self.arr["conditional_cdf"][i]]
             j = min(bisect_right(c, u1) - 1, w - 1)
             fu = (u1 - c[j]) / (c[j + 1] - c[j])
-            cell = i * w + j
         else:
-            n = h * w
-            k = int(u0 * n)
-            f = u0 * n - k
-            p = float(self.arr["alias_probability"][k])
-            if f < p:
-                cell, fu = k, f / p
-            else:
-                cell, fu = int(self.arr["alias_index"][k]), (f - p) / (1 - p)
-            fv = u1
-            i, j = divmod(cell, w)
+            i, fv = self._alias(u0, h, self.arr["row_alias_probability"], self.arr["row_alias_index"])
+            j, fu = self._alias(u1, w, self.arr["alias_probability"][i], self.arr["alias_index"][i])
+        cell = i * w + j
         fu = min(max(fu, EDGE), 1 - EDGE)
         fv = min(max(fv, EDGE), 1 - EDGE)
         phi = 2 * math.pi * (j + fu) / w - math.pi + self.rot
@@ -207,7 +226,7 @@ def test_documented_recipe_reproduces_sampling(tmp_path, rng, mapping, method):
     t = build_table(_map(), mapping=mapping, up="z", rotation_deg=-40.0)
     prefix = tmp_path / "studio"
     t.save(prefix, raw=True)
-    ref = _DocLoader(prefix)
+    ref = _DocLoader(str(prefix) + ".bin")
     u = rng.random((300, 2))
     s = t.sample(u, method=method)
     for k in range(u.shape[0]):
@@ -256,15 +275,21 @@ def test_other_schema_or_version_is_refused(tmp_path, table):
 @pytest.mark.parametrize(
     "label, edit",
     [
-        ("entry without sha256", lambda d: d["arrays"]["cell_pdf"].pop("sha256")),
+        ("entry without checksum", lambda d: d["arrays"]["cell_pdf"].pop("xxh64")),
         ("entry without dtype", lambda d: d["arrays"]["cell_pdf"].pop("dtype")),
         ("table without height", lambda d: d["table"].pop("height")),
         ("arrays as a list", lambda d: d.update(arrays=[1, 2])),
-        ("convention without up_axis", lambda d: d["convention"].pop("up_axis")),
+        ("convention without up", lambda d: d["convention"].pop("up")),
+        ("convention without handedness", lambda d: d["convention"].pop("handedness")),
+        ("height of 1e400", lambda d: d["table"].update(height=float("inf"))),
+        ("source as a string", lambda d: d.update(source="somewhere")),
+        ("integrals as a list", lambda d: d.update(integrals=[1, 2])),
+        ("notes as an int", lambda d: d.update(notes=3)),
+        ("a huge integer height", lambda d: d["table"].update(height=10**400)),
         ("options without uniform_mix", lambda d: d["options"].pop("uniform_mix")),
         ("height as text", lambda d: d["table"].update(height="eight")),
         ("sampled_integral as text", lambda d: d.update(sampled_integral="x")),
-        ("unknown up axis", lambda d: d["convention"].update(up_axis="w")),
+        ("unknown up axis", lambda d: d["convention"].update(up="w")),
     ],
 )
 def test_malformed_json_structure_is_refused(tmp_path, table, label, edit):
@@ -279,7 +304,7 @@ def test_malformed_json_structure_is_refused(tmp_path, table, label, edit):
 def test_missing_json_key_is_refused(tmp_path, table):
     _, paths = _saved(tmp_path, table)
     _rewrite_json(paths["json"], lambda d: d.pop("arrays"))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*missing key 'arrays'"):
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*arrays is missing"):
         load_table(paths["json"])
 
 
@@ -292,21 +317,21 @@ def _rewrite_npz(path, edit):
 
 
 def test_tampered_value_is_refused(tmp_path, table):
-    """One value changed in one array: its sha256 no longer matches the JSON."""
+    """One value changed in one array: its checksum no longer matches the JSON."""
     _, paths = _saved(tmp_path, table)
 
     def tamper(a):
         a["cell_pdf"][2, 3] = np.nextafter(a["cell_pdf"][2, 3], np.float32(1e9))
 
     _rewrite_npz(paths["npz"], tamper)
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'cell_pdf' fails its sha256"):
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'cell_pdf' fails its checksum"):
         load_table(paths["json"])
 
 
 def test_wrong_dtype_and_missing_array_are_refused(tmp_path, table):
     _, paths = _saved(tmp_path, table)
     _rewrite_npz(paths["npz"], lambda a: a.update(alias_index=a["alias_index"].astype(np.int64)))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' has dtype <i8"):
+    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' has dtype <i8 .* expected <u2"):
         load_table(paths["json"])
     _rewrite_npz(paths["npz"], lambda a: a.pop("alias_index"))
     with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' missing"):
@@ -330,19 +355,19 @@ def test_npz_that_is_not_a_zip_is_refused(tmp_path, table):
 
 
 def test_mismatched_shapes_are_refused(tmp_path, table):
-    """The JSON's array shape, or its table size, disagreeing with the arrays."""
+    """The JSON's array shape, or its table size, disagreeing with the arrays or with each other."""
     _, paths = _saved(tmp_path, table)
     original = paths["json"].read_text()
     _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(shape=[4, 32]))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + r".*'cell_pdf' has shape \[8, 16\], JSON says \[4, 32\]"):
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + r".*'cell_pdf' is declared \[4, 32\], expected \[8, 16\]"):
         load_table(paths["json"])
     paths["json"].write_text(original)
     _rewrite_json(paths["json"], lambda d: d["table"].update(width=8, height=16))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*expected .* for a 8x16 table"):
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*expected .* for this table"):
         load_table(paths["json"])
     paths["json"].write_text(original)
-    _rewrite_json(paths["json"], lambda d: d["image"].update(width=64))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'radiance' has shape"):
+    _rewrite_json(paths["json"], lambda d: d.update(radiance="embedded"))  # says it holds a map it has not
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*missing \\['radiance'\\]"):
         load_table(paths["json"])
 
 
@@ -350,10 +375,15 @@ def test_mismatched_shapes_are_refused(tmp_path, table):
     "name, edit, message",
     [
         ("marginal_cdf", lambda a: a.__setitem__(3, a[2] - 0.01), "marginal_cdf is not non-decreasing"),
-        ("conditional_cdf", lambda a: a.__setitem__((1, -1), 0.99), "conditional_cdf does not end at exactly 1"),
+        ("conditional_cdf", lambda a: a.__setitem__((1, -1), 0.99), "conditional_cdf is not a CDF"),
         ("marginal_cdf", lambda a: a.__setitem__(0, 1e-6), "marginal_cdf does not start at exactly 0"),
-        ("alias_index", lambda a: a.__setitem__(5, a.size), "alias_index has entries outside"),
-        ("alias_probability", lambda a: a.__setitem__(5, 1.5), "alias_probability has values outside"),
+        ("alias_index", lambda a: a.__setitem__((2, 5), a.shape[1]), "alias_index has entries outside"),
+        ("alias_probability", lambda a: a.__setitem__((2, 5), 1.5), "alias_probability has values outside"),
+        ("row_alias_index", lambda a: a.__setitem__(1, a.size), "row_alias_index has entries outside"),
+        ("cell_pdf", lambda a: a.__imul__(np.float32(1e30)), "cell_pdf integrates to"),
+        ("cell_pdf", lambda a: a.__setitem__(slice(None), 0.0), "cell_pdf integrates to 0"),
+        ("cell_pdf", lambda a: a.__setitem__((3, 2), a[3, 2] * 2), "does not match cell_pdf"),
+        ("alias_probability", lambda a: a.__setitem__((3, 2), a[3, 2] * 0.5), "alias tables do not match"),
         ("cell_pdf", lambda a: a.__setitem__((0, 0), -1.0), "cell_pdf has negative or non-finite"),
         ("cell_pdf", lambda a: a.__setitem__((0, 0), np.nan), "cell_pdf has negative or non-finite"),
     ],
@@ -361,18 +391,36 @@ def test_mismatched_shapes_are_refused(tmp_path, table):
 def test_inconsistent_arrays_with_valid_checksums_are_refused(tmp_path, name, edit, message):
     """A writer that produced bad arrays (checksums consistent): the loader's own checks catch it."""
     t = build_table(_map())
-    edit(getattr(t, {"marginal_cdf": "marginal_cdf", "conditional_cdf": "conditional_cdf",
-                     "alias_index": "alias_index", "alias_probability": "alias_probability",
-                     "cell_pdf": "cell_pdf"}[name]))
     prefix, paths = _saved(tmp_path, t)
+
+    def bad(arrays):
+        edit(arrays[name])
+
+    _rewrite_npz_with_checksums(paths, bad)
     with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*" + re.escape(message)):
         load_table(prefix)
+    # save() refuses such a table before writing anything (it could not be loaded).
+    edit(getattr(t, name))
+    with pytest.raises(TableFormatError, match=re.escape(message)):
+        t.save(tmp_path / "never")
+    assert not list(tmp_path.glob("never*"))
+
+
+def _rewrite_npz_with_checksums(paths, edit):
+    """Edit arrays and record their new checksums in the JSON: only the meaning checks can then object."""
+    with np.load(paths["npz"]) as z:
+        arrays = {k.removesuffix(".npy"): z[k].copy() for k in z.files}
+    edit(arrays)
+    with open(paths["npz"], "wb") as f:
+        np.savez(f, **arrays)
+    _rewrite_json(paths["json"], lambda d: [d["arrays"][k].update(xxh64=xxhash.xxh64(a.tobytes()).hexdigest())
+                                            for k, a in arrays.items()])
 
 
 def test_unknown_mapping_is_refused(tmp_path, table):
     _, paths = _saved(tmp_path, table)
     _rewrite_json(paths["json"], lambda d: d["options"].update(mapping="spiral"))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*unknown in-cell mapping 'spiral'"):
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*options.mapping must be one of equal-area"):
         load_table(paths["json"])
 
 
@@ -382,38 +430,39 @@ def _listing(folder):
 
 
 def test_failed_save_leaves_no_files(tmp_path, table, monkeypatch):
-    """np.savez failing mid-save: the error propagates and no partial or temporary file remains."""
+    """The NPZ writer failing mid-save: the error propagates and no partial or temporary file remains."""
 
     def boom(*args, **kwargs):
         raise OSError("disk full (simulated)")
 
-    monkeypatch.setattr(np, "savez", boom)
+    monkeypatch.setattr(tableio, "_write_npz", boom)
     with pytest.raises(OSError, match="simulated"):
         table.save(tmp_path / "rooftop", raw=True)
     assert _listing(tmp_path) == []
 
 
-def test_failed_save_keeps_the_existing_table(tmp_path, table, monkeypatch):
-    """An existing table is untouched, byte for byte, when a new save fails while writing arrays."""
+@pytest.mark.parametrize("failing", ["_write_npz", "_write_bin"])
+def test_failed_save_keeps_the_existing_table(tmp_path, table, monkeypatch, failing):
+    """Issue 12, item 5: rebuilding over a table when the disk fills while writing the .npz or the
+    .bin leaves the old table intact, byte for byte, and loadable (all files change as one unit)."""
+    import errno
+
     prefix, paths = _saved(tmp_path, table, raw=True)
     before = {k: p.read_bytes() for k, p in paths.items()}
     other = build_table(_map(seed=9))
+    real = getattr(tableio, failing)
 
-    real = tableio.atomic_write
+    def disk_full(f, *args):
+        real(f, *args)  # the bytes go out, then the device is full
+        raise OSError(errno.ENOSPC, "No space left on device (simulated)")
 
-    def failing_after_first_bytes(path, write):
-        def partial(f):
-            f.write(b"PK\x03\x04 half an archive")
-            raise OSError("interrupted (simulated)")
-
-        return real(path, partial)
-
-    monkeypatch.setattr(tableio, "atomic_write", failing_after_first_bytes)
+    monkeypatch.setattr(tableio, failing, disk_full)
     with pytest.raises(OSError, match="simulated"):
         other.save(prefix, raw=True)
     assert {k: p.read_bytes() for k, p in paths.items()} == before
     assert _listing(tmp_path) == ["rooftop.bin", "rooftop.json", "rooftop.npz"]
     np.testing.assert_array_equal(load_table(prefix).cell_pdf, table.cell_pdf)
+    np.testing.assert_array_equal(load_table(paths["bin"]).cell_pdf, table.cell_pdf)
 
 
 def test_interrupted_before_the_json_never_loads_a_hybrid(tmp_path, table, monkeypatch):
@@ -433,14 +482,15 @@ def test_interrupted_before_the_json_never_loads_a_hybrid(tmp_path, table, monke
         other.save(prefix)
     monkeypatch.undo()
     assert _listing(tmp_path) == ["rooftop.json", "rooftop.npz"]  # no temporary files left
-    with pytest.raises(TableFormatError, match="sha256"):
+    with pytest.raises(TableFormatError, match="checksum"):
         load_table(prefix)
 
 
-def test_save_into_a_missing_folder_fails_cleanly(tmp_path, table):
-    with pytest.raises(FileNotFoundError, match="output folder does not exist"):
-        table.save(tmp_path / "no" / "such" / "dir" / "sky")
-    assert _listing(tmp_path) == []
+def test_save_creates_missing_folders(tmp_path, table):
+    """Issue 8, item 4: save() creates missing folders, as the CLI does (README's Python example)."""
+    written = table.save(tmp_path / "no" / "such" / "dir" / "sky")
+    assert all(p.exists() for p in written)
+    load_table(tmp_path / "no" / "such" / "dir" / "sky")
 
 
 def test_table_paths():
@@ -451,9 +501,166 @@ def test_table_paths():
 
 
 def test_npz_is_a_plain_uncompressed_zip(tmp_path, table):
-    """NPZ is numpy's zip container: every member is a stored (uncompressed) .npy file."""
+    """NPZ is numpy's zip container (PKWARE APPNOTE, read back by Python's zipfile): every member is a
+    stored (uncompressed) .npy file with the right CRC-32."""
     _, paths = _saved(tmp_path, table)
     with zipfile.ZipFile(paths["npz"]) as z:
         names = {i.filename for i in z.infolist()}
-        assert names == {f"{n}.npy" for n in ARRAY_DTYPES}
+        assert names == {f"{n}.npy" for n in ARRAY_DTYPES if n != "radiance"}
         assert all(i.compress_type == zipfile.ZIP_STORED for i in z.infolist())
+        assert z.testzip() is None  # every member's CRC-32 is right (zipfile recomputes them)
+
+
+# ------------------------------------------------------------------ hostile files (issue 12, items 3 and 9)
+def test_a_version_1_table_is_refused_with_the_command_that_rebuilds_it(tmp_path, table):
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d.update(schema_version=1, source={"path": "/maps/roof top.exr"}))
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*version 1 table.*rebuild it with "
+                       "envsample build '/maps/roof top.exr' -o " + re.escape(str(tmp_path / "rooftop"))):
+        load_table(paths["json"])
+
+
+def test_deeply_nested_or_huge_json_is_refused_in_one_line(tmp_path, table, monkeypatch):
+    _, paths = _saved(tmp_path, table)
+    paths["json"].write_text("[" * 100_000 + "]" * 100_000)
+    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*nested too deeply|not an envsample"):
+        load_table(paths["json"])
+    monkeypatch.setattr("envsample.io.table_json.MAX_JSON_BYTES", 1000)
+    paths["json"].write_text(" " * 2000)
+    with pytest.raises(TableFormatError, match="far larger than a table's metadata"):
+        load_table(paths["json"])
+
+
+def test_declared_dtype_message_names_what_the_json_says(tmp_path, table):
+    """Issue 12, item 9: the JSON saying <f8 is reported as such (not 'has dtype <f4, expected <f4')."""
+    _, paths = _saved(tmp_path, table)
+    _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(dtype="<f8"))
+    with pytest.raises(TableFormatError, match=r"'cell_pdf' is declared '<f8', the format stores '<f4'"):
+        load_table(paths["json"])
+
+
+def test_a_forged_npz_header_is_refused_before_anything_is_allocated(tmp_path, table):
+    """Issue 12, item 3: an .npz member whose .npy header declares a huge array (and a JSON that
+    agrees) is refused from the sizes alone: tracemalloc (which numpy reports to) sees no large
+    allocation."""
+    import tracemalloc
+
+    _, paths = _saved(tmp_path, table)
+    shape = [23170, 46340]  # 1.07e9 cells: about 15 GiB of arrays
+    _rewrite_json(paths["json"], lambda d: (d["table"].update(width=shape[1], height=shape[0]),
+                                            [e.update(shape=[shape[0], shape[1]]) for e in d["arrays"].values()]))
+    tracemalloc.start()
+    try:
+        with pytest.raises(TableFormatError):
+            load_table(paths["json"])
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert peak < 20 << 20
+    # A consistent JSON and a member that only claims to be that big: the member's stored size refuses it.
+    huge = np.lib.format.header_data_from_array_1_0(np.empty((1, 1), np.float32))
+    huge["shape"] = (100_000, 100_000)
+    with zipfile.ZipFile(paths["npz"], "w") as z, z.open("cell_pdf.npy", "w") as m:
+        np.lib.format.write_array_header_1_0(m, huge)
+        m.write(b"\0" * 64)
+    table.save(tmp_path / "ok")
+    ok = table_paths(tmp_path / "ok")
+    ok["npz"].write_bytes(paths["npz"].read_bytes())
+    with pytest.raises(TableFormatError, match=_match(ok["npz"])):
+        load_table(ok["json"])
+
+
+def test_a_table_bigger_than_the_memory_limit_is_refused_before_reading(tmp_path, table, monkeypatch):
+    """Issue 12, item 4: loading checks the arrays' size against the memory limit first."""
+    _, paths = _saved(tmp_path, table)
+    monkeypatch.setenv("ENVSAMPLE_MAX_MEMORY", "1k")
+    from envsample.errors import ResourceLimitError
+
+    with pytest.raises(ResourceLimitError, match=r"loading this table: needs about .* above the limit"):
+        load_table(paths["json"])
+
+
+@pytest.mark.parametrize("damage, message", [
+    ("truncated to 1 kB", "truncated or padded"),
+    ("one array byte flipped", "fails its checksum"),
+    ("garbage", "not an envsample table binary"),
+    ("header byte flipped", "header fails its checksum"),
+    ("offset 1e12 in the JSON", "header and JSON disagree"),
+    ("offset -64 in the JSON", "offset must be an integer"),
+])
+def test_a_damaged_binary_is_refused_where_it_is_read(tmp_path, table, damage, message):
+    """Issue 8 and issue 12 item 9: load_table and inspect given the .bin verify it (sizes, header
+    checksum, array checksums, agreement with the JSON); the NPZ of the same table still loads."""
+    from envsample.pipeline.workflow import table_facts
+
+    _, paths = _saved(tmp_path, table, raw=True)
+    data = bytearray(paths["bin"].read_bytes())
+    if damage == "truncated to 1 kB":
+        data = data[:1024]
+    elif damage == "one array byte flipped":
+        data[-3] ^= 0x10
+    elif damage == "garbage":
+        data = bytearray(np.random.default_rng(1).integers(0, 256, len(data), dtype=np.uint8).tobytes())
+    elif damage == "header byte flipped":
+        data[40] ^= 0x01
+    elif damage.startswith("offset"):
+        value = 10**12 if "1e12" in damage else -64
+        _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(offset=value))
+    paths["bin"].write_bytes(bytes(data))
+    for read in (load_table, table_facts):
+        with pytest.raises(TableFormatError, match=message):
+            read(paths["bin"])
+    if not damage.startswith("offset"):
+        load_table(paths["json"])
+
+
+def test_radiance_comes_from_the_verified_source_map(tmp_path, rng):
+    """Issue 8: no copy of the map is stored; eval re-reads the recorded source map and checks its
+    sha256; a moved map is found relative to the table or given with source=; a changed one is refused."""
+    from envsample.io.maps import read_map, write_map
+    from envsample.pipeline.workflow import build_from_file
+
+    maps = tmp_path / "maps"
+    maps.mkdir()
+    rgb = _map()
+    write_map(maps / "sky.exr", rgb, pixel_type="float")
+    build_from_file(maps / "sky.exr", tmp_path / "tables" / "sky", keep_map=False)
+    doc = read_table_json(tmp_path / "tables" / "sky")
+    assert doc["radiance"] == "source" and doc["source"]["relative_path"] == "../maps/sky.exr"
+    t = load_table(tmp_path / "tables" / "sky")
+    assert not t.has_image
+    np.testing.assert_array_equal(t.image, read_map(maps / "sky.exr").rgb)
+    # The whole project moves: the relative path still finds the map.
+    os.rename(tmp_path / "maps", tmp_path / "elsewhere")
+    with pytest.raises(TableFormatError, match="source map is not found.*--embed-radiance"):
+        load_table(tmp_path / "tables" / "sky").image
+    t = load_table(tmp_path / "tables" / "sky", source=tmp_path / "elsewhere" / "sky.exr")
+    np.testing.assert_array_equal(t.image, rgb)
+    write_map(tmp_path / "elsewhere" / "sky.exr", rgb * 2, pixel_type="float")
+    with pytest.raises(TableFormatError, match="has changed since the table was built"):
+        load_table(tmp_path / "tables" / "sky", source=tmp_path / "elsewhere" / "sky.exr").image
+
+
+def test_an_embedded_copy_travels_with_the_table_and_is_checked(tmp_path, table):
+    prefix, paths = _saved(tmp_path, table)
+    table.save(prefix, embed_radiance=True)
+    assert read_table_json(prefix)["radiance"] == "embedded"
+    np.testing.assert_array_equal(load_table(prefix).image, table.image)
+
+    def negative(arrays):
+        arrays["radiance"][0, 0, 0] = -1.0
+
+    _rewrite_npz_with_checksums(paths, negative)
+    with pytest.raises(TableFormatError, match="radiance has negative or non-finite values"):
+        load_table(prefix)
+
+
+@pytest.mark.parametrize("bad", ["", "   "])
+def test_an_empty_table_path_is_refused_in_plain_words(bad):
+    with pytest.raises(TableFormatError, match="empty table path"):
+        load_table(bad)
+
+
+def test_a_folder_is_not_a_table(tmp_path):
+    with pytest.raises(TableFormatError, match="is a folder"):
+        load_table(tmp_path)

@@ -79,7 +79,7 @@ def test_unfixable_maps_are_refused_and_nothing_is_written(tmp_path, profile_fil
 def test_output_naming_the_source_is_refused(tmp_path, profile_file):
     src = tmp_path / "m.exr"
     write_map(src, sunny(), pixel_type="float")
-    with pytest.raises(OutputIsInputError, match="would replace the input"):
+    with pytest.raises(OutputIsInputError, match="would overwrite the input"):
         fix_map(src, tmp_path / "." / "m.exr", remedies={"poles": {}}, profile=profile_file)
 
 

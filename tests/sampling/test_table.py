@@ -121,7 +121,7 @@ def test_constant_map_integrates_to_four_pi_L(shape):
     """integral of a constant L over the sphere = 4 pi L (closed form), per channel and for luminance."""
     L = np.array([0.25, 2.0, 7.5], dtype=np.float32)
     rgb = np.broadcast_to(L, shape + (3,)).copy()
-    t = build_table(rgb)
+    t = build_table(rgb, allow_aspect=True)  # (7, 13) is not 2:1: the closed form holds all the same
     np.testing.assert_allclose(t.integrals["rgb"], 4 * np.pi * L.astype(np.float64), rtol=1e-6)
     assert t.integrals["luminance"] == pytest.approx(4 * np.pi * float(L.astype(np.float64) @ BT709_Y), rel=1e-6)
     # A constant map gives each cell its solid-angle share.
@@ -214,8 +214,10 @@ def test_stored_cdfs_and_alias_encode_the_cell_probabilities(rng, backend):
     marg = np.diff(t.marginal_cdf.astype(np.float64))
     cond = np.diff(t.conditional_cdf.astype(np.float64), axis=1)
     np.testing.assert_allclose(marg[:, None] * cond, p, rtol=1e-4, atol=2e-7)
-    a = alias_cell_probabilities(t.alias_probability, t.alias_index).reshape(p.shape)
-    np.testing.assert_allclose(a, p, rtol=1e-5, atol=2**-24)
+    # Two levels: P(row) from the row table times P(column | row) from that row's table.
+    rows = alias_cell_probabilities(t.row_alias_probability, t.row_alias_index)
+    cols = np.stack([alias_cell_probabilities(t.alias_probability[i], t.alias_index[i]) for i in range(p.shape[0])])
+    np.testing.assert_allclose(rows[:, None] * cols, p, rtol=1e-5, atol=2**-24)
 
 
 # ------------------------------------------------------------------ chi-square
@@ -495,7 +497,7 @@ def test_size_reduction_preserves_power(size, rng):
     """A coarser table keeps the luminance integral (power): sum(table luminance x cell solid angle)
     equals the full-resolution integral; the image for eval stays at full resolution."""
     rgb = _random_map(rng, 64, 128)
-    t = build_table(rgb, size=size)
+    t = build_table(rgb, size=size, allow_aspect=True)  # 48x20 and 17x9 are not 2:1
     w, h = parse_size(size)
     assert (t.table_width, t.table_height) == (w, h) and t.image.shape == (64, 128, 3)
     power = float(np.sum(t.luminance.astype(np.float64) * _exact_row_solid_angles(h, w)[:, None]))
@@ -532,7 +534,7 @@ def test_size_reduction_splits_a_sun_across_the_cells_it_overlaps():
     sun = (30, 61)
     rgb = np.zeros((H, W, 3), dtype=np.float32)
     rgb[sun] = 1000.0
-    t = build_table(rgb, size=(w, h))
+    t = build_table(rgb, size=(w, h), allow_aspect=True)
     mu = lambda n: np.cos(np.pi * np.arange(n + 1) / n)
     lo_mu, hi_mu = mu(H)[sun[0] + 1], mu(H)[sun[0]]
     rows = [i for i in range(h) if min(hi_mu, mu(h)[i]) - max(lo_mu, mu(h)[i + 1]) > 1e-12]
@@ -589,7 +591,7 @@ def test_eval_returns_the_pixel_of_each_direction(up, rng):
     d = pixel_center_directions(16, 32, up=up, rotation_deg=123.0).reshape(-1, 3)
     np.testing.assert_array_equal(t.eval(d), rgb.reshape(-1, 3))
     assert t.up == up and t.rotation_deg == 123.0
-    assert t.metadata["convention"]["up_axis"] == up
+    assert t.metadata["convention"]["up"] == up
 
 
 def test_build_accepts_a_map_image_like_object(rng):
@@ -660,3 +662,100 @@ def test_saving_without_raw_removes_a_stale_raw_file(tmp_path):
     assert (tmp_path / "t.bin").exists()
     table.save(tmp_path / "t")
     assert not (tmp_path / "t.bin").exists()
+
+
+# ------------------------------------------------------------------ hardening (issue 12, items 8 and 10)
+@pytest.mark.parametrize("backend", BACKENDS)
+@pytest.mark.parametrize("method", SAMPLE_METHODS)
+def test_nan_uniforms_are_refused_with_their_count_on_every_path(method, backend, rng):
+    """One behaviour for NaN/Inf in u on the numpy and compiled, inverse and alias paths: ValueError with the count."""
+    t = build_table(_random_map(rng))
+    u = rng.random((10, 2))
+    u[2, 0], u[7, 1], u[8, 1] = np.nan, np.inf, -np.inf
+    with pytest.raises(ValueError, match="u has 3 NaN or Inf values of 20"):
+        t.sample(u, method=method, backend=backend)
+
+
+@pytest.mark.parametrize("rotation", [math.nan, math.inf, -math.inf])
+def test_non_finite_rotation_is_refused(rotation, rng):
+    with pytest.raises(ValueError, match="rotation_deg must be a finite number"):
+        build_table(_random_map(rng), rotation_deg=rotation)
+
+
+def test_maps_and_sizes_that_are_not_2_to_1_or_larger_than_the_map_are_refused(rng):
+    """Issue 8 item 4 and issue 12 item 10: W != 2H, a size above the map's, a size not 2:1 and a
+    fractional size are refused in one line (allow_aspect accepts the aspect on purpose)."""
+    with pytest.raises(MapValidationError, match="not 2:1"):
+        build_table(_random_map(rng, 16, 20))
+    assert build_table(_random_map(rng, 16, 20), allow_aspect=True).table_width == 20
+    rgb = _random_map(rng, 16, 32)
+    with pytest.raises(ValueError, match="larger than the 32x16 map"):
+        build_table(rgb, size=(64, 32))
+    with pytest.raises(ValueError, match="not 2:1"):
+        build_table(rgb, size=(30, 10))
+    with pytest.raises(ValueError, match="whole numbers of cells"):
+        build_table(rgb, size=(1.5, 2.7))
+    assert build_table(rgb, size=(16.0, 8.0)).table_width == 16  # a whole float is a whole number
+
+
+def _extreme(kind):
+    r = np.random.default_rng(3)
+    if kind == "black":
+        return np.zeros((16, 32, 3), np.float32)
+    if kind == "all 3e38":
+        return np.full((16, 32, 3), 3e38, np.float32)
+    if kind == "random up to 1e38":
+        return (r.random((16, 32, 3)) * 1e38).astype(np.float32)
+    return np.full((16, 32, 3), 1e-45, np.float32)  # all denormal (the smallest float32 is 1.4e-45)
+
+
+@pytest.mark.parametrize("kind", ["black", "all 3e38", "random up to 1e38", "all 1e-45"])
+def test_extreme_but_valid_maps_give_valid_tables(kind, tmp_path, rng):
+    """Issue 12, item 8: all-black, all 3e38, random up to 1e38 and all-denormal maps each build a
+    valid table (finite pdf integrating to 1, exact CDF ends) that saves and loads; a constant map
+    gives each cell its solid-angle share (closed form), whatever its scale."""
+    import warnings as _warnings
+
+    from envsample.sampling.table import load_table
+
+    rgb = _extreme(kind)
+    with _warnings.catch_warnings():
+        _warnings.simplefilter("ignore", EnvsampleWarning)  # the black map warns, by design
+        t = build_table(rgb)
+    assert np.isfinite(t.cell_pdf).all() and (t.cell_pdf >= 0).all()
+    assert t.cell_probability.sum() == pytest.approx(1.0, abs=1e-6)
+    assert all(np.isfinite(t.integrals["rgb"])) and np.isfinite(t.integrals["luminance"])
+    if kind != "random up to 1e38":
+        share = _exact_row_solid_angles(16, 32)[:, None] / (4 * np.pi)
+        np.testing.assert_allclose(t.cell_probability, np.broadcast_to(share, (16, 32)), rtol=1e-5)
+    t.save(tmp_path / "t")
+    loaded = load_table(tmp_path / "t")
+    s = loaded.sample(rng.random((1000, 2)), method="alias")
+    assert np.isfinite(s.pdf).all() and (s.pdf > 0).all()
+
+
+def test_the_build_memory_is_estimated_and_refused_before_allocation(rng):
+    """Issue 12, item 4: a build above the memory limit is refused in one line naming the estimate."""
+    from envsample.errors import ResourceLimitError
+
+    with pytest.raises(ResourceLimitError, match=r"needs about .* of memory, above the limit of 1.0 kiB"):
+        build_table(_random_map(rng), max_memory="1k")
+
+
+@pytest.mark.parametrize("choice, per_cell", [("both", 14), ("inverse", 8), ("alias", 10)])
+def test_one_cell_choice_stores_fewer_bytes_and_refuses_the_other_method(choice, per_cell, tmp_path, rng):
+    """Issue 8: <= 16 bytes per cell with both methods, <= 12 with one; a method the table lacks is refused."""
+    from envsample.io.tables import table_arrays_bytes
+
+    t = build_table(_random_map(rng, 64, 128), cell_choice=choice)
+    stored = sum(a.nbytes for a in t.arrays().values())
+    assert stored == table_arrays_bytes(128, 64, cell_choice=choice)
+    assert stored / (64 * 128) == pytest.approx(per_cell, abs=0.2)  # plus the per-row parts (1/w of a cell each)
+    paths = t.save(tmp_path / "t")
+    assert paths[0].stat().st_size / (64 * 128) <= (16 if choice == "both" else 12)
+    for method in SAMPLE_METHODS:
+        if method in t.methods:
+            t.sample(rng.random((10, 2)), method=method)
+        else:
+            with pytest.raises(ValueError, match=f"holds only the {choice} cell choice"):
+                t.sample(rng.random((10, 2)), method=method)

@@ -31,11 +31,11 @@ HALF_REL_ERROR = 2.0**-11
 
 
 def _table_checksums(summary) -> list[dict]:
-    """The stored arrays' sha256 of every scene's table, read from its JSON."""
+    """The stored arrays' checksums (XXH64) of every scene's table, read from its JSON."""
     out = []
     for m in summary["maps"]:
         doc = json.loads(open(next(p for p in m["table_files"] if p.endswith(".json")), encoding="utf-8").read())
-        out.append({k: v["sha256"] for k, v in doc["arrays"].items()})
+        out.append({k: v["xxh64"] for k, v in doc["arrays"].items()})
     return out
 
 

@@ -100,7 +100,7 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
         small = ctx.rgb
     else:
         small = ctx.scan.reduced if ctx.scan.reduced is not None else reduce_power(ctx.rgb, size)
-    table = build_table(small, primaries=prim)
+    table = build_table(small, primaries=prim, allow_aspect=True)  # the aspect check reports the shape
     normals = _fibonacci_normals(s["normals"])
     ref = reference_irradiance(small, normals)
     graded = s["estimator"]
