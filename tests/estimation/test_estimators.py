@@ -301,8 +301,8 @@ def test_results_are_reproducible_bit_for_bit_and_independent_of_chunking(overca
 
 def test_estimator_names_and_bad_arguments(overcast_table):
     names = estimators()
-    for required in ("cosine", "uniform", "table", "bsdf-ggx", "mis-balance", "mis-power", "mis-max",
-                     "mis-cutoff", "one-sample-balance"):
+    for required in ("cosine", "uniform-hemisphere", "uniform-sphere", "table", "bsdf-ggx", "mis-balance",
+                     "mis-power", "mis-max", "mis-cutoff", "one-sample-balance"):
         assert required in names
     assert "bsdf-ggx" not in estimators("irradiance") and "bsdf-ggx" in estimators("glossy")
     with pytest.raises(ValueError, match="unknown irradiance estimator 'fast'; valid names: cosine"):
@@ -322,3 +322,13 @@ def test_estimator_names_and_bad_arguments(overcast_table):
     with pytest.raises(ValueError, match="exactly one strategy"):
         estimate(overcast_table, make_frame(UP), lambda d, f: np.ones(len(d)),
                  [CosineHemisphere(), CosineHemisphere()], kind="single", spp=4)
+
+
+def test_former_estimator_names_warn_and_give_the_same_estimate(overcast_table):
+    # issue 10 item 6: "uniform" sampled the hemisphere and "sphere" the sphere; the names now say so.
+    assert "uniform" not in estimators() and "sphere" not in estimators()
+    for old, new in (("uniform", "uniform-hemisphere"), ("sphere", "uniform-sphere")):
+        with pytest.warns(DeprecationWarning, match=f"estimator name '{old}' is now called '{new}'"):
+            a = estimate_irradiance(overcast_table, UP, estimator=old, spp=16, seed=5)
+        b = estimate_irradiance(overcast_table, UP, estimator=new, spp=16, seed=5)
+        assert np.array_equal(a, b)
