@@ -37,3 +37,15 @@ def test_readme_mentions_every_cli_command():
     text = _readme()
     for name in main.commands:
         assert f"envsample {name}" in text, f"README does not show 'envsample {name}'"
+
+
+def test_relative_links_of_the_guides_resolve():
+    """Every relative Markdown link of README.md, DEVELOPERS.md and docs/ points at a file of the repository."""
+    import re
+
+    broken = []
+    for doc in [ROOT / "README.md", ROOT / "DEVELOPERS.md", *sorted((ROOT / "docs").glob("*.md"))]:
+        for target in re.findall(r"\]\(([^)#\s]+)(?:#[^)]*)?\)", doc.read_text(encoding="utf-8")):
+            if "://" not in target and not (doc.parent / target).exists():
+                broken.append(f"{doc.name}: {target}")
+    assert broken == []

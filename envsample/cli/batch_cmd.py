@@ -9,6 +9,9 @@ import click
 from envsample.cli.app import flags, main
 from envsample.cli.options import table_options
 from envsample.cli.output import progress_bar
+from envsample.pipeline.batch import run_batch
+from envsample.pipeline.outcomes import BatchInterrupted
+from envsample.qa.profile import load_profile
 
 
 @main.command()
@@ -48,9 +51,6 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
     1 any map failed or could not be read (with --strict also any warning), 2 usage
     error, 130 interrupted.
     """
-    from envsample.pipeline.outcomes import BatchInterrupted
-    from envsample.pipeline.batch import run_batch
-    from envsample.qa.profile import load_profile
 
     profile = load_profile(profile_path)
     options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,

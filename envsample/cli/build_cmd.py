@@ -10,6 +10,7 @@ from envsample.cli.app import flags, main
 from envsample.cli.options import table_options
 from envsample.cli.output import print_rows, progress_bar, rgb_line, size_text, warnings_as_lines
 from envsample.core.text import caution
+from envsample.pipeline.workflow import build_from_file
 
 
 @main.command()
@@ -35,7 +36,6 @@ def build(map_path, prefix, size, primaries, mapping, uniform_mix, up, rotation_
     values are clamped and counted) before anything is written. Existing
     table files with the same prefix are replaced atomically.
     """
-    from envsample.pipeline.workflow import build_from_file
 
     printed: list[str] = []
     stages = ("read", "check", "build", "tune", "save") if tune else ("read", "check", "build", "save")

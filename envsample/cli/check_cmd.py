@@ -9,6 +9,11 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import progress_bar
+from envsample.core.files import atomic_write_text
+from envsample.qa.profile import load_profile
+from envsample.qa.report import format_report, report_to_json
+from envsample.qa.run import check_map
+from envsample.reports.pages import check_page
 
 
 @main.command()
@@ -30,9 +35,6 @@ def check(maps, profile_path, json_path, html_path, strict, only):
     (with --strict also any warn), 2 unreadable input or usage error.
     Light levels are estimates for asset preparation, not certified lighting calculations.
     """
-    from envsample.qa.profile import load_profile
-    from envsample.qa.report import format_report, report_to_json
-    from envsample.qa.run import check_map
 
     profile = load_profile(profile_path)
     ids = None if only is None else [c.strip() for c in only.split(",") if c.strip()]
@@ -50,12 +52,10 @@ def check(maps, profile_path, json_path, html_path, strict, only):
         if str(json_path) == "-":
             click.echo(text, nl=False)
         else:
-            from envsample.core.files import atomic_write_text
 
             atomic_write_text(json_path, text)
             click.echo(f"wrote {json_path}")
     if html_path is not None:
-        from envsample.reports.pages import check_page
 
         check_page(reports, html_path)
         click.echo(f"wrote {html_path}")

@@ -8,6 +8,7 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import echo_json, num, progress_bar, warnings_as_lines
+from envsample.synth.demo import demo_steps, run_demo
 
 
 @main.command()
@@ -22,7 +23,6 @@ def demo(outdir, width, as_json):
     as .exr maps, builds their tables (the rooftop's also as raw .bin), writes
     golden vectors for the rooftop and prints a summary. Nothing is downloaded.
     """
-    from envsample.synth.demo import demo_steps, run_demo
 
     if width % 2:
         raise click.BadParameter(f"{width} is odd; the maps are 2:1, give an even width", param_hint="'--width'")

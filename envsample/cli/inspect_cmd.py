@@ -10,6 +10,8 @@ import click
 from envsample.cli.app import flags, main
 from envsample.cli.options import PRIMARY_CHOICES
 from envsample.cli.output import direction_text, echo_json, num, print_rows, rgb_line, size_text
+from envsample.io.maps import read_map
+from envsample.pipeline.workflow import map_facts, table_facts
 
 
 def _is_table(path: Path) -> bool:
@@ -107,13 +109,11 @@ def inspect_command(target, as_json, primaries, up, layer):
     or a table given by its prefix or its .json/.npz/.bin file. A table is
     loaded and verified (checksums, shapes, CDFs) on the way.
     """
-    from envsample.pipeline.workflow import map_facts, table_facts
 
     if _is_table(target):
         facts = table_facts(target)
         show = _print_table_facts
     else:
-        from envsample.io.maps import read_map
 
         facts = map_facts(read_map(target, layer=layer), primaries=primaries.lower(), up=up)
         show = _print_map_facts

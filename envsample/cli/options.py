@@ -11,7 +11,7 @@ import click
 
 from envsample.core.color import PRIMARY_NAMES
 from envsample.core.constants import PRIMARY_ALIASES
-from envsample.core.latlong import MAPPINGS
+from envsample.core.latlong import MAPPINGS, parse_size
 from envsample.core.sphere import UP_AXES
 
 
@@ -23,7 +23,6 @@ class SizeType(click.ParamType):
     def convert(self, value, param, ctx):
         if isinstance(value, tuple):
             return value
-        from envsample.core.latlong import parse_size
 
         try:
             return parse_size(value)

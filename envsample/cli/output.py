@@ -13,7 +13,7 @@ import warnings
 import click
 
 from envsample.cli.app import flags
-from envsample.core.text import one_line
+from envsample.core.text import number, one_line
 from envsample.errors import EnvsampleWarning
 
 
@@ -52,7 +52,6 @@ def print_rows(pairs, *, out=None) -> None:
 
 def num(x: float) -> str:
     """A compact number (4 significant digits), written as in every report (:func:`envsample._text.number`)."""
-    from envsample.core.text import number
 
     return number(x, 4)
 

@@ -11,7 +11,11 @@ import click
 from envsample.cli.app import main
 from envsample.cli.options import DEGREES, SIZE, FiniteFloat
 from envsample.cli.output import num, print_rows, rgb_line, size_text
+from envsample.core.constants import HALF_FLOAT_MAX
 from envsample.core.text import caution
+from envsample.io.maps import supported_extensions, write_map
+from envsample.pipeline.workflow import check_output_folder, map_integrals
+from envsample.synth.skies import SKY_DESCRIPTIONS, make_sky, sky_kinds, sun_position
 
 #: CLI option -> (make_sky keyword, the kinds that take it).
 SKY_OPTIONS = {
@@ -47,13 +51,11 @@ def _parse_light(text: str):
 
 
 def _sky_kinds():
-    from envsample.synth.skies import sky_kinds
 
     return sky_kinds()
 
 
 def _sky_help() -> str:
-    from envsample.synth.skies import SKY_DESCRIPTIONS
 
     return "\n".join(f"{k:<16}{v}" for k, v in SKY_DESCRIPTIONS.items())
 
@@ -90,10 +92,6 @@ def sky(kind, output, size, pixel_type, **given):
 
     Options apply to the kinds named in their help; others are refused.
     """
-    from envsample.core.constants import HALF_FLOAT_MAX
-    from envsample.io.maps import supported_extensions, write_map
-    from envsample.pipeline.workflow import check_output_folder
-    from envsample.synth.skies import make_sky, sun_position
 
     if output.suffix.lower() not in supported_extensions(write=True):
         raise click.BadParameter(f"{output}: write .exr or .hdr", param_hint="'-o' / '--output'")
@@ -118,7 +116,6 @@ def sky(kind, output, size, pixel_type, **given):
         )
     output.parent.mkdir(parents=True, exist_ok=True)
     path = write_map(output, rgb, pixel_type=pixel_type)
-    from envsample.pipeline.workflow import map_integrals
 
     per_rgb, y, _ = map_integrals(rgb, "bt709")
     sun = sun_position(kind, **options)

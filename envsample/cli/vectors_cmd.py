@@ -8,6 +8,9 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import print_rows, size_text
+from envsample.io.tables import table_paths
+from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
+from envsample.sampling.table import load_table
 
 
 @main.command()
@@ -28,9 +31,6 @@ def vectors(table_path, output, count, seed, method):
     loader in another language reads the same table, feeds it the same u and
     must give the same results. The same seed always writes the same file.
     """
-    from envsample.io.tables import table_paths
-    from envsample.pipeline.workflow import check_output_folder, golden_vectors, write_vectors
-    from envsample.sampling.table import load_table
 
     check_output_folder(output)
     table = load_table(table_path)

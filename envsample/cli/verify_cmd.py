@@ -9,6 +9,8 @@ import click
 from envsample.cli.app import main
 from envsample.cli.options import SIZE
 from envsample.cli.output import print_rows, progress_bar
+from envsample.estimation.estimators import estimators as estimator_names
+from envsample.pipeline.verify import verify_map
 
 
 @main.command()
@@ -36,8 +38,6 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     firefly index, time per sample, efficiency, the recommended estimator), EXR
     images of the reference and each estimate, error heat maps and a convergence plot.
     """
-    from envsample.estimation.estimators import estimators as estimator_names
-    from envsample.pipeline.verify import verify_map
 
     if list_only:
         click.echo("\n".join(estimator_names("irradiance")))

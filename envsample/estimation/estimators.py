@@ -1,19 +1,7 @@
-"""Multiple importance sampling: heuristics, estimators of irradiance and of glossy reflection.
+"""Monte Carlo estimators of irradiance and of glossy reflection: single strategies and MIS combinations.
 
-Heuristics (Veach 1997, section 9.2)
-------------------------------------
-With ``q_i = n_i p_i(x)`` (``n_i`` samples of strategy ``i`` in multi-sample MIS, or
-its selection probability ``c_i`` in one-sample MIS):
-
-``balance``   w_i = q_i / sum_k q_k                       (the balance heuristic)
-``power``     w_i = q_i^beta / sum_k q_k^beta, beta = 2    (power heuristic)
-``maximum``   w_i = 1 if q_i is the largest, else 0        (maximum heuristic)
-``cutoff``    w_i = q_i / sum of q_k >= c q_max, 0 if q_i < c q_max, c = ``cutoff``  (cutoff heuristic)
-
-Each is its own function in ``HEURISTICS``; :func:`mis_weights` dispatches by ``method=``.
-Every heuristic gives weights that sum to 1 wherever some pdf is positive and a
-zero weight wherever a strategy's pdf is zero, the two conditions of Veach's
-unbiasedness argument (section 9.1).  Ties in ``maximum`` go to the first strategy.
+The MIS weights come from :mod:`envsample.estimation.heuristics` (balance, power, maximum
+and cutoff heuristics; Veach 1997, section 9.2).
 
 Estimators
 ----------

@@ -29,6 +29,9 @@ import numpy as np
 from envsample.core.color import luminance
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError
+from envsample.io.maps import write_map
+from envsample.io.tables import table_paths
+from envsample.pipeline.verify import verify_map
 from envsample.pipeline.workflow import (
     BuildResult,
     _pixel_direction,
@@ -36,6 +39,10 @@ from envsample.pipeline.workflow import (
     golden_vectors,
     write_vectors,
 )
+from envsample.qa.run import check_map
+from envsample.reports.pages import check_page
+from envsample.sampling.table import load_table
+from envsample.synth.skies import make_sky
 
 __all__ = ["DemoStep", "DemoContext", "DemoScene", "DEMO_SCENES", "demo_steps", "run_demo"]
 
@@ -102,8 +109,6 @@ class DemoStep:
 
 def _make_map_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.io.maps import write_map
-        from envsample.synth.skies import make_sky
 
         rgb = make_sky(scene.kind, width=ctx.width, **scene.options)
         path = write_map(ctx.path("maps", f"{scene.name}.exr"), rgb, pixel_type=scene.pixel_type)
@@ -127,8 +132,6 @@ def _build_step(scene: DemoScene) -> DemoStep:
 
 def _vectors_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.io.tables import table_paths
-        from envsample.sampling.table import load_table
 
         prefix = ctx.tables[scene.name].prefix
         table = load_table(prefix)  # vectors come from the table as a loader sees it on disk
@@ -151,8 +154,6 @@ DEMO_VERIFY_SEED = 7
 
 def _check_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.qa.run import check_map
-        from envsample.reports.pages import check_page
 
         info = ctx.scenes[scene.name]
         report = check_map(info["map"])
@@ -170,7 +171,6 @@ def _check_step(scene: DemoScene) -> DemoStep:
 
 def _verify_step(scene: DemoScene) -> DemoStep:
     def run(ctx: DemoContext) -> None:
-        from envsample.pipeline.verify import verify_map
 
         normals = (min(64, ctx.width // 2), min(32, ctx.width // 4))
         out = ctx.path("reports", scene.name, "verify")

@@ -103,19 +103,29 @@ def test_debug_shows_the_traceback(run, tmp_path, where):
     assert result.stderr.strip().splitlines()[-1].startswith("error: ")
 
 
-def test_unexpected_failure_is_reported_as_a_bug(run, tmp_path, monkeypatch):
-    """A non-user error gets exit status 3 and one line asking for --debug."""
-    import envsample.pipeline.workflow
+@pytest.fixture
+def failing_command():
+    """A command added to the group (click's public API) whose body fails as a bug would."""
+    import click
 
-    def broken(*args, **kwargs):
+    @click.command("fail-for-test")
+    def fail_for_test():
         raise RuntimeError("boom")
 
-    monkeypatch.setattr(envsample.pipeline.workflow, "build_from_file", broken)
-    result = run("build", _map(tmp_path / "m.exr", _gradient()), "-o", tmp_path / "t")
+    main.add_command(fail_for_test)
+    yield "fail-for-test"
+    main.commands.pop("fail-for-test")
+
+
+def test_unexpected_failure_is_reported_as_a_bug(run, failing_command):
+    """A non-user error gets exit status 3 and one line asking for --debug; --debug shows the traceback."""
+    result = run(failing_command)
     assert result.exit_code == EXIT_INTERNAL_ERROR
     assert result.stderr.strip() == (
         "error: internal error (RuntimeError: boom); this is a bug; rerun with --debug and report the traceback"
     )
+    debug = run(failing_command, "--debug")
+    assert debug.exit_code == EXIT_INTERNAL_ERROR and "Traceback" in debug.stderr and "RuntimeError: boom" in debug.stderr
 
 
 # --------------------------------------------------------------------------- bad input

@@ -1,4 +1,4 @@
-"""Tests of envsample.color and the luminance constants in envsample.constants.
+"""Tests of envsample.core.color: luminance of images under named primaries.
 
 External references used here:
 - colour-science (the ``colour`` package): ``colour.RGB_COLOURSPACES[name].matrix_RGB_to_XYZ``,
@@ -19,57 +19,14 @@ from __future__ import annotations
 import colour
 import numpy as np
 import pytest
+from support.colour_spaces import COLOUR_SPACES
 
 from envsample.core.color import PRIMARY_NAMES, canonical_primaries, luminance
 from envsample.core.constants import PRIMARIES, luminance_weights
 
-#: envsample primaries name -> colour-science colourspace name.
-COLOUR_SPACES = {
-    "bt709": "ITU-R BT.709",
-    "bt2020": "ITU-R BT.2020",
-    "acescg": "ACEScg",
-    "aces2065-1": "ACES2065-1",
-}
-
-#: colour-science computes the same normalised primary matrix in float64; only rounding differs.
-WEIGHT_RTOL = 1e-9
 #: luminance() works in float32 (images are float32): about 2**-24 relative per operation.
 FLOAT32_RTOL = 2e-6
 
-
-@pytest.mark.parametrize("name, space", sorted(COLOUR_SPACES.items()))
-def test_luminance_weights_match_colour_science(name, space):
-    """Y row of colour-science's RGB-to-XYZ matrix (colour.RGB_COLOURSPACES[space].matrix_RGB_to_XYZ[1])."""
-    expected = colour.RGB_COLOURSPACES[space].matrix_RGB_to_XYZ[1]
-    np.testing.assert_allclose(luminance_weights(name), expected, rtol=WEIGHT_RTOL, atol=1e-12)
-
-
-@pytest.mark.parametrize("name", sorted(COLOUR_SPACES))
-def test_luminance_weights_sum_to_one(name):
-    """SMPTE RP 177-1993: the white point (R = G = B = 1) has Y = 1."""
-    assert luminance_weights(name).sum() == pytest.approx(1.0, abs=1e-12)
-
-
-def test_bt709_uses_derived_row_not_rounded_srgb_row():
-    """We use the derived BT.709 row (colour-science "ITU-R BT.709": 0.212639, 0.715169, 0.072192),
-    not colour-science's rounded "sRGB" row (0.2126, 0.7152, 0.0722).  They agree when rounded to
-    four decimals but differ in the fourth decimal place (largest difference ~4e-5)."""
-    derived = colour.RGB_COLOURSPACES["ITU-R BT.709"].matrix_RGB_to_XYZ[1]
-    rounded = colour.RGB_COLOURSPACES["sRGB"].matrix_RGB_to_XYZ[1]
-    ours = luminance_weights("bt709")
-    np.testing.assert_allclose(ours, [0.212639, 0.715169, 0.072192], atol=5e-7)
-    np.testing.assert_allclose(rounded, [0.2126, 0.7152, 0.0722], atol=1e-12)
-    diff = np.abs(ours - rounded)
-    assert diff.max() < 5e-5  # same to four decimals ...
-    assert diff.max() > 1e-5  # ... but not the same numbers: the difference is in the fourth decimal
-    np.testing.assert_array_equal(np.round(ours, 4), rounded)
-    np.testing.assert_allclose(ours, derived, rtol=WEIGHT_RTOL)
-    # The "srgb" alias shares the BT.709 primaries, so it gets the derived row too.
-    np.testing.assert_array_equal(luminance_weights("srgb"), ours)
-    # The difference is visible in float32 luminance of a pure red pixel.
-    y_red = luminance(np.array([1.0, 0.0, 0.0], dtype=np.float32))
-    assert y_red == pytest.approx(derived[0], rel=FLOAT32_RTOL)
-    assert abs(float(y_red) - 0.2126) > 10 * np.finfo(np.float32).eps
 
 
 @pytest.mark.parametrize("name, space", sorted(COLOUR_SPACES.items()))
@@ -87,6 +44,7 @@ def test_luminance_of_images_matches_colour_rgb_to_xyz(name, space, rng):
     np.testing.assert_allclose(got, expected, rtol=FLOAT32_RTOL, atol=1e-6)
 
 
+
 def test_aces2065_negative_blue_weight_is_clamped_at_zero():
     """colour-science's ACES2065-1 Y row has a negative blue weight (about -0.0721): saturated blue
     would give negative luminance; envsample clamps it at zero (color.luminance docstring)."""
@@ -102,11 +60,13 @@ def test_aces2065_negative_blue_weight_is_clamped_at_zero():
     assert np.all(got >= 0)
 
 
+
 def test_max_and_mean_primaries(rng):
     """'max' and 'mean' weight by the largest channel and the channel mean (common practice)."""
     rgb = rng.random((5, 7, 3)).astype(np.float32)
     np.testing.assert_array_equal(luminance(rgb, "max"), rgb.max(axis=-1))
     np.testing.assert_allclose(luminance(rgb, "mean"), rgb.mean(axis=-1), rtol=FLOAT32_RTOL)
+
 
 
 def test_shapes_scalar_vector_grid(rng):
@@ -119,9 +79,11 @@ def test_shapes_scalar_vector_grid(rng):
         luminance(np.ones((4, 4)))
 
 
+
 def test_nan_is_not_hidden():
     """A NaN pixel stays NaN (it is rejected or repaired by map validation, not silently zeroed here)."""
     assert np.isnan(luminance(np.array([np.nan, 1.0, 1.0], dtype=np.float32)))
+
 
 
 @pytest.mark.parametrize("alias, canonical", [("sRGB", "bt709"), ("rec709", "bt709"), ("Rec2020", "bt2020"),
@@ -131,6 +93,7 @@ def test_aliases(alias, canonical):
     np.testing.assert_array_equal(luminance_weights(alias), luminance_weights(canonical))
 
 
+
 def test_unknown_primaries_error_lists_valid_names():
     with pytest.raises(ValueError, match=r"unknown primaries 'p3'; valid names: .*bt709.*aces2065-1.*max.*mean"):
         luminance(np.ones(3), "p3")
@@ -138,6 +101,7 @@ def test_unknown_primaries_error_lists_valid_names():
         luminance_weights("dci")
     with pytest.raises(ValueError, match="unknown primaries"):
         canonical_primaries("")
+
 
 
 def test_every_listed_name_works():

@@ -262,11 +262,6 @@ def test_to_local_and_to_world_are_inverse(rng):
     np.testing.assert_allclose(np.linalg.norm(loc, axis=1), np.linalg.norm(d, axis=1), rtol=1e-12)
 
 
-def test_public_names_exist():
-    for name in sphere.__all__:
-        assert hasattr(sphere, name), name
-
-
 @pytest.mark.parametrize("rotate", [0.0, 30.0, -135.0])
 def test_pixel_center_angles_agree_with_the_directions(rotate):
     """Degrees for reports read off the same convention as the directions (azimuth from phi, elevation 90 - theta)."""

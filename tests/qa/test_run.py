@@ -1,20 +1,7 @@
 """Tests of envsample.qa.run (check_map): whole reports on clean and broken maps, files, usage errors.
 
-Sources of the expected values (named again beside each test):
-- The traditional overcast sky L = Lz (1 + 2 cos theta) / 3 (Moon & Spencer 1942,
-  CIE standard overcast sky, CIE S 003/E:1996): horizontal irradiance 7 pi / 9 Lz
-  (closed form; cross-checked with scipy.integrate.quad).
-- A uniform sky L: irradiance pi L on any surface (textbook).
-- Moments of uniform-sphere sampling of the clamped cosine, E[max(0, cos)^k] = 1/(2(k+1))
-  (textbook), for the relative RMSE of table-only sampling of a uniform map.
-- The balance heuristic (Veach 1997, eq. 9.4 and section 9.2): in multi-sample MIS
-  with half the samples from the table, a sample term is at most twice the table-only
-  term L cos / p_table <= 2 integral(L).
-- IEEE 754 binary16: largest finite value 65504.  IEC 61966-2-1: the sRGB encoding.
-- The sun's mean angular diameter 0.533 deg (from memory; envsample.constants).
-
-Maps are 256x128 or smaller except where a resolved sun disk is needed.  The test
-profile lowers the resolution floor to these sizes; everything else is the default.
+The traditional overcast sky (1 + 2 cos theta) / 3 (CIE S 003/E:1996) and a sun of the mean 0.533 deg
+diameter (from memory) are the clean maps; a uniform sky is the furnace test (textbook).
 """
 
 from __future__ import annotations

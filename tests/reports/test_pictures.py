@@ -69,7 +69,7 @@ def test_tonemap_dtype_shape_range_with_bad_pixels():
     img[0, 2] = -5.0
     out = P.tonemap(img)
     assert out.dtype == np.uint8 and out.shape == (32, 64, 3)
-    assert out.min() >= 0 and out.max() <= 255
+    assert len(np.unique(out)) > 64  # a map spanning many stops keeps many levels, not a flat picture
     assert tuple(out[0, 0]) == (0, 0, 0)  # NaN shows black
     assert tuple(out[0, 2]) == (0, 0, 0)  # negative clamped
     assert out[0, 1].min() > 200  # +Inf is the brightest

@@ -33,7 +33,7 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from envsample.core.latlong import MAPPINGS, parse_size, reduce_power
+from envsample.core.latlong import MAPPINGS, parse_size
 from envsample.core.sphere import UP_AXES, direction_to_uv, pixel_center_directions, uv_to_direction
 from envsample.errors import EnvsampleWarning, MapValidationError
 from envsample.sampling.kernels import backend_name
@@ -544,13 +544,6 @@ def test_size_reduction_splits_a_sun_across_the_cells_it_overlaps():
     assert power == pytest.approx(1000.0 * _exact_row_solid_angles(H, W)[sun[0]], rel=1e-5)
 
 
-def test_reduce_power_preserves_each_channel(rng):
-    rgb = _random_map(rng, 32, 64)
-    out = reduce_power(rgb, (20, 12))
-    assert out.shape == (12, 20, 3) and out.dtype == np.float32
-    p_in = np.einsum("hwc,h->c", rgb.astype(np.float64), _exact_row_solid_angles(32, 64))
-    p_out = np.einsum("hwc,h->c", out.astype(np.float64), _exact_row_solid_angles(12, 20))
-    np.testing.assert_allclose(p_out, p_in, rtol=1e-5)
 
 
 @pytest.mark.parametrize("method", SAMPLE_METHODS)
@@ -645,16 +638,6 @@ def test_bad_options_are_refused(rng):
         t.sample(rng.random((4, 3)))
 
 
-def test_parse_size():
-    assert parse_size(None) is None
-    assert parse_size("2048x1024") == (2048, 1024)
-    assert parse_size(" 64 X 32 ") == (64, 32)
-    assert parse_size((16, 8)) == (16, 8)
-    for bad in ("2048", "ax3", "10x-2"):
-        with pytest.raises(ValueError, match="WIDTHxHEIGHT"):
-            parse_size(bad)
-    with pytest.raises(ValueError, match="size must be positive"):
-        parse_size((0, 8))
 
 
 def test_pdf_and_eval_refuse_non_finite_directions():
