@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import click
@@ -85,7 +84,10 @@ def _print_table_facts(f: dict) -> None:
         ("largest", f"p {num(big['probability'])} ({num(big['pdf_per_sr'])} /sr) at {direction_text(big)}"),
     ]
     if f.get("recommendation"):
-        rows.append(("advice", json.dumps(f["recommendation"])))
+        from envsample.validation.tuning import advice_text
+
+        for k, line in enumerate(advice_text(f["recommendation"])):
+            rows.append(("advice" if k == 0 else "", line))
     for k, note in enumerate(f["notes"]):
         rows.append(("note" if k == 0 else "", note))
     for k, item in enumerate(f["files"]):
