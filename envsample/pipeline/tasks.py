@@ -353,6 +353,8 @@ def _build_outputs(task: Mapping, work: Path, final: Path) -> tuple[dict, dict, 
             parts["verify"] = _make_verify(task, work)
         except Exception as e:
             raise EnvsampleError(f"verify failed ({error_line(e)})") from e
+        if all(v is None for v in parts["verify"].values()):
+            notes.append("verify: no light reaches any normal (a black map), nothing to rank")
     dropped = [n for n in (old or {}).get("outputs", {}) if n in OUTPUTS and n not in parts]
     for name in dropped:
         why = "the table changed or is gone" if name == "verify" else "its options or files changed"

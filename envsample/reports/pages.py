@@ -206,10 +206,13 @@ def check_page(reports, path, *, verify_dirs=None, title: str | None = None, ima
                                    maps=maps, caution=CAUTION))
 
 
-def verify_page(folder, path=None, *, metrics: Mapping | None = None, title: str | None = None) -> Path:
+def verify_page(folder, path=None, *, metrics: Mapping | None = None, title: str | None = None,
+                label=None) -> Path:
     """Write the page of a verify output folder (default ``FOLDER/report.html``); returns the path.
 
-    ``metrics`` is the content of ``metrics.json`` (read from the folder when None).
+    ``metrics`` is the content of ``metrics.json`` (read from the folder when None);
+    ``label`` is the folder name the page shows (default ``folder``; a report written
+    in a staging folder shows where it will be).
     """
     folder = Path(folder)
     if not folder.is_dir():
@@ -217,6 +220,8 @@ def verify_page(folder, path=None, *, metrics: Mapping | None = None, title: str
     path = folder / "report.html" if path is None else Path(path)
     check_folder(path)
     v = verify_context(folder, metrics=metrics)
+    if label is not None:
+        v["folder"] = str(label)
     src = (v["metrics"].get("source") or {}) if v["metrics"] else {}
     name = Path(src["path"]).name if src.get("path") else folder.name
     rec = ((v["metrics"] or {}).get("recommended") or {}).get("estimator")

@@ -16,6 +16,9 @@ from __future__ import annotations
 
 import json
 import math
+import os
+import shutil
+import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -46,12 +49,21 @@ _AXIS_NAMES = {(1, 0, 0): "+X", (-1, 0, 0): "\u2212X", (0, 1, 0): "+Y", (0, -1, 
                (0, 0, 1): "+Z", (0, 0, -1): "\u2212Z"}
 
 
+def _view_axes(up: str) -> tuple[str, str]:
+    """Names of the world axes the sphere camera looks along and holds up (``"\u2212Z"``, ``"+Y"``)."""
+    f, _, a = _frame(up)
+
+    def name(v):
+        return _AXIS_NAMES.get(tuple(int(round(x)) for x in np.asarray(v, dtype=float)), str(v))
+
+    return name(f), name(a)
+
+
 def sphere_view(up: str) -> str:
     """Where the camera of ``sphere.png`` looks, in words (:func:`envsample.validation.grid.sphere_normals`)."""
-    f, _, a = _frame(up)
-    name = lambda v: _AXIS_NAMES.get(tuple(int(round(x)) for x in np.asarray(v, dtype=float)), str(v))  # noqa: E731
-    return (f"orthographic camera looking along {name(f)} (the map's forward direction, the centre of the image "
-            f"at rotation 0) with {name(a)} up; the half of the sphere it sees is lit by the half of the map behind it")
+    forward, upward = _view_axes(up)
+    return (f"orthographic camera looking along {forward} (the map's forward direction, the centre of the image "
+            f"at rotation 0) with {upward} up; the half of the sphere it sees is lit by the half of the map behind it")
 
 
 def _sphere_picture(ref_grid, est_grid, grid_wh, table, size: int = 256) -> list[np.ndarray]:
@@ -150,17 +162,42 @@ def _glossy_picture(result, outdir: Path) -> str | None:
 def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> dict:
     """Write a :class:`~envsample.validation.render.ValidationResult` into ``outdir``; return ``metrics.json``'s content.
 
-    ``outdir`` is created if missing.  ``source`` describes where the table came from
-    (``metrics.json["source"]``).  ``sphere=False`` skips ``sphere.png``.
+    ``source`` describes where the table came from (``metrics.json["source"]``).
+    ``sphere=False`` skips ``sphere.png``.  Every file is first written into a staging
+    folder beside ``outdir``; only when all are written does the folder appear (one
+    rename) or, for a folder that exists, its files replace the old ones one by one with
+    ``metrics.json`` last.  A failure on the way leaves no new folder and the old files as
+    they were.
     """
     outdir = Path(outdir)
+    if outdir.exists() and not outdir.is_dir():
+        raise EnvsampleError(f"{outdir}: exists and is not a folder; choose another -o")
     try:
-        outdir.mkdir(parents=True, exist_ok=True)
+        outdir.parent.mkdir(parents=True, exist_ok=True)
+        stage = Path(tempfile.mkdtemp(prefix=f".{outdir.name[:60]}.", suffix=".tmp", dir=outdir.parent))
     except OSError as exc:
-        raise EnvsampleError(f"{outdir}: cannot create the output folder ({exc.strerror or exc}); choose another -o") from None
+        raise EnvsampleError(f"{outdir}: cannot create the output folder ({exc.strerror or exc}); "
+                             "choose another -o") from None
+    try:
+        doc = _write_files(result, stage, source=source, sphere=sphere, shown=outdir)
+        if outdir.exists():
+            for p in sorted(stage.iterdir(), key=lambda q: q.name == "metrics.json"):
+                os.replace(p, outdir / p.name)
+            _remove_stale_outputs(outdir, doc["files"])
+        else:
+            os.replace(stage, outdir)
+    finally:
+        shutil.rmtree(stage, ignore_errors=True)
+    return doc
+
+
+def _write_files(result, outdir: Path, *, source: dict, sphere: bool, shown: Path) -> dict:
+    """Every file of the report into ``outdir`` (a staging folder), metrics.json last."""
     table = result.table
     w, h = result.grid
     notes = list(result.notes)
+    if (source or {}).get("scale"):
+        notes.append(source["scale"]["why"])
     files = {"map": "map.png", "reference": "reference.exr", "estimates": {}}
     latlong_figure(thumbnail(table.image, width=min(1024, table.width)), path=outdir / "map.png",
                    rotation_deg=table.rotation_deg,
@@ -180,11 +217,11 @@ def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> di
     best = result.recommended["estimator"]
     if sphere and best is not None:
         ref_pic, est_pic = _sphere_picture(result.reference, result.estimates[best], result.grid, table)
-        up_name = {"y": "+Y", "z": "+Z"}.get(table.up, table.up)
+        forward, up = _view_axes(table.up)
         image_panels([("exact reference", ref_pic), (f"{best}, {result.spp} spp", est_pic)],
                      path=outdir / "sphere.png",
-                     title=f"white diffuse sphere lit by the map (one exposure); camera looks along the map's "
-                           f"forward axis, {up_name} up")
+                     title=f"white diffuse sphere lit by the map (one exposure); camera looks along {forward}, "
+                           f"{up} up")
         files["sphere"] = "sphere.png"
     glossy = _glossy_picture(result, outdir)
     if glossy:
@@ -193,7 +230,6 @@ def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> di
     doc = result.metrics(source=source, files=files)
     doc["notes"] = notes
     doc["sphere_view"] = sphere_view(table.up)
-    verify_page(outdir, metrics=doc)
+    verify_page(outdir, metrics=doc, label=shown)
     atomic_write_text(outdir / "metrics.json", json.dumps(doc, indent=2, allow_nan=False) + "\n")
-    _remove_stale_outputs(outdir, files)
     return doc

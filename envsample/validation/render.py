@@ -179,6 +179,7 @@ class ValidationResult:
             "caution": CAUTION,
             "tool_version": __version__,
             "source": source,
+            "scale": (source or {}).get("scale"),
             "table": _table_info(self.table),
             "seed": self.seed,
             "random_streams": "numpy SeedSequence(seed, spawn_key=(purpose, crc32(estimator name), index))",
