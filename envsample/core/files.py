@@ -4,6 +4,9 @@ A file is written to a temporary name in its target folder and renamed into plac
 with :func:`os.replace`, so readers see either the old file or the complete new
 one, never a half-written one.  ``mkstemp`` creates 0600 files; the result gets
 the permissions of the file it replaces, else those a plain ``open()`` would give.
+The temporary name holds at most the first :data:`TEMP_NAME_CHARS` characters of the
+target's name, so a target whose own name is near the file system's limit (255 bytes on
+most) can still be written; an OS error names the target, never the temporary file.
 """
 
 from __future__ import annotations
@@ -13,7 +16,15 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode", "temporary_path"]
+__all__ = ["TEMP_NAME_CHARS", "atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode",
+           "temporary_path"]
+
+#: Characters of the target's name kept in a temporary name (".NAME." + 8 random + ".tmp").
+TEMP_NAME_CHARS = 100
+
+
+def _prefix(name: str) -> str:
+    return f".{name[:TEMP_NAME_CHARS]}."
 
 
 def file_mode(path) -> int:
@@ -35,7 +46,7 @@ def file_mode(path) -> int:
 def temporary_path(path, *, suffix: str = ".tmp") -> str:
     """Create and return an empty temporary file beside ``path`` (the caller renames or removes it)."""
     p = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=suffix, dir=p.parent)
+    fd, tmp = tempfile.mkstemp(prefix=_prefix(p.name), suffix=suffix, dir=p.parent)
     os.close(fd)
     return tmp
 
@@ -50,7 +61,10 @@ def atomic_write(path, write, *, fsync: bool = True) -> Path:
     if not path.parent.exists():
         raise FileNotFoundError(f"{path.parent}: output folder does not exist; create it first")
     mode = file_mode(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=_prefix(path.name), suffix=".tmp", dir=path.parent)
+    except OSError as e:
+        raise _naming(e, path) from e
     try:
         with os.fdopen(fd, "wb") as f:
             write(f)
@@ -59,11 +73,22 @@ def atomic_write(path, write, *, fsync: bool = True) -> Path:
                 os.fsync(f.fileno())
         os.chmod(tmp, mode)
         os.replace(tmp, path)
+    except OSError as e:
+        with contextlib.suppress(FileNotFoundError):
+            os.unlink(tmp)
+        raise _naming(e, path) from e
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
     return path
+
+
+def _naming(error: OSError, path: Path) -> OSError:
+    """The same OS error with the target as its file name (a full disk names the file being written)."""
+    if error.errno is None:
+        return error
+    return type(error)(error.errno, error.strerror, os.fspath(path))
 
 
 def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:

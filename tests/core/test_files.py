@@ -48,3 +48,26 @@ def test_a_new_file_gets_what_the_umask_gives(tmp_path):
 def test_a_missing_folder_is_named(tmp_path):
     with pytest.raises(FileNotFoundError, match="output folder does not exist"):
         atomic_write_text(tmp_path / "no" / "t.txt", "x")
+
+
+def test_a_target_name_near_the_length_limit_can_be_written(tmp_path):
+    # issue 12 item 11: NAME_MAX is 255 bytes on common file systems (POSIX pathconf; ext4, tmpfs); the
+    # temporary name ".NAME.XXXXXXXX.tmp" must not exceed it when NAME itself is 250 characters.
+    target = tmp_path / ("m" * 246 + ".exr")
+    atomic_write_bytes(target, b"data")
+    assert target.read_bytes() == b"data"
+    assert sorted(p.name for p in tmp_path.iterdir()) == [target.name]
+
+
+def test_an_os_error_names_the_target_not_the_temporary_file(tmp_path):
+    import errno
+
+    target = tmp_path / "table.npz"
+
+    def disk_full(f):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    with pytest.raises(OSError) as info:
+        atomic_write(target, disk_full)
+    assert info.value.errno == errno.ENOSPC and info.value.filename == os.fspath(target)
+    assert ".tmp" not in str(info.value)
