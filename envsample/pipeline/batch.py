@@ -111,6 +111,7 @@ from envsample.pipeline.outcomes import (
 from envsample.pipeline.runners import import_distributed, make_runner
 from envsample.pipeline.summary import write_summaries
 from envsample.pipeline.tasks import (
+    ADDITIVE,
     MAPS_FOLDER,
     THUMB_WIDTH,
     VERIFY_SETTINGS,
@@ -342,11 +343,13 @@ def _digest(doc: dict) -> str:
 def output_keys(opts: dict, profile, version: str) -> tuple[dict, dict]:
     """The options document and key of each output (check, table, verify): what shapes it."""
     common = {"layout": _LAYOUT_VERSION, "tool_version": version}
+    # raw and tune only add to a table (tasks.ADDITIVE): they are not part of its key, so a table
+    # made with them serves a run without them; a verify is tied to the very table.json it checked.
     docs = {"check": {**common, "profile": profile.to_dict()["settings"], "thumb_width": THUMB_WIDTH},
-            "table": {**common, "build": opts}}
+            "table": {**common, "build": {k: v for k, v in opts.items() if k not in ADDITIVE}},
+            "verify": {**common, "verify": dict(VERIFY_SETTINGS)}}
     keys = {name: _digest(doc) for name, doc in docs.items()}
-    docs["verify"] = {**common, "verify": dict(VERIFY_SETTINGS), "table_key": keys["table"]}
-    keys["verify"] = _digest(docs["verify"])
+    docs["table"]["asked"] = {k: opts[k] for k in ADDITIVE}
     return docs, keys
 
 
@@ -608,7 +611,8 @@ def _plan(paths: list[Path], refused: dict, run: _Run) -> _Plan:
         used[name.casefold()] = i
         names[i] = name
         row = None if run.force else up_to_date(run.out / MAPS_FOLDER / name, sha, run.keys, run.version,
-                                                 verify=run.verify, build_failed=run.build_failed)
+                                                 verify=run.verify, build_failed=run.build_failed,
+                                                 options=run.options)
         if row is not None:
             results[i] = result_from_row({**row, "source": display, "duplicate_of": None}, status="skipped")
         else:

@@ -268,12 +268,32 @@ def _make_check(task: Mapping, source: _Map, work: Path) -> dict:
     return row
 
 
-def _make_table(task: Mapping, source: _Map, work: Path) -> tuple[dict, bool]:
-    """table.json/.npz (.bin); the row part, and whether a table was written."""
+#: Table options that only add to a table (a .bin file, the tuned advice): a table made with them
+#: also serves a run that does not ask for them, so a rerun without them keeps them.
+ADDITIVE = ("raw", "tune")
+
+
+def _extras(out: Mapping | None) -> dict:
+    ex = (out or {}).get("extras") or {}
+    return {k: bool(ex.get(k)) for k in ADDITIVE}
+
+
+def table_serves(out: Mapping | None, options: Mapping) -> bool:
+    """Whether a recorded table output has every additive part the options ask for."""
+    ex = _extras(out)
+    return all(ex[k] or not options[k] for k in ADDITIVE)
+
+
+def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping) -> tuple[dict, bool]:
+    """table.json/.npz (.bin); the row part, and whether a table was written.
+
+    ``extras`` are the additive parts an earlier table had: they are made again, so a
+    rebuild does not lose what a rerun did not ask for.
+    """
     from envsample.io.maps import validate_map
     from envsample.sampling.table import build_table
 
-    o = task["options"]
+    o = {**task["options"], **{k: bool(task["options"][k] or extras.get(k)) for k in ADDITIVE}}
     image = source.image()
     # The notes of validation and of the build say what the warnings would say; a batch
     # records them in the row instead of printing them once per map.
@@ -336,17 +356,21 @@ def _build_outputs(task: Mapping, work: Path, final: Path) -> tuple[dict, dict, 
         parts["check"] = _make_check(task, source, work)
     verdict = parts["check"].get("verdict")
     wanted = verdict in ("pass", "warn") or (verdict == "fail" and task["build_failed"])
+    recorded_table = (old or {}).get("outputs", {}).get("table")
+    old_table = recorded_table if "table" in reuse else None
     has_table = False
-    if "table" in reuse:
+    if old_table is not None and table_serves(old_table, task["options"]):
         keep("table")
         has_table = True
         if not wanted:
             notes.append("table kept from an earlier run with build_failed")
-    elif wanted:
-        parts["table"], has_table = _make_table(task, source, work)
+    elif wanted or old_table is not None:
+        parts["table"], has_table = _make_table(task, source, work, _extras(recorded_table))
     elif verdict == "fail":
         parts["table"] = {"table_note": NOT_BUILT_NOTE}
-    if has_table and "verify" in reuse:
+    table_sha = regular_file_sha256(work / "table.json") if has_table else None
+    old_verify = (old or {}).get("outputs", {}).get("verify") if "verify" in reuse else None
+    if has_table and old_verify is not None and old_verify.get("table_sha256") == table_sha:
         keep("verify")
     elif has_table and task["verify"]:
         try:
@@ -387,6 +411,11 @@ def process_map(task: Mapping) -> dict:
             outputs[name] = {"key": made.get(name), "files": out_files, "row": parts[name]}
             if name == "table" and not out_files:
                 outputs[name]["reason"] = "qa" if parts[name].get("table_note") == NOT_BUILT_NOTE else "build"
+            elif name == "table":
+                outputs[name]["extras"] = {"raw": "table.bin" in out_files,
+                                           "tune": bool(parts[name].get("tuned"))}
+            elif name == "verify":
+                outputs[name]["table_sha256"] = (files.get("table.json") or {}).get("sha256")
         row = {}
         for name in OUTPUTS:
             row.update(parts.get(name, {}))
@@ -431,7 +460,7 @@ def error_row(task: Mapping, message: str) -> dict:
 
 
 def up_to_date(folder: Path, sha256: str, keys: Mapping, version: str, *, verify: bool,
-               build_failed: bool) -> dict | None:
+               build_failed: bool, options: Mapping) -> dict | None:
     """The stored summary row if ``folder`` holds every output this run asks for, with the same
     options keys and files whose SHA-256 still match the manifest; else None.
 
@@ -449,9 +478,11 @@ def up_to_date(folder: Path, sha256: str, keys: Mapping, version: str, *, verify
     table = outputs.get("table") or {}
     # A table that could not be built (validation refused the pixels) is up to date as a note.
     refused = table.get("key") == keys.get("table") and table.get("reason") == "build"
-    if wants_table and "table" not in good and not refused:
+    if wants_table and not refused and ("table" not in good or not table_serves(table, options)):
         return None
-    if verify and "table" in good and "verify" not in good:
-        return None
+    if verify and "table" in good:
+        table_sha = (table.get("files") or {}).get("table.json", {}).get("sha256")
+        if "verify" not in good or outputs["verify"].get("table_sha256") != table_sha:
+            return None
     row = doc.get("row")
     return dict(row) if isinstance(row, dict) else None

@@ -522,3 +522,53 @@ def test_verify_figures_match_the_closed_form_variance_of_a_constant_sky(tmp_pat
     plain = run_batch([lib], out, workers=0)
     assert plain.maps[0].status == "skipped" and plain.maps[0].figures["verify_rmse_table"] == m.figures["verify_rmse_table"]
     assert tree_hashes(folder) == before
+
+
+# --------------------------------------------------------------------------- stale folders, links
+
+
+def test_a_changed_source_leaves_a_stale_folder_that_prune_removes(tmp_path):
+    """issue 10: a fixed source's old folder is listed (kept), and --prune removes it and gone sources' folders."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "a.exr", make_sky("overcast", width=WIDTH))
+    write_map(lib / "b.exr", make_sky("uniform", width=WIDTH))
+    out = tmp_path / "out"
+    first = by_source(run_batch([lib], out, workers=0))
+    old_a, old_b = first["a.exr"].folder, first["b.exr"].folder
+    write_map(lib / "a.exr", make_sky("overcast", width=WIDTH, zenith_luminance=3.0))  # "fixed": new bytes
+    (lib / "b.exr").unlink()
+    second = run_batch([lib], out, workers=0)
+    stale = {s["folder"]: s for s in second.stale}
+    assert stale[old_a]["reason"] == "source changed" and stale[old_b]["reason"] == "source gone"
+    assert not any(s["pruned"] for s in second.stale) and (out / old_a).is_dir() and (out / old_b).is_dir()
+    summary = json.loads((out / "summary.json").read_text())
+    assert {s["folder"] for s in summary["stale"]} == {old_a, old_b}
+    assert "source changed" in (out / "index.html").read_text()
+    pruned = run_batch([lib], out, workers=0, prune=True)
+    assert {s["folder"]: s["pruned"] for s in pruned.stale} == {old_a: True, old_b: True}
+    assert not (out / old_a).exists() and not (out / old_b).exists()
+    assert (out / pruned.maps[0].folder).is_dir()
+    assert run_batch([lib], out, workers=0).stale == []
+
+
+def test_links_that_leave_the_source_folder_are_refused_unless_asked(tmp_path):
+    """issue 12 item 11: a link to a file elsewhere is refused without naming its target."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    elsewhere = tmp_path / "private"
+    elsewhere.mkdir()
+    write_map(lib / "inside.exr", make_sky("overcast", width=WIDTH))
+    write_map(elsewhere / "secret.exr", make_sky("uniform", width=WIDTH))
+    (lib / "outside.exr").symlink_to(elsewhere / "secret.exr")
+    (lib / "alias.exr").symlink_to(lib / "inside.exr")  # inside the tree: the same file, counted once
+    found = expand_sources([lib])
+    assert len(found) == 1 and found[0].resolve() == (lib / "inside.exr").resolve()
+    out = tmp_path / "out"
+    rows = by_source(run_batch([lib], out, workers=0))
+    refused = rows["outside.exr"]
+    assert refused.verdict == "error" and "outside the source folder" in refused.error
+    assert "private" not in refused.error and "secret" not in refused.error
+    assert "secret" not in (out / "summary.csv").read_text()
+    rows = by_source(run_batch([lib], out, workers=0, follow_links=True))
+    assert rows["outside.exr"].verdict in ("pass", "warn")
