@@ -324,7 +324,10 @@ def _make_verify(task: Mapping, work: Path) -> dict:
     from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
 
     s = VERIFY_SETTINGS
-    doc = verify_map(work / "table", work / "verify", spp=s["spp"], normals=tuple(s["normals"]),
+    from envsample.sampling.table import load_table
+
+    # The table object, not its staging path, so metrics.json names the map it came from.
+    doc = verify_map(load_table(work / "table"), work / "verify", spp=s["spp"], normals=tuple(s["normals"]),
                      estimators=tuple(s["estimators"]), seed=map_seed(task["sha256"]), sphere=s["sphere"])
     est = doc.get("estimators", {})
 

@@ -321,7 +321,7 @@ def clip_settings(rep: dict) -> tuple[float | None, float]:
     if c.get("severity") != "fail" or level is None:
         return None, 0.0
     try:
-        tol = float(_profile(rep).settings("clipping")["plateau_relative_tolerance"])
+        tol = float(_profile(rep).section("clipping")["plateau_relative_tolerance"])
     except (KeyError, TypeError, ValueError, EnvsampleError):
         tol = 0.0
     return level, tol

@@ -220,10 +220,12 @@ def verify_page(folder, path=None, *, metrics: Mapping | None = None, title: str
     path = folder / "report.html" if path is None else Path(path)
     check_folder(path)
     v = verify_context(folder, metrics=metrics)
-    if label is not None:
-        v["folder"] = str(label)
     src = (v["metrics"].get("source") or {}) if v["metrics"] else {}
-    name = Path(src["path"]).name if src.get("path") else folder.name
+    table_source = src.get("table_source") if isinstance(src.get("table_source"), Mapping) else {}
+    origin = (table_source.get("path") or src.get("path")) if src.get("kind") == "table" else src.get("path")
+    # The page names the map it checks (a batch writes the report in a staging folder first).
+    v["folder"] = str(origin) if origin else str(label if label is not None else folder)
+    name = Path(origin).name if origin else Path(label if label is not None else folder).name
     rec = ((v["metrics"] or {}).get("recommended") or {}).get("estimator")
     summary = (f"recommended estimator: {rec}" if rec else "no estimator recommended (see the notes)")
     return write_page(path, render("verify.html", title=title or f"envsample verify: {name}", v=v,

@@ -464,6 +464,7 @@ def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path,
     ``xscale="linear"`` draws a linear x axis (no guide line); ``note`` is printed
     under the axes.
     """
+    import matplotlib.ticker
     from matplotlib import rc_context
     from matplotlib.figure import Figure
 
@@ -510,8 +511,9 @@ def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path,
                     linewidth=1.0, label=r"$N^{-1/2}$ reference")
         ax.set_xscale(xscale)
         ax.set_yscale("log")
-        if xscale == "linear":
-            ax.set_xticks(x)
+        # Ticks at the counts drawn, written as plain numbers.
+        ax.set_xticks(x, [f"{v:g}" for v in x])
+        ax.xaxis.set_minor_locator(matplotlib.ticker.NullLocator())
         ax.set_xlabel(xlabel)
         ax.set_ylabel(ylabel)
         ax.grid(True, which="major", color="#e2e2e2", linewidth=0.7)
@@ -520,7 +522,8 @@ def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path,
         if title:
             ax.set_title(title)
         if note:
-            fig.text(0.01, 0.005, note, fontsize=7.0, color="#404040", ha="left", va="bottom", wrap=True)
+            # A figure-level label below the axes: the constrained layout makes room for it.
+            fig.supxlabel(note, fontsize=7.0, color="#404040", wrap=True)
         return _save_figure(fig, path)
 
 

@@ -90,8 +90,9 @@ def _error_pictures(outdir: Path, panels: list, rotation_deg: float) -> list[str
     label = "relative error |E - E_ref| / mean(E_ref)"
     files = []
     count = -(-len(panels) // PANELS_PER_PICTURE)
+    per = -(-len(panels) // max(count, 1))  # spread evenly: 5 panels as 3 + 2, not 4 + 1
     for k in range(count):
-        chunk = panels[k * PANELS_PER_PICTURE:(k + 1) * PANELS_PER_PICTURE]
+        chunk = panels[k * per:(k + 1) * per]
         name = f"errors_{k + 1}.png"
         title = (f"irradiance error per normal (luminance); colour scale clipped at the 99th percentile, {vmax:.3g}"
                  + (f"; picture {k + 1} of {count}, one scale" if count > 1 else ""))

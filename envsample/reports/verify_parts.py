@@ -36,8 +36,12 @@ def _figure(folder: Path, name: str, caption: str, alt: str) -> dict:
 def _convergence_caption(conv: Mapping) -> str:
     text = "relative RMSE against samples per normal (log-log), shaded \u00b1 one standard error"
     if conv.get("normals") and conv.get("grid"):
-        text += (f"; the ladder runs on {conv['normals'][0]}\u00d7{conv['normals'][1]} of the render's "
-                 f"{conv['grid'][0]}\u00d7{conv['grid'][1]} normals, stars mark the table's figures on all normals")
+        if list(conv["normals"]) != list(conv["grid"]):
+            text += (f"; the ladder runs on {conv['normals'][0]}\u00d7{conv['normals'][1]} of the render's "
+                     f"{conv['grid'][0]}\u00d7{conv['grid'][1]} normals")
+        else:
+            text += "; the ladder runs on the render's own normals with fresh samples"
+        text += ", stars mark the table's figures (all normals, the render's samples)"
     if conv.get("left_out"):
         text += "; not drawn (see the table): " + ", ".join(conv["left_out"])
     return text + "."

@@ -500,3 +500,51 @@ def test_cli_check_writes_the_page(maps, tmp_path):
     assert_self_contained(p, raw)
     assert_images_valid(p)
     assert "clean.exr" in p.all_text and CAUTION in p.all_text
+
+
+# --------------------------------------------------------------------------- pictures that show the numbers
+
+
+def test_the_pdf_map_rings_the_sun_like_the_thumbnail(maps):
+    """issue 10: the sun was a near-invisible dot on the pdf map.  The ringed panel of the page's pdf
+    (before the figure scales it) has the sun ring centred where make_sky put the sun, and the page's
+    pdf picture carries the ring colour."""
+    from envsample.reports.map_parts import _emitters, _rings, pdf_values
+    from envsample.reports.pictures import ringed_panel
+
+    rgb = make_sky("sun", width=WIDTH, elevation_deg=SUN_EL, azimuth_deg=SUN_AZ)
+    pdf = pdf_values(rgb, "bt709")
+    rings = _rings(_emitters(maps["r_clean"].to_dict()), 512)
+    pic = ringed_panel(pdf, rings, vmin=float(pdf[pdf > 0].min()), vmax=float(pdf.max()), log=True, cmap="viridis")
+    ring = np.all(pic == SUN_RING_RGB, axis=-1)
+    rows, cols = np.nonzero(ring)
+    h, w = pic.shape[:2]
+    x_sun, y_sun = (0.5 + SUN_AZ / 360.0) * w, (90.0 - SUN_EL) / 180.0 * h
+    pixel = w / WIDTH
+    assert ring.sum() > 20
+    assert abs((cols + 0.5).mean() - x_sun) < pixel and abs((rows + 0.5).mean() - y_sun) < pixel
+    p, _ = parse(check_page(maps["r_clean"], maps["folder"] / "pdf-ring.html"))
+    _, shown = decode_png(next(a for a in p.imgs if a["alt"].startswith("sampling pdf"))["src"])
+    assert np.all(shown[..., :3] == SUN_RING_RGB, axis=-1).sum() > 20
+
+
+def test_the_range_overlay_marks_a_clipped_sun_and_not_a_clean_one(tmp_path):
+    """issue 10: a clipped and a clean sun looked identical.  The overlay paints the plateau the
+    clipping check failed on in the 'clipped' colour, at the sun (support.qa_maps.clipped_sun, sun at
+    azimuth 40, elevation 35), and nothing on the same sky unclipped."""
+    from support.qa_maps import SUN_AZ as AZ, SUN_EL as EL, W, clipped_sun, sunny
+
+    from envsample.reports.pictures import RANGE_COLORS
+
+    for img, expect in ((clipped_sun(), True), (sunny(), False)):
+        report = check_map(img)
+        p, raw = parse(check_page(report, tmp_path / "o.html", images=[img]))
+        _, pic = decode_png(next(a for a in p.imgs if a["alt"].startswith("range overlay"))["src"])
+        mask = np.all(pic[..., :3] == RANGE_COLORS["clipped"], axis=-1)
+        assert mask.any() == expect == (report["clipping"].severity == "fail")
+        assert "clipped:" in p.all_text and "over range:" in p.all_text  # the legend
+        if expect:
+            rows, cols = np.nonzero(mask)
+            scale = pic.shape[1] / W
+            assert abs((cols + 0.5).mean() / pic.shape[1] - (0.5 + AZ / 360.0)) < 2 * scale / pic.shape[1] + 0.01
+            assert abs((rows + 0.5).mean() / pic.shape[0] - (90.0 - EL) / 180.0) < 0.02
