@@ -421,7 +421,7 @@ _SCRIPT = textwrap.dedent(
 def test_killing_a_batch_midway_leaves_no_partial_output_and_a_rerun_completes(tmp_path, sig):
     lib = tmp_path / "many"
     lib.mkdir()
-    n_maps = 24
+    n_maps = 12
     for i in range(n_maps):
         write_map(lib / f"m{i:02d}.exr", make_sky("sun", width=WIDTH, azimuth_deg=float(12 * i - 150)))
     out = tmp_path / "out"
