@@ -590,7 +590,7 @@ def _plan(paths: list[Path], refused: dict, run: _Run) -> _Plan:
     names: list = [None] * n
     hashes = [h for h, _ in hashed]
     dup_of: list = [None] * n
-    todo, aliases, owner_of, by_sha, used = [], {}, {}, {}, {}
+    todo, aliases, owner_of, by_sha, used, owners = [], {}, {}, {}, {}, []
     for i, (p, (sha, err)) in enumerate(zip(paths, hashed)):
         display = os.fspath(p)
         if err is not None:
@@ -610,11 +610,11 @@ def _plan(paths: list[Path], refused: dict, run: _Run) -> _Plan:
             name = _map_name(p, sha, width=64)  # same stem and a clash of 8 hex digits
         used[name.casefold()] = i
         names[i] = name
-        row = None if run.force else up_to_date(run.out / MAPS_FOLDER / name, sha, run.keys, run.version,
-                                                 verify=run.verify, build_failed=run.build_failed,
-                                                 options=run.options)
+        owners.append(i)
+    for i, row in zip(owners, _stored_rows(run, [names[i] for i in owners], [hashes[i] for i in owners])):
         if row is not None:
-            results[i] = result_from_row({**row, "source": display, "duplicate_of": None}, status="skipped")
+            results[i] = result_from_row({**row, "source": os.fspath(paths[i]), "duplicate_of": None},
+                                         status="skipped")
         else:
             todo.append(i)
     for owner, members in aliases.items():
@@ -630,6 +630,23 @@ def _plan(paths: list[Path], refused: dict, run: _Run) -> _Plan:
     duplicates = [{"sha256": s, "sources": d} for s, d in by_sha.items() if len(d) > 1]
     stale = _stale_folders(run, {nm for nm in names if nm})
     return _Plan(results, names, hashes, todo, aliases, dup_of, duplicates, stale)
+
+
+def _stored_rows(run: _Run, names: list, hashes: list) -> list:
+    """The stored row of each folder that is up to date (None where it must be redone).
+
+    Checking means hashing every output file; SHA-256 releases the GIL, so threads overlap the folders.
+    """
+    if run.force or not names:
+        return [None] * len(names)
+
+    def one(item):
+        name, sha = item
+        return up_to_date(run.out / MAPS_FOLDER / name, sha, run.keys, run.version, verify=run.verify,
+                          build_failed=run.build_failed, options=run.options)
+
+    with ThreadPoolExecutor(max_workers=min(4, len(names))) as pool:
+        return list(pool.map(one, zip(names, hashes)))
 
 
 def _stale_folders(run: _Run, claimed: set) -> list[dict]:
