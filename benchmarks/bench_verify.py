@@ -61,16 +61,22 @@ def tune_stability(seeds: int = 6) -> None:
     for kind in ("sun", "studio"):
         table = build_table(skies.make_sky(kind, width=256))
         for spp in (16, 64):
-            picks, margins = [], []
+            picks, margins, ratios, rel_se = [], [], [], []
             t0 = time.perf_counter()
             for seed in range(seeds):
                 r = tune_one_sample(table, spp=spp, seed=seed)
                 picks.append((r["heuristic"], r["table_fraction"]))
                 margins.append(r["margin_sigmas"])
+                ratios.append(r["variance_ratio"])
+                won = next(p for p in r["pilot"] if (p["heuristic"], p["table_fraction"]) == picks[-1])
+                rel_se.append(won["variance_vs_default_se"] / won["variance_vs_default"])
             per = (time.perf_counter() - t0) / seeds
             common, count = Counter(picks).most_common(1)[0]
             print(f"{kind:7s} pilot {spp:3d} spp: {seeds - count} of {seeds} seeds differ from {common}; "
                   f"margins {', '.join(f'{m:.2g}' for m in margins)} SE; {per:.2f} s per tuning")
+            print(f"        re-measured variance ratio {min(ratios):.3f}..{max(ratios):.3f} "
+                  f"(spread {max(ratios) / min(ratios) - 1:.1%}); the winner's pilot standard error "
+                  f"{np.mean(rel_se):.1%} of its value")
             print(f"        choices: {picks}")
 
 
