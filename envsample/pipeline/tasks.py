@@ -254,7 +254,12 @@ def _make_check(task: Mapping, source: _Map, work: Path) -> dict:
 
     image = source.image()
     # An unreadable file still gets its QA report (a failing "read" check) so the reviewer sees why.
-    report = check_map(source.path if image is None else image, profile=task["profile"])
+    try:
+        report = check_map(source.path if image is None else image, profile=task["profile"])
+    except (ArithmeticError, TypeError, ValueError) as e:
+        top = float(np.nanmax(image.rgb)) if image is not None and image.rgb.size else float("nan")
+        raise EnvsampleError(f"{source.path}: the QA checks could not run on this map ({error_line(e)}; its "
+                             f"largest value is {top:.3g}); this is a bug of envsample, please report it") from e
     dump_json(work / "check.json", report.to_dict())
     row = _report_figures(report)
     if image is None or not report.readable:
