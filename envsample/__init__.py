@@ -30,6 +30,7 @@ _EXPORTS = {
     "validate_map": "io.maps",
     "supported_extensions": "io.maps",
     "MapWriteError": "errors",
+    "SunSplitError": "errors",
     # sphere
     "uv_to_direction": "core.sphere",
     "direction_to_uv": "core.sphere",
@@ -58,6 +59,16 @@ _EXPORTS = {
     "rooftop_scene": "synth.skies",
     "studio_scene": "synth.skies",
     "sun_direction": "synth.skies",
+    # the sun as its own light
+    "SunLight": "sampling.sun",
+    "find_sun": "lights.finder",
+    "SunEstimate": "lights.finder",
+    "split_sun": "lights.split",
+    "SunSplit": "lights.split",
+    "reference_split_irradiance": "reference.sun",
+    "clear_sky": "core.clearsky",
+    "split_map_file": "pipeline.split",
+    "load_sun": "pipeline.split",
     # pictures
     "tonemap": "reports.pictures",
     "thumbnail": "reports.pictures",
@@ -84,9 +95,9 @@ _EXPORTS = {
     # reference and verify
     "reference_irradiance": "reference.irradiance",
     "reference_accuracy": "reference.irradiance",
-    "reference_glossy": "reference.irradiance",
-    "sh9_project": "reference.irradiance",
-    "sh9_irradiance": "reference.irradiance",
+    "reference_glossy": "reference.glossy",
+    "sh9_project": "reference.sh9",
+    "sh9_irradiance": "reference.sh9",
     "verify_map": "pipeline.verify",
     "tune_one_sample": "validation.tuning",
     "recommend": "validation.tuning",

@@ -13,6 +13,7 @@ __all__ = [
     "MapValidationError",
     "TableFormatError",
     "MapWriteError",
+    "SunSplitError",
     "EnvsampleWarning",
 ]
 
@@ -42,3 +43,7 @@ class TableFormatError(EnvsampleError):
 
 class EnvsampleWarning(UserWarning):
     """Suspicious but legal input (an all-black map, clamped negative pixels, a map that looks upside down)."""
+
+
+class SunSplitError(EnvsampleError, ValueError):
+    """A map's sun cannot be split off: none was found, or restoring it lacks what it needs."""

@@ -12,6 +12,7 @@ from envsample.cli import (  # noqa: F401 - importing a command module registers
     demo_cmd,
     inspect_cmd,
     sky_cmd,
+    split_cmd,
     vectors_cmd,
     verify_cmd,
 )

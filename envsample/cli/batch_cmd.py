@@ -21,6 +21,8 @@ from envsample.qa.profile import load_profile
 @click.option("--workers", type=click.IntRange(0, None), default=None,
               help="Worker processes (default: the cores available; 0 runs in this process).")
 @click.option("--verify", is_flag=True, help="Also run a small validation render per map.")
+@click.option("--split-sun", is_flag=True, help="Also split the sun off every map whose sun holds the sampling "
+              "check's analytic_light_share of the light (envsample split, into maps/NAME/split/).")
 @click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
@@ -37,8 +39,8 @@ from envsample.qa.profile import load_profile
 @click.option("--prune", is_flag=True, help="Remove map folders whose source is gone or has changed.")
 @click.option("--follow-links", is_flag=True,
               help="Accept symbolic links in source folders that lead outside them (refused by default).")
-def batch(sources, outdir, workers, verify, force, scheduler, profile_path, strict, size, primaries, mapping,
-          uniform_mix, up, rotation_deg, compensate, tune, raw, repair, allow_aspect, build_failed, prune,
+def batch(sources, outdir, workers, verify, split_sun, force, scheduler, profile_path, strict, size, primaries,
+          mapping, uniform_mix, up, rotation_deg, compensate, tune, raw, repair, allow_aspect, build_failed, prune,
           follow_links):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
@@ -67,7 +69,7 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
 
     try:
         with bar:
-            result = run_batch(list(sources), outdir, workers=workers, verify=verify, force=force,
+            result = run_batch(list(sources), outdir, workers=workers, verify=verify, split_sun=split_sun, force=force,
                                scheduler=scheduler, options=options, profile=profile, build_failed=build_failed,
                                prune=prune, follow_links=follow_links, progress=progress)
     except BatchInterrupted as e:
@@ -92,7 +94,24 @@ def batch(sources, outdir, workers, verify, force, scheduler, profile_path, stri
             "source gone", "source changed") else "")
         click.echo(f"stale: {st['folder']}  {st['reason']}" + (f": {st['source']}" if st["source"] else "")
                    + f"; {what}")
+    line = _reference_line(result.maps)
+    if line:
+        click.echo(line)
     if result.summary:
         names = ", ".join(Path(p).name for p in result.summary.values())
         click.echo(f"wrote {outdir}/ ({names})")
     return result.exit_code(strict=strict)
+
+
+def _reference_line(maps) -> str | None:
+    """One line on the exact references of ``--verify``: their largest error bound and their time."""
+    bounds = [m.figures["verify_reference_bound"] for m in maps
+              if isinstance(m.figures.get("verify_reference_bound"), (int, float))]
+    if not bounds:
+        return None
+    secs = [m.figures["verify_reference_seconds"] for m in maps
+            if isinstance(m.figures.get("verify_reference_seconds"), (int, float))]
+    timing = f"; {sum(secs):.1f} s in all, at most {max(secs):.2f} s for one map" if secs else ""
+    return (f"verify reference: exact irradiance on {len(bounds)} maps at their table size, relative error bound "
+            f"<= {max(bounds):.1e}{timing}")
+

@@ -72,6 +72,16 @@ def _print_demo(s: dict) -> None:
         click.echo(f"{m['name']:<{widths[0]}}  {m['description']}")
     for v in s["vectors"]:
         click.echo(f"golden vectors: {v['path']} ({v['count']}, seed {v['seed']})")
+    for name, sp in s.get("extra", {}).get("split", {}).items():
+        if "note" in sp:
+            click.echo(f"split {name}: {sp['note']}")
+            continue
+        sun = sp["sun"]
+        agree = "agrees with" if sp["consistent"] else "DISAGREES with"
+        click.echo(f"split {name}: sun at {sun['azimuth_deg']:.1f}, {sun['elevation_deg']:.1f} deg "
+                   f"({100 * sun['share']:.0f} % of the light) -> {sp['folder']}; sky + sun {agree} the map, "
+                   f"rel. RMSE {sp['relative_rmse_split']:.3g} (sun-mis-balance) vs {sp['relative_rmse_unsplit_table']:.3g}"
+                   " (table, unsplit) at equal samples")
     if checks or verified:
         click.echo(f"reports: {s['outdir']}/reports/<map>/check.html and verify/metrics.json")
     first = next((m for m in s["maps"] if "table_files" in m), None)

@@ -66,7 +66,9 @@ def _print_report(source, outdir, m: dict) -> None:
     rows = [
         ("verify", f"{source}  (table {tab['cells'][0]}x{tab['cells'][1]}, {tab['mapping']})"),
         ("normals", f"{m['normals']['width']}x{m['normals']['height']} x {m['spp']} spp, seed {m['seed']}"),
-        ("reference", f"exact, relative error bound {ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s)"),
+        ("reference", f"exact at {ref['resolution'][0]}x{ref['resolution'][1]}, relative error bound "
+                      f"{ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s, its accuracy check "
+                      f"{ref['accuracy_seconds']:.1f} s; {ref['backend']} kernel)"),
     ]
     if m.get("scale"):
         rows.append(("scale", m["scale"]["why"]))
@@ -86,6 +88,8 @@ def _print_report(source, outdir, m: dict) -> None:
         click.echo(f"{name:<20} {_fmt(e.get('relative_rmse'), '.4g', 9)}  {bias:>17}  "
                    f"{_fmt(e.get('firefly_index'), '.3g', 8)}  {_fmt(e['time_per_sample_s'] * 1e9, '.0f', 9)}  "
                    f"{_fmt(e.get('efficiency'), '.3g', 10)}{mark}")
+    if m.get("split"):
+        _print_split(m["split"])
     click.echo("")
     if rec["estimator"] is None:
         rows = [("recommended", "none: " + rec["rule"] + " (no light reaches any normal)")]
@@ -104,3 +108,20 @@ def _print_report(source, outdir, m: dict) -> None:
                           f"{len(list(Path(outdir).glob('*.png')))} PNG files)"))
     print_rows(rows)
     click.echo(f"({m['caution']})")
+
+
+def _print_split(doc: dict) -> None:
+    """The split against its original map, side by side at equal samples (split.json)."""
+    click.echo("")
+    if not doc.get("compared"):
+        click.echo(f"split      {doc.get('reason')}")
+        return
+    verdict = "agrees" if doc["consistent"] else "DISAGREES"
+    click.echo(f"split      sky + sun {verdict} with {doc['original']} within the Monte Carlo error "
+               f"(references differ by {doc['reference_difference']:+.1e} of the mean); "
+               f"{doc['normals'][0]}x{doc['normals'][1]} normals x {doc['spp']} spp")
+    click.echo(f"{'scene':<8} {'estimator':<24} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}")
+    for e in doc["estimators"].values():
+        bias = f"{e['mean_bias']:+.3f} +- {e['mean_bias_se']:.3f}"
+        click.echo(f"{e['scene']:<8} {e['estimator']:<24} {e['relative_rmse']:>9.4g}  {bias:>17}  "
+                   f"{e['firefly_index']:>8.3g}")

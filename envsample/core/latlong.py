@@ -1,4 +1,4 @@
-"""Lat-long grids: sizes, in-cell mappings, power-preserving reduction, fast per-row sums.
+"""Lat-long grids: sizes, in-cell mappings, power-preserving reduction, fast per-row sums, weighted quantiles.
 
 An equirectangular grid of ``H`` rows and ``W`` columns follows :mod:`envsample.core.sphere`
 (row 0 at the zenith, pixel (i, j) of solid angle ``(cos theta_i - cos theta_{i+1}) * 2*pi / W``
@@ -12,11 +12,14 @@ References
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from envsample.core.sphere import row_cos_edges, row_solid_angles
 
-__all__ = ["MAPPINGS", "parse_size", "reduce_power", "block_mean", "row_channel_sums"]
+__all__ = ["MAPPINGS", "parse_size", "reduce_power", "block_mean", "row_channel_sums", "row_cosine_weights",
+           "RowWeightedSample"]
 
 #: In-cell mappings a sampling table can use: ``equal-area`` (cos theta uniform within a
 #: cell's row band, constant pdf per steradian) or ``uv-linear`` (v uniform within the row).
@@ -132,3 +135,53 @@ def block_mean(values: np.ndarray, factor: int, *, valid: np.ndarray | None = No
     count = ok.sum(axis=(1, 3))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(count > 0, total / np.maximum(count, 1), np.nan)
+
+
+def row_cosine_weights(height: int, width: int) -> np.ndarray:
+    """Integral of cos(theta) over one pixel of each row above the horizon, sr (H,): pi/W (sin^2 b - sin^2 a).
+
+    Rows below the horizon weigh 0; ``row sums @ weights`` is the irradiance of an up-facing
+    surface (textbook calculus: the cos-weighted solid angle of a latitude band).
+    """
+    edges = np.minimum(np.pi * np.arange(height + 1) / height, math.pi / 2.0)
+    s2 = np.sin(edges) ** 2
+    return (math.pi / width) * np.diff(s2)
+
+
+class RowWeightedSample:
+    """Exact quantiles of a non-negative (H, W) image whose pixels weigh their row's solid angle.
+
+    For non-negative floats the float32 bit pattern is monotone in the value, so the
+    top 16 bits split the pixels into 65536 ordered buckets.  One weighted histogram
+    of those buckets (O(n)) locates the bucket that holds a quantile; only that
+    bucket's pixels are then sorted.  Exact, and several times faster than sorting
+    every pixel of a multi-megapixel map.
+    """
+
+    def __init__(self, values: np.ndarray, row_weights: np.ndarray):
+        v = np.ascontiguousarray(np.where(values > 0, values, 0), dtype=np.float32)  # also turns -0.0 into 0.0
+        self._bits = v.view(np.uint32)
+        self._bucket = (self._bits >> np.uint32(16)).astype(np.int32)
+        self._row_weights = np.asarray(row_weights, dtype=np.float64)
+        weights = np.repeat(self._row_weights, v.shape[1]) if v.ndim == 2 else self._row_weights
+        hist = np.bincount(self._bucket.ravel(), weights=weights, minlength=1 << 16)
+        self._cumulative = np.cumsum(hist)
+        self.size = v.size
+
+    def quantile(self, q: float) -> float:
+        """The smallest value whose weighted CDF reaches ``q`` in [0, 1]."""
+        total = self._cumulative[-1] if self.size else 0.0
+        if not total > 0:
+            return 0.0
+        target = q * total
+        b = int(np.searchsorted(self._cumulative, target, side="left"))
+        b = min(b, self._cumulative.size - 1)
+        below = float(self._cumulative[b - 1]) if b > 0 else 0.0
+        rows, cols = np.nonzero(self._bucket == b)
+        if rows.size == 0:  # only reachable through rounding at the very top: the largest value
+            return float(self._bits.max().view(np.float32))
+        bits = self._bits[rows, cols]
+        order = np.argsort(bits, kind="stable")
+        cum = below + np.cumsum(self._row_weights[rows[order]])
+        k = int(np.searchsorted(cum, target, side="left"))
+        return float(bits[order[min(k, order.size - 1)]].view(np.float32))

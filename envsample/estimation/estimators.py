@@ -18,6 +18,11 @@ direction convention):
 * glossy outgoing radiance ``L_o(n, wo) = integral of L(w) f(w, wo) max(0, n.w) dw`` for
   the GGX reflection of :class:`envsample.strategies.GGXReflection` (F = 1).
 
+The radiance ``L`` is the table's map (``table.eval``) plus any analytic lights passed
+as ``sun=`` (:class:`envsample.sampling.sun.SunLight`: a split scene is the sky's table
+plus the sun).  The ``sun-*`` estimators combine three strategies, the sun (uniform over
+its disk), the sky table and the BSDF, with multi-sample or one-sample MIS.
+
 Named estimators are listed by :func:`estimators`.  Each normal gets ``spp`` samples;
 the uniforms come from ``numpy.random.default_rng(seed)`` drawn normal by normal in
 a fixed order, so results are reproducible bit for bit and do not depend on how the
@@ -49,18 +54,19 @@ from envsample.estimation.heuristics import heuristic_name, mis_weights, sample_
 from envsample.sampling.frames import Frame, make_frame
 from envsample.sampling.ggx import GGXReflection
 from envsample.sampling.strategies import CosineHemisphere, TableStrategy, UniformHemisphere, UniformSphere
+from envsample.sampling.sun import SunLight
 
 __all__ = [
     "Combination",
-    "Integrand",
     "EstimatorSamples",
-    "firefly_index",
-    "estimators",
-    "estimator_name",
+    "Integrand",
     "RENAMED_ESTIMATORS",
-    "estimate_irradiance",
-    "estimate_glossy",
+    "estimator_name",
     "estimate",
+    "estimate_glossy",
+    "estimate_irradiance",
+    "estimators",
+    "firefly_index",
 ]
 
 #: Samples per processing chunk (normals x spp); bounds memory to tens of MB.
@@ -94,6 +100,7 @@ def _build_registry() -> dict[str, _Spec]:
     for model, prefix in (("multi", "mis"), ("one-sample", "one-sample")):
         for h, short in pairs:
             reg[f"{prefix}-{short}"] = _Spec(model, ("table", "bsdf"), h)
+            reg[f"sun-{prefix}-{short}"] = _Spec(model, ("sun", "table", "bsdf"), h)
     return reg
 
 
@@ -113,29 +120,35 @@ def estimator_name(name: str) -> str:
     return new
 
 
-def estimators(kind: str | None = None) -> tuple[str, ...]:
+def estimators(kind: str | None = None, *, sun: bool = False) -> tuple[str, ...]:
     """Names of the estimators; ``kind`` = "irradiance" or "glossy" keeps those valid for it.
 
     ``bsdf`` samples the "BSDF" of the integrand: the clamped cosine (cosine density)
     for irradiance, GGX visible normals for glossy.  ``mis-*`` combine the table and
     the BSDF strategy with multi-sample MIS, ``one-sample-*`` with one-sample MIS;
     ``fractions`` sets the share of table samples (or the table's selection probability).
+    ``sun-mis-*`` and ``sun-one-sample-*`` add the sun's disk as a third strategy (they
+    need ``sun=``); their ``fractions`` are (sun, table, bsdf) shares.  They are listed
+    only with ``sun=True`` (a scene with an analytic sun).
     """
     if kind not in (None, "irradiance", "glossy"):
         raise ValueError(f"unknown integrand kind {kind!r}; valid names: irradiance, glossy")
-    return tuple(n for n, s in _ESTIMATORS.items() if not (s.glossy_only and kind == "irradiance"))
+    return tuple(n for n, s in _ESTIMATORS.items()
+                 if not (s.glossy_only and kind == "irradiance") and (sun or "sun" not in s.roles))
 
 
 def _spec(name: str, kind: str) -> _Spec:
     spec = _ESTIMATORS.get(name)
     if spec is None or (spec.glossy_only and kind == "irradiance"):
-        raise ValueError(f"unknown {kind} estimator {name!r}; valid names: {', '.join(estimators(kind))}")
+        raise ValueError(f"unknown {kind} estimator {name!r}; valid names: {', '.join(estimators(kind, sun=True))}")
     return spec
 
 
-def _strategy_for(role: str, kind: str, table, table_method: str):
+def _strategy_for(role: str, kind: str, table, table_method: str, sun=None):
     if role == "table":
         return TableStrategy(table, method=table_method)
+    if role == "sun":
+        return sun
     if role == "bsdf":
         role = "ggx" if kind == "glossy" else "cosine"
     return {"cosine": CosineHemisphere, "uniform-hemisphere": UniformHemisphere,
@@ -293,12 +306,13 @@ class Combination:
         """Uniform numbers per sample: two for the direction, one more to choose the strategy (one-sample MIS)."""
         return 3 if self.kind == "one-sample" else 2
 
-    def weight_and_radiance(self, i: int, d, p_own, frame, table, shares):
-        """MIS weight of strategy ``i`` for its samples ``d``, and the map radiance there.
+    def weight_and_radiance(self, i: int, d, p_own, frame, f: Integrand, shares):
+        """MIS weight of strategy ``i`` for its samples ``d``, and the scene's radiance there.
 
-        The table's pdf and the radiance share one direction-to-(u, v) conversion
+        The table's pdf and the map radiance share one direction-to-(u, v) conversion
         (:meth:`EnvTable.lookup`) when the table is one of the other strategies.
         """
+        table = f.table
         rad = None
         pdfs = []
         for k, other in enumerate(self.strategies):
@@ -309,23 +323,31 @@ class Combination:
                 pdfs.append(np.asarray(p, dtype=np.float64))
             else:
                 pdfs.append(other.pdf(d, frame))
-        if rad is None:
-            rad = table.eval(d)
         w = mis_weights(np.stack(pdfs), shares, method=self.heuristic, **self.params)[i]
-        return w, np.asarray(rad, dtype=np.float64)
+        return w, f.radiance(d, rad)
 
 
 @dataclass(frozen=True)
 class Integrand:
-    """``L(w) factor(w)`` at a shading frame: the map (``table.eval``) times a non-negative factor.
+    """``L(w) factor(w)`` at a shading frame: the scene's radiance times a non-negative factor.
 
-    ``factor(directions, frame) -> (M,)`` is ``max(0, n.w)`` for irradiance, ``f max(0, n.w)``
-    for a BSDF; ``primaries`` name the luminance of the per-sample contributions.
+    The radiance is the map (``table.eval``) plus each of ``lights`` (objects with
+    ``eval(directions) -> (M, 3)``, e.g. a :class:`SunLight`).  ``factor(directions, frame)
+    -> (M,)`` is ``max(0, n.w)`` for irradiance, ``f max(0, n.w)`` for a BSDF; ``primaries``
+    name the luminance of the per-sample contributions.
     """
 
     table: object
     factor: object
     primaries: str
+    lights: tuple = ()
+
+    def radiance(self, d, map_radiance=None) -> np.ndarray:
+        """RGB radiance (M, 3) float64 in directions ``d``; ``map_radiance`` is the map's if already looked up."""
+        rad = np.array(self.table.eval(d) if map_radiance is None else map_radiance, dtype=np.float64)
+        for light in self.lights:
+            rad += light.eval(d)
+        return rad
 
 
 @dataclass
@@ -349,7 +371,7 @@ def _multi_chunk(combo: Combination, f: Integrand, frame, u, tally: _Tally):
     for i, (s, n) in enumerate(zip(combo.strategies, combo.counts)):
         fr = frame.repeat(n)
         d, p_own = s.sample(u[:, start:start + n, :2].reshape(-1, 2), fr)
-        w, rad = combo.weight_and_radiance(i, d, p_own, fr, f.table, combo.counts)
+        w, rad = combo.weight_and_radiance(i, d, p_own, fr, f, combo.counts)
         scale = _safe_ratio(w * f.factor(d, fr), p_own) * (spp / n)
         est += (scale[:, None] * rad).reshape(m, n, 3).sum(axis=1)
         if tally.contributions is not None:
@@ -371,7 +393,7 @@ def _one_sample_chunk(combo: Combination, f: Integrand, frame, u, tally: _Tally)
             continue
         fr = fr_all.take(idx)
         d, p_own = s.sample(flat_u[idx, :2], fr)
-        w, rad[idx] = combo.weight_and_radiance(i, d, p_own, fr, f.table, combo.fractions)
+        w, rad[idx] = combo.weight_and_radiance(i, d, p_own, fr, f, combo.fractions)
         scale[idx] = _safe_ratio(w * f.factor(d, fr), combo.fractions[i] * p_own)
     tally.record((m, spp), scale, rad, f.primaries, sel)
     return (scale[:, None] * rad).reshape(m, spp, 3).mean(axis=1)
@@ -382,7 +404,7 @@ def _single_chunk(combo: Combination, f: Integrand, frame, u, tally: _Tally):
     fr = frame.repeat(spp)
     d, p = combo.strategies[0].sample(u.reshape(-1, 2), fr)
     scale = _safe_ratio(f.factor(d, fr), p)
-    rad = np.asarray(f.table.eval(d), dtype=np.float64)
+    rad = f.radiance(d)
     tally.record((m, spp), scale, rad, f.primaries)
     return (scale[:, None] * rad).reshape(m, spp, 3).mean(axis=1)
 
@@ -392,11 +414,12 @@ _CHUNKS = {"single": _single_chunk, "multi": _multi_chunk, "one-sample": _one_sa
 
 def estimate(table, frame: Frame, factor, strategies, *, kind: str = "single", fractions=None, spp: int,
              seed=None, heuristic: str = "balance", params: dict | None = None, name: str = "custom",
-             return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
+             return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES, lights=()):
     """Generic Monte Carlo estimate of ``integral of L(w) factor(w) dw`` at every frame.
 
     ``factor(directions, frame) -> (M,)`` is the non-negative part of the integrand
-    besides the map radiance (``max(0, n.w)`` for irradiance).  ``strategies`` is a
+    besides the radiance (``max(0, n.w)`` for irradiance); the radiance is ``table.eval``
+    plus each of ``lights`` (``eval(directions) -> (M, 3)``).  ``strategies`` is a
     sequence of strategy objects; ``kind`` "single" (exactly one strategy), "multi"
     (multi-sample MIS with ``sample_counts(spp, fractions)`` samples each) or
     "one-sample" (selection probabilities ``fractions``); see :class:`Combination`.
@@ -408,7 +431,7 @@ def estimate(table, frame: Frame, factor, strategies, *, kind: str = "single", f
     """
     spp = _check_spp(spp)
     combo = Combination.make(strategies, kind=kind, spp=spp, fractions=fractions, heuristic=heuristic, params=params)
-    f = Integrand(table, factor, getattr(table, "primaries", "bt709"))
+    f = Integrand(table, factor, getattr(table, "primaries", "bt709"), tuple(lights))
     n = len(frame)
     rng = np.random.default_rng(seed)
     out = np.zeros((n, 3))
@@ -461,21 +484,35 @@ def _heuristic_params(spec: _Spec, beta: float, cutoff: float) -> dict:
     return {}
 
 
+def _check_sun(sun, spec: _Spec, estimator: str):
+    if sun is None:
+        if "sun" in spec.roles:
+            raise ValueError(f"estimator {estimator!r} samples the sun: pass sun=<SunLight> (e.g. from split_sun)")
+        return ()
+    if not (callable(getattr(sun, "eval", None)) and callable(getattr(sun, "sample", None))
+            and callable(getattr(sun, "pdf", None))):
+        raise ValueError("sun must be a SunLight (eval, sample and pdf methods); build one with SunLight.from_angles")
+    return (sun,)
+
+
 def _run(kind, table, frame, factor, estimator, spp, seed, fractions, table_method, beta, cutoff,
-         return_samples, max_chunk_samples):
+         return_samples, max_chunk_samples, sun=None):
     _check_table(table)
     estimator = estimator_name(estimator)
     spec = _spec(estimator, kind)
-    strategies = [_strategy_for(r, kind, table, table_method) for r in spec.roles]
+    lights = _check_sun(sun, spec, estimator)
+    strategies = [_strategy_for(r, kind, table, table_method, sun) for r in spec.roles]
     return estimate(table, frame, factor, strategies, kind=spec.kind, fractions=fractions, spp=spp, seed=seed,
                     heuristic=spec.heuristic or "balance", params=_heuristic_params(spec, beta, cutoff),
-                    name=estimator, return_samples=return_samples, max_chunk_samples=max_chunk_samples)
+                    name=estimator, return_samples=return_samples, max_chunk_samples=max_chunk_samples,
+                    lights=lights)
 
 
 @renamed_keywords(alpha="cutoff")
 def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: int = 64, seed=0,
                         fractions=None, table_method: str = "alias", beta: float = 2.0, cutoff: float = 0.1,
-                        return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
+                        return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES,
+                        sun: SunLight | None = None):
     """Monte Carlo irradiance E(n) = integral of L(w) max(0, n.w) dw for each unit normal.
 
     Parameters
@@ -501,6 +538,10 @@ def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: 
         of the largest weighted density (default 0.1; formerly ``alpha``).
     return_samples : bool
         Also return :class:`EstimatorSamples` (per-sample luminance contributions).
+    sun : SunLight, optional
+        An analytic sun lighting the scene beside the table's map (the radiance is
+        ``table.eval + sun.eval``); the ``sun-*`` estimators also sample it.  Their
+        ``fractions`` are (sun, table, bsdf) shares, default a third each.
 
     Returns
     -------
@@ -509,22 +550,23 @@ def estimate_irradiance(table, normals, *, estimator: str = "mis-balance", spp: 
     """
     frame = make_frame(normals)
     return _run("irradiance", table, frame, _cosine_factor, estimator, spp, seed, fractions, table_method,
-                beta, cutoff, return_samples, max_chunk_samples)
+                beta, cutoff, return_samples, max_chunk_samples, sun)
 
 
 @renamed_keywords(alpha="cutoff")
 def estimate_glossy(table, normals, wo, roughness, *, estimator: str = "mis-balance", spp: int = 64, seed=0,
                     fractions=None, table_method: str = "alias", beta: float = 2.0, cutoff: float = 0.1,
-                    return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES):
-    """Monte Carlo outgoing radiance of a GGX reflector lit by the map, per shading point.
+                    return_samples: bool = False, max_chunk_samples: int = DEFAULT_CHUNK_SAMPLES,
+                    sun: SunLight | None = None):
+    """Monte Carlo outgoing radiance of a GGX reflector lit by the map (and ``sun``), per shading point.
 
     ``L_o = integral of L(wi) f(wi, wo) max(0, n.wi) dwi`` with the GGX BSDF of
     :class:`envsample.strategies.GGXReflection` (F = 1, height-correlated G2).
     ``wo`` (N, 3) or (3,) are unit view directions pointing away from the surface;
     ``roughness`` is GGX alpha, scalar or (N,).  Other parameters as
-    :func:`estimate_irradiance`; the "bsdf" strategy is GGX visible-normal sampling.
+    :func:`estimate_irradiance` (``sun=`` included); the "bsdf" strategy is GGX visible-normal sampling.
     Returns float64 (N, 3) in map units (radiance).
     """
     frame = make_frame(normals, wo, roughness)
     return _run("glossy", table, frame, _glossy_factor, estimator, spp, seed, fractions, table_method,
-                beta, cutoff, return_samples, max_chunk_samples)
+                beta, cutoff, return_samples, max_chunk_samples, sun)

@@ -136,6 +136,9 @@ def save_table(table, prefix, *, raw: bool = False) -> list[Path]:
     }
     if "recommendation" in meta:
         doc["recommendation"] = meta["recommendation"]
+    if meta.get("lights"):
+        # Analytic lights that go with this table (a split map's sun): a renderer loads both.
+        doc["lights"] = meta["lights"]
 
     def write_npz(f):
         np.savez(f, **arrays)
@@ -216,6 +219,8 @@ class StoredTable:
             metadata["valid_only_inside_mis"] = True
         if "recommendation" in doc:
             metadata["recommendation"] = doc["recommendation"]
+        if doc.get("lights"):
+            metadata["lights"] = doc["lights"]
         return metadata
 
 

@@ -413,6 +413,7 @@ def run_batch(
     *,
     workers: int | None = None,
     verify: bool = False,
+    split_sun: bool = False,
     force: bool = False,
     scheduler=None,
     options: Mapping | None = None,
@@ -441,6 +442,13 @@ def run_batch(
         Also run the validation render (:func:`envsample.pipeline.verify.verify_map`) at
         :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.  Without it, verify
         results of an earlier run are kept (while the table they describe is unchanged).
+    split_sun : bool
+        Also split the sun off every map whose sun holds at least the profile's
+        ``[sampling] analytic_light_share`` of the light (the share from which the check
+        advises it): ``maps/NAME/split/`` holds ``map.sky.exr``, ``map.sun.json`` and the
+        sky's table (:func:`envsample.pipeline.split.write_split`); the row's ``split_note`` says
+        why not.  Like ``raw`` and ``tune`` it only adds to the table output, so a rerun without
+        it keeps the split.
     force : bool
         Redo maps whose outputs are up to date.
     scheduler : str or dask.distributed.Client, optional
@@ -482,12 +490,23 @@ def run_batch(
         A missing source, no maps found, OUTDIR not a folder or locked by another
         batch, or dask missing.  ValueError / ProfileError: bad options.
     """
+    n_workers = _check_workers(workers)
+    paths, refused, run = _prepare(sources, outdir, options=options, profile=profile, follow_links=follow_links,
+                                   scheduler=scheduler, flags={"verify": verify, "split_sun": split_sun,
+                                                               "build_failed": build_failed, "force": force,
+                                                               "prune": prune})
+    with _locked(run.out):
+        return _run_locked(paths, refused, run, runner=make_runner(scheduler, n_workers), progress=progress,
+                           task=task)
+
+
+def _prepare(sources, outdir, *, options, profile, follow_links, scheduler, flags) -> tuple:
+    """Check everything a batch is given, find its sources, make OUTDIR; (paths, refused, _Run)."""
     from envsample._version import __version__
     from envsample.qa.profile import load_profile
 
     opts = normalize_options(options)
     prof = load_profile(profile)
-    n_workers = _check_workers(workers)
     out = Path(outdir)
     if out.exists() and not out.is_dir():
         raise EnvsampleError(f"{out}: exists and is not a folder; choose an output folder")
@@ -499,12 +518,13 @@ def run_batch(
         import_distributed()
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
+    # split_sun adds to a map's table output like raw and tune (tasks.ADDITIVE): not part of its key.
+    opts = {**opts, "split_sun": bool(flags["split_sun"])}
     docs, keys = output_keys(opts, prof, __version__)
-    run = _Run(out=out, key_docs=docs, keys=keys, profile=prof, version=__version__, verify=bool(verify),
-               build_failed=bool(build_failed), force=bool(force), prune=bool(prune), options=opts)
-    with _locked(out):
-        return _run_locked(paths, refused, run, runner=make_runner(scheduler, n_workers), progress=progress,
-                           task=task)
+    run = _Run(out=out, key_docs=docs, keys=keys, profile=prof, version=__version__, verify=bool(flags["verify"]),
+               build_failed=bool(flags["build_failed"]), force=bool(flags["force"]), prune=bool(flags["prune"]),
+               options=opts)
+    return paths, refused, run
 
 
 def _run_locked(paths, refused: dict, run: _Run, *, runner, progress, task) -> BatchResult:

@@ -159,6 +159,8 @@ ROW_FIELDS = (
     "verify_rmse_table",
     "verify_rmse_mis",
     "verify_rmse_tuned",
+    "verify_reference_bound",
+    "split_note",
     "note",
 )
 

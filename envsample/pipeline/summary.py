@@ -120,6 +120,10 @@ def index_rows(result: BatchResult, rows: list[dict]) -> list[dict]:
             notes.append(row["table_note"])
         if row.get("tuned"):
             notes.append(f"tuned: {row['tuned']}")
+        if row.get("verify_reference_bound") is not None:
+            notes.append(f"verify: exact reference within {row['verify_reference_bound']:.1e}")
+        if row.get("split_note"):
+            notes.append(row["split_note"])
         if row.get("duplicate_of"):
             notes.append(f"same bytes as {row['duplicate_of']} (its folder serves both)")
         if row.get("note"):

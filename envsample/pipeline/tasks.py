@@ -42,7 +42,7 @@ import numpy as np
 
 from envsample.core.schema import Schema
 from envsample.core.text import caution, one_line
-from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError
+from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, SunSplitError
 from envsample.pipeline.outcomes import ROW_FIELDS
 
 #: Name and version of each map folder's ``manifest.json`` (3: one options key and file list per output).
@@ -51,7 +51,11 @@ MANIFEST_SCHEMA = Schema("envsample.batch-map", 3)
 #: Thumbnail width in pixels (the index page shows them at this size).
 THUMB_WIDTH = 128
 
-#: Settings of the optional verification (small on purpose: a batch is a screening pass).
+#: Settings of the optional verification (small on purpose: a batch is a screening pass).  The
+#: reference is the same exact irradiance as ``envsample verify`` and runs on the table's own map
+#: (the source at full resolution, or ``--size``), the cells the estimators sample, so it is exact
+#: for what they integrate; with the compiled kernel its cost is about one pass over the map
+#: (its row sums) plus 32x16 normals x (H + W) boundary elements, well under a second at 8192x4096.
 VERIFY_SETTINGS = {
     "spp": 32,
     "normals": [32, 16],
@@ -69,8 +73,9 @@ OUTPUT_FIELDS = {
     "check": ("verdict", "error", "width", "height", "format", "pixel_type", "failed_checks", "warned_checks",
               "dynamic_range", "sun_azimuth_deg", "sun_elevation_deg", "sun_share", "irradiance_up",
               "sampling_relative_rmse", "peak_sample_share"),
-    "table": ("luminance_integral", "table_width", "table_height", "table_note", "tuned"),
-    "verify": ("verify_rmse_table", "verify_rmse_mis", "verify_rmse_tuned"),
+    "table": ("luminance_integral", "table_width", "table_height", "table_note", "tuned", "split_note"),
+    "verify": ("verify_rmse_table", "verify_rmse_mis", "verify_rmse_tuned", "verify_reference_bound",
+               "verify_reference_seconds"),
 }
 
 #: The row note of a map that failed QA and got no table.
@@ -142,8 +147,8 @@ def output_of(rel: str) -> str | None:
         return None
     if rel.startswith("verify/"):
         return "verify"
-    if rel.startswith("table."):
-        return "table"
+    if rel.startswith(("table.", "split/")):
+        return "table"  # the split of the sun (split_sun) is made with the table, from the same pixels
     return "check"
 
 
@@ -275,7 +280,7 @@ def _make_check(task: Mapping, source: _Map, work: Path) -> dict:
 
 #: Table options that only add to a table (a .bin file, the tuned advice): a table made with them
 #: also serves a run that does not ask for them, so a rerun without them keeps them.
-ADDITIVE = ("raw", "tune")
+ADDITIVE = ("raw", "tune", "split_sun")
 
 
 def _extras(out: Mapping | None) -> dict:
@@ -321,11 +326,45 @@ def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping) -> tup
     row = {"luminance_integral": float(table.integrals["luminance"]), "table_width": table.table_width,
            "table_height": table.table_height, "table_note": "; ".join(notes) or None,
            "tuned": None if not rec else f"{rec['estimator']} at table fraction {rec['table_fraction']:g}"}
+    if o["split_sun"]:
+        row.update(_split(clean, work / "split", {**task, "options": o}))
     return row, True
 
 
+def _split(image, folder: Path, task: Mapping) -> dict:
+    """``split/``: the sky, sun and sky table of a map whose sun holds the sampling check's share; else a note.
+
+    The threshold is the profile's ``[sampling] analytic_light_share`` (the share from which
+    the check advises an analytic sun); the sun is the shared finder's.
+    """
+    from envsample.lights.split import split_sun
+    from envsample.pipeline.split import write_split
+
+    share = float(task["profile"].section("sampling")["analytic_light_share"])
+    o = task["options"]
+    try:
+        sp = split_sun(image.rgb, primaries=o["primaries"], up=o["up"], rotation_deg=o["rotation_deg"])
+    except SunSplitError:
+        return {"split_note": "no sun-like emitter: not split"}
+    if sp.found.share < share:
+        return {"split_note": f"sun holds {sp.found.share:.1%} of the light, under {share:.0%}: not split"}
+    folder.mkdir()
+    write_split(sp, folder, "map", source={"map": task["display"], "sha256": task["sha256"]}, size=o["size"])
+    return {"split_note": f"split: sun {sp.found.share:.1%} of the light"
+                          + (", core clipped" if sp.found.clipped else "")}
+
+
+
+
 def _make_verify(task: Mapping, work: Path) -> dict:
-    """verify/ from the table in ``work``; the row part (figures that depend on the seed alone)."""
+    """verify/ from the table in ``work``; the row part.
+
+    The summary fields depend on the map and the seed alone: the relative RMSEs and the
+    reference's relative error bound.  The reference's seconds (``verify_reference_seconds``)
+    go to the manifest's row and the command's output, not to the summaries (a timing;
+    verify's recommended estimator ranks by measured efficiency, which includes timings,
+    so it is left in ``verify/metrics.json``).
+    """
     from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
 
     s = VERIFY_SETTINGS
@@ -340,8 +379,10 @@ def _make_verify(task: Mapping, work: Path) -> dict:
         v = est.get(name, {}).get("relative_rmse")
         return float(v) if isinstance(v, (int, float)) and math.isfinite(v) else None
 
+    ref = doc.get("reference", {})
     return {"verify_rmse_table": rmse("table"), "verify_rmse_mis": rmse("mis-balance"),
-            "verify_rmse_tuned": rmse("tuned")}
+            "verify_rmse_tuned": rmse("tuned"), "verify_reference_bound": ref.get("relative_error_bound"),
+            "verify_reference_seconds": ref.get("seconds")}
 
 
 def _build_outputs(task: Mapping, work: Path, final: Path) -> tuple[dict, dict, list]:
@@ -421,7 +462,8 @@ def process_map(task: Mapping) -> dict:
                 outputs[name]["reason"] = "qa" if parts[name].get("table_note") == NOT_BUILT_NOTE else "build"
             elif name == "table":
                 outputs[name]["extras"] = {"raw": "table.bin" in out_files,
-                                           "tune": bool(parts[name].get("tuned"))}
+                                           "tune": bool(parts[name].get("tuned")),
+                                           "split_sun": bool(parts[name].get("split_note"))}
             elif name == "verify":
                 outputs[name]["table_sha256"] = (files.get("table.json") or {}).get("sha256")
         row = {}
@@ -437,7 +479,8 @@ def process_map(task: Mapping) -> dict:
             "options": task["key_docs"],
             "seed": map_seed(task["sha256"]),
             "outputs": outputs,
-            "row": {k: row.get(k) for k in ROW_FIELDS if k in row},
+            # The row of the summaries, plus the reference's seconds (a timing: for the command's output only).
+            "row": {k: row.get(k) for k in ROW_FIELDS + ("verify_reference_seconds",) if k in row},
             "caution": caution("photometric figures"),
         }
         dump_json(work / "manifest.json", manifest)

@@ -15,6 +15,7 @@ import numpy as np
 
 from envsample.core.latlong import parse_size
 from envsample.io.maps import MapImage, read_map, supported_extensions, validate_map
+from envsample.pipeline.split import find_split, verify_split
 from envsample.reports.validation import write_validation
 from envsample.sampling.table import EnvTable, build_table, load_table
 from envsample.validation.render import DEFAULT_ESTIMATORS, Progress, check_roughness, render_validation
@@ -149,12 +150,17 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     _check_table_size(table_size)
     if progress is not None:
         progress("load")
-    table, source_info = load_source(source, table_size=table_size)
+    split = find_split(source)  # a split's folder or sky table: also compared with its original map
+    table, source_info = load_source(source if split is None else split.table, table_size=table_size)
     result = render_validation(table, spp=spp, normals=normals, estimators=estimators, roughness=roughness,
                                seed=seed, progress=progress)
     if progress is not None:
         progress("pictures")
     doc = write_validation(result, outdir, source=source_info, sphere=sphere)
+    if split is not None:
+        if progress is not None:
+            progress("split")
+        doc["split"] = verify_split(split, table, outdir, spp=spp, normals=normals, seed=seed)
     doc["outdir"] = str(outdir)
     return doc
 

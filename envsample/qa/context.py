@@ -10,8 +10,10 @@ import math
 import numpy as np
 
 from envsample.core.color import luminance
+from envsample.core.latlong import RowWeightedSample
 from envsample.core.sphere import row_solid_angles
 from envsample.io.maps import MapImage
+from envsample.lights.finder import find_sun
 from envsample.qa.emitters import Emitter, emitter_level, find_emitters, label_wrapped
 from envsample.qa.profile import Profile
 
@@ -20,45 +22,6 @@ def srgb_decode(v: np.ndarray) -> np.ndarray:
     """sRGB code values in [0, 1] to linear (IEC 61966-2-1:1999, the piecewise EOTF)."""
     v = np.clip(v, 0.0, 1.0)
     return np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4).astype(np.float32)
-
-
-class RowWeightedSample:
-    """Exact quantiles of a non-negative (H, W) image whose pixels weigh their row's solid angle.
-
-    For non-negative floats the float32 bit pattern is monotone in the value, so the
-    top 16 bits split the pixels into 65536 ordered buckets.  One weighted histogram
-    of those buckets (O(n)) locates the bucket that holds a quantile; only that
-    bucket's pixels are then sorted.  Exact, and several times faster than sorting
-    every pixel of a multi-megapixel map.
-    """
-
-    def __init__(self, values: np.ndarray, row_weights: np.ndarray):
-        v = np.ascontiguousarray(np.where(values > 0, values, 0), dtype=np.float32)  # also turns -0.0 into 0.0
-        self._bits = v.view(np.uint32)
-        self._bucket = (self._bits >> np.uint32(16)).astype(np.int32)
-        self._row_weights = np.asarray(row_weights, dtype=np.float64)
-        weights = np.repeat(self._row_weights, v.shape[1]) if v.ndim == 2 else self._row_weights
-        hist = np.bincount(self._bucket.ravel(), weights=weights, minlength=1 << 16)
-        self._cumulative = np.cumsum(hist)
-        self.size = v.size
-
-    def quantile(self, q: float) -> float:
-        """The smallest value whose weighted CDF reaches ``q`` in [0, 1]."""
-        total = self._cumulative[-1] if self.size else 0.0
-        if not total > 0:
-            return 0.0
-        target = q * total
-        b = int(np.searchsorted(self._cumulative, target, side="left"))
-        b = min(b, self._cumulative.size - 1)
-        below = float(self._cumulative[b - 1]) if b > 0 else 0.0
-        rows, cols = np.nonzero(self._bucket == b)
-        if rows.size == 0:  # only reachable through rounding at the very top: the largest value
-            return float(self._bits.max().view(np.float32))
-        bits = self._bits[rows, cols]
-        order = np.argsort(bits, kind="stable")
-        cum = below + np.cumsum(self._row_weights[rows[order]])
-        k = int(np.searchsorted(cum, target, side="left"))
-        return float(bits[order[min(k, order.size - 1)]].view(np.float32))
 
 
 class CheckContext:
@@ -165,6 +128,18 @@ class CheckContext:
         theta = (np.arange(self.height) + 0.5) * (math.pi / self.height)
         phi = (np.arange(self.width) + 0.5) * (2.0 * math.pi / self.width) - math.pi
         return theta, phi
+
+    @functools.cached_property
+    def sun(self):
+        """The dominant sun measured by the shared finder (:func:`envsample.lights.finder.find_sun`), or None."""
+        s, c = self.settings("sun"), self.settings("clipping")
+        clipping = {"plateau_relative_tolerance": c["plateau_relative_tolerance"], "min_pixels": c["plateau_min_pixels"],
+                    "min_sun_multiple": c["plateau_min_sun_multiple"], "min_contrast": c["plateau_min_contrast"],
+                    "min_shoulder": c["plateau_min_shoulder"]}
+        return find_sun(self.rgb, primaries=self.profile.primaries, emitters=self.emitters, labels=self.emitter_labels,
+                        luminance=self.luminance, median_luminance=self.median_luminance, clipping=clipping,
+                        min_share=s["min_share"], compact_max_deg=s["compact_max_deg"],
+                        median_multiple=s["threshold_median_multiple"], max_fraction=s["threshold_max_fraction"])
 
     @functools.cached_property
     def emitters(self) -> list[Emitter]:

@@ -1,47 +1,19 @@
-"""Which implementation runs the hot loops: the optional compiled kernels or numpy.
+"""Which implementation runs the sampling hot loops: the optional compiled kernels or numpy.
 
-The compiled module ``envsample._kernels`` is built at install time when a C
-compiler is available (setup.py marks it optional).  Set the environment variable
-``ENVSAMPLE_KERNELS=numpy`` to force the numpy code paths (tests run both).
-Both paths implement the same algorithms; their results agree to float32
-rounding, and each is bit-for-bit repeatable on its own.
+The compiled module ``envsample.sampling._kernels`` is built at install time when a C
+compiler is available; ``ENVSAMPLE_KERNELS=numpy`` forces the numpy code paths (the
+rule of :mod:`envsample.core.kernels`, shared with the reference irradiance).  Both
+paths implement the same algorithms; their results agree to float32 rounding, and each
+is bit-for-bit repeatable on its own.
 """
 
 from __future__ import annotations
 
-import os
+from envsample.core.kernels import BACKENDS, KernelSwitch
 
 __all__ = ["kernels", "backend_name", "BACKENDS"]
 
-BACKENDS = ("auto", "compiled", "numpy")
+_SWITCH = KernelSwitch("envsample.sampling._kernels")
 
-
-def _load():
-    if os.environ.get("ENVSAMPLE_KERNELS", "auto").lower() == "numpy":
-        return None
-    try:
-        from envsample.sampling import _kernels
-    except ImportError:
-        return None
-    return _kernels
-
-
-_KERNELS = _load()
-
-
-def kernels(backend: str = "auto"):
-    """The compiled module for ``backend`` ("auto" -> it if built, "compiled" -> it or an error, "numpy" -> None)."""
-    if backend == "numpy":
-        return None
-    if backend == "auto":
-        return _KERNELS
-    if backend == "compiled":
-        if _KERNELS is None:
-            raise RuntimeError("the compiled kernels are not built here; reinstall envsample with a C compiler")
-        return _KERNELS
-    raise ValueError(f"unknown backend {backend!r}; valid: {', '.join(BACKENDS)}")
-
-
-def backend_name() -> str:
-    """"compiled" or "numpy": what ``backend="auto"`` uses on this installation."""
-    return "compiled" if _KERNELS is not None else "numpy"
+kernels = _SWITCH.kernels
+backend_name = _SWITCH.backend_name

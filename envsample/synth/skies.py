@@ -47,6 +47,8 @@ Skies
                     zenith, brighter horizon; not a published sky model) or the
                     overcast sky, plus a sun disk of the real angular size
                     (0.533 deg, :data:`envsample.constants.SUN_ANGULAR_DIAMETER_RAD`).
+                    By default the sun's illuminance and the sky's brightness follow
+                    the elevation through the Ineichen & Perez (2002) clear-sky model.
 ``studio``          lat-long rectangular area lights on a dim background.
 ``rooftop``         invented demo: a late-afternoon rooftop in a fictional city.
 ``product-studio``  invented demo: a small product studio with softboxes and a cyclorama.
@@ -72,6 +74,8 @@ from collections.abc import Callable, Sequence
 
 import numpy as np
 
+from envsample.core.clearsky import DEFAULT_LINKE_TURBIDITY, clear_sky
+from envsample.core.clearsky import sun_color as clear_sun_color
 from envsample.core.constants import SUN_ANGULAR_DIAMETER_RAD, luminance_weights
 from envsample.core.sphere import angles_to_uv, row_cos_edges, uv_to_direction
 
@@ -489,11 +493,56 @@ def _sky_rows(sky: str, height: int, zenith_luminance: float) -> tuple[np.ndarra
     return rows, e_h
 
 
+#: Map units per W/m2 of the clear-sky model in :func:`sun_sky`: the sun's disk stays below the
+#: half-float maximum 65504 at any elevation (DNI at most about 1000 W/m2 gives L of about 5.9e4).
+CLEAR_SKY_SCALE = 1.0 / 250.0
+
+#: The sun colour of :func:`sun_sky` when a brightness is given by hand (a warm white).
+_LEGACY_SUN_COLOR = (1.0, 0.96, 0.90)
+
+
+def clear_sky_levels(elevation_deg: float, *, linke_turbidity: float = DEFAULT_LINKE_TURBIDITY,
+                     altitude_m: float = 0.0, scale: float = CLEAR_SKY_SCALE) -> dict:
+    """Sun and sky brightness of the clear-sky model at an elevation, in map units (``scale`` per W/m2).
+
+    ``sun_illuminance`` is the Ineichen & Perez (2002) DNI and ``sky_horizontal`` the DHI, both
+    times ``scale``; ``sun_color`` the illustrative extinction colour at unit luminance.
+    """
+    el = math.radians(float(elevation_deg))
+    cs = clear_sky(el, linke_turbidity=linke_turbidity, altitude_m=altitude_m)
+    return {"sun_illuminance": float(cs.dni) * scale, "sky_horizontal": float(cs.dhi) * scale,
+            "sun_color": _unit_luminance(clear_sun_color(el, altitude_m=altitude_m), "sun colour")}
+
+
+def _clear_sky_defaults(sky, el, sun_illuminance, zenith_luminance, sun_color_, linke_turbidity, altitude_m):
+    """(sun_illuminance, zenith_luminance, colour) of :func:`sun_sky`: the model's when none is given."""
+    if str(sky).lower() == "clear" and sun_illuminance is None and zenith_luminance is None:
+        lv = clear_sky_levels(el, linke_turbidity=linke_turbidity, altitude_m=altitude_m)
+        unit_e_h = _sky_rows("clear", 8, 1.0)[1] @ luminance_weights("bt709")
+        color = lv["sun_color"] if sun_color_ is None else sun_color_
+        return lv["sun_illuminance"], lv["sky_horizontal"] / unit_e_h, color
+    return (4.0 if sun_illuminance is None else sun_illuminance,
+            1.0 if zenith_luminance is None else zenith_luminance,
+            _LEGACY_SUN_COLOR if sun_color_ is None else sun_color_)
+
+
 def sun_sky(width: int, height: int | None = None, *, azimuth_deg: float = 0.0, elevation_deg: float = 30.0,
-            sun_illuminance: float = 4.0, sun_color=(1.0, 0.96, 0.90), sky: str = "clear",
-            zenith_luminance: float = 1.0, sun_diameter_deg: float = _SUN_DIAMETER_DEG,
-            ground=0.0, ground_albedo=None) -> np.ndarray:
+            sun_illuminance: float | None = None, sun_color=None, sky: str = "clear",
+            zenith_luminance: float | None = None, sun_diameter_deg: float = _SUN_DIAMETER_DEG,
+            ground=0.0, ground_albedo=None, linke_turbidity: float = DEFAULT_LINKE_TURBIDITY,
+            altitude_m: float = 0.0) -> np.ndarray:
     """A sky with a sun disk of the real angular size, float32 (H, W, 3).
+
+    With the clear sky and neither ``sun_illuminance`` nor ``zenith_luminance`` given, the sun
+    and the sky follow the sun's elevation through the Ineichen & Perez (2002) clear-sky model
+    (:func:`clear_sky_levels`, Kasten & Young 1989 air mass, ``linke_turbidity``,
+    ``altitude_m``): the sun's normal illuminance is the model's DNI and the sky's horizontal
+    irradiance its DHI, both times :data:`CLEAR_SKY_SCALE` map units per W/m2, and the sun's
+    colour reddens towards the horizon (:func:`envsample.core.clearsky.sun_color`).  So the
+    sun-to-sky ratio is realistic; the sky's angular distribution stays the illustrative
+    gradient of :func:`clear_sky_radiance`.  Below the horizon the model has no light.
+    Otherwise the former defaults hold: ``sun_illuminance`` 4.0, ``zenith_luminance`` 1.0 and a
+    warm white sun.
 
     Parameters
     ----------
@@ -501,7 +550,7 @@ def sun_sky(width: int, height: int | None = None, *, azimuth_deg: float = 0.0, 
         Sun position, degrees (azimuth is the convention's phi, 0 = image centre,
         positive to the right; elevation in [-90, 90]).  The ground hides any part
         of the disk below the horizon.
-    sun_illuminance : float
+    sun_illuminance : float, optional
         Illuminance on a surface facing the sun, map units times steradians; the
         disk radiance is ``sun_radiance(sun_illuminance, sun_diameter_deg)``
         (about ``E / 6.8e-5 sr``).  The default 4.0 gives about 5.9e4, below the
@@ -528,6 +577,8 @@ def sun_sky(width: int, height: int | None = None, *, azimuth_deg: float = 0.0, 
     el = _angle(elevation_deg, "elevation_deg", -90.0, 90.0)
     az = _angle(azimuth_deg, "azimuth_deg", -360.0, 360.0)
     diam = _angle(sun_diameter_deg, "sun_diameter_deg", 1e-4, 20.0)
+    sun_illuminance, zenith_luminance, sun_color = _clear_sky_defaults(
+        sky, el, sun_illuminance, zenith_luminance, sun_color, linke_turbidity, altitude_m)
     e_sun = _scalar(sun_illuminance, "sun_illuminance")
     lz = _scalar(zenith_luminance, "zenith_luminance")
     color = _unit_luminance(sun_color, "sun_color")
@@ -700,7 +751,8 @@ _SKIES: dict[str, Callable[..., np.ndarray]] = {
 SKY_DESCRIPTIONS = {
     "uniform": "constant radiance over the sphere",
     "overcast": "traditional CIE standard overcast sky (1 + 2 cos theta)/3, black ground",
-    "sun": "illustrative clear sky with a 0.533 deg sun disk",
+    "sun": "0.533 deg sun over a clear sky, both as bright as the Ineichen & Perez model says at that elevation "
+           "(the sky's angular distribution is illustrative)",
     "studio": "rectangular area lights on a dim background",
     "rooftop": "invented demo: late-afternoon rooftop, low warm sun",
     "product-studio": "invented demo: product studio with softboxes and a grey cyclorama",

@@ -349,15 +349,15 @@ def _convergence(table, names, normals, weights, ref32, grid_wh, spp, seed) -> d
                            "the band is +- one standard error over normals"}
 
 
-def _plotted(series: dict, entries: dict, recommended: str | None) -> list[str]:
+def _plotted(series: dict, entries: dict, first_name: str | None) -> list[str]:
     """At most MAX_PLOT_SERIES names: single strategies first, then the MIS estimators of lowest final error.
 
-    The given first estimator (the one of least variance) is always drawn; the others stay in metrics.json.
+    ``first`` (the least-variance estimator) is always drawn, first; the others stay in metrics.json.
     """
     names = list(series)
-    first = [recommended] if recommended in names else []
+    first = [first_name] if first_name in names else []
     if len(names) <= MAX_PLOT_SERIES:
-        # The N^-1/2 guide passes through the first series: make that the recommended one.
+        # The N^-1/2 guide passes through the first series.
         return first + [n for n in names if n not in first]
 
     def final(name):
@@ -454,7 +454,9 @@ def render_validation(table, *, spp: int = 64, normals=(128, 64), estimators=Non
     t0 = time.perf_counter()
     ref = reference_irradiance(table.image, n, up=table.up, rotation_deg=table.rotation_deg)
     ref_seconds = time.perf_counter() - t0
+    t0 = time.perf_counter()
     accuracy = reference_accuracy(table.image, n, up=table.up, rotation_deg=table.rotation_deg)
+    accuracy_seconds = time.perf_counter() - t0
     ref32 = ref.astype(np.float32)
     ebar = error_metrics(ref32, ref32, weights, primaries=table.primaries)["reference_mean"]
     ref_acc = float(accuracy.get("relative_error_bound") or 0.0)
@@ -474,7 +476,8 @@ def render_validation(table, *, spp: int = 64, normals=(128, 64), estimators=Non
         glossy = glossy_check(table, roughness, spp, seed)
     return ValidationResult(
         table=table, grid=grid_wh, normals=n, weights=weights, spp=spp, seed=seed, reference=ref32,
-        reference_facts={**accuracy, "seconds": ref_seconds, "mean_luminance": ebar},
+        reference_facts={**accuracy, "seconds": ref_seconds, "accuracy_seconds": accuracy_seconds,
+                         "mean_luminance": ebar},
         estimates={name: r.estimate for name, r in results.items()}, entries=entries, recommended=recommended,
         convergence=conv, glossy=glossy, notes=notes,
     )

@@ -22,7 +22,7 @@ __all__ = ["STREAM_PURPOSES", "RENDER_MEMORY_LIMIT", "stream", "check_seed", "ch
 RENDER_MEMORY_LIMIT = 4 << 30
 
 #: Purposes of the random streams (first word of the SeedSequence spawn key).
-STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6}
+STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6, "split": 7}
 
 
 def stream(seed: int, purpose: str, name: str, index: int = 0) -> np.random.SeedSequence:

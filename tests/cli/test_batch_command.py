@@ -70,3 +70,14 @@ def test_batch_help_lists_the_new_options():
     r = _run("batch", "--help")
     for flag in ("--raw", "--tune", "--repair", "--build-failed", "--prune", "--follow-links", "--compensate"):
         assert flag in r.output
+
+
+def test_batch_verify_prints_the_reference_bound_and_time(tmp_path):
+    src = tmp_path / "library"
+    src.mkdir()
+    write_map(src / "overcast.exr", make_sky("overcast", width=64), pixel_type="float")
+    r = _run("batch", src, "-o", tmp_path / "out", "--workers", "0", "--verify")
+    assert r.exit_code == 0, r.output
+    line = next(x for x in r.output.splitlines() if x.startswith("verify reference:"))
+    assert "exact irradiance on 1 maps at their table size, relative error bound <=" in line
+    assert "s in all, at most" in line

@@ -26,6 +26,11 @@ def test_verify_writes_metrics_and_names_the_recommendation(tmp_path):
     # The printed relative RMSE is the one in metrics.json (4 significant digits).
     table_rmse = metrics["estimators"]["table"]["relative_rmse"]
     assert f"{table_rmse:.4g}" in r.output
+    # The reference's own size, accuracy, time and implementation are printed and recorded.
+    ref = metrics["reference"]
+    assert f"exact at {ref['resolution'][0]}x{ref['resolution'][1]}, relative error bound " \
+           f"{ref['relative_error_bound']:.1e}" in r.output
+    assert ref["accuracy_seconds"] > 0.0 and f"{ref['backend']} kernel" in r.output
 
 
 def test_verify_list_and_usage_errors():

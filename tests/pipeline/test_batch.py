@@ -31,6 +31,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from support.batch_tasks import crash_on_studio
 
 from envsample.errors import EnvsampleError
 from envsample.io.maps import write_map
@@ -308,17 +309,12 @@ def test_a_failing_map_is_recorded_and_the_batch_goes_on(tmp_path):
     assert files["studio"].exists()
 
 
-def _crash_on_studio(task):
-    """Task stand-in that kills its worker process on one map (a crash in a decoder)."""
-    if task["name"].startswith("studio-"):
-        os._exit(3)
-    return process_map(task)
 
 
 def test_a_crashing_worker_costs_only_its_map(tmp_path):
     make_library(tmp_path / "lib")
     rows = by_source(run_batch([tmp_path / "lib" / "sub", tmp_path / "lib" / "uniform.exr"], tmp_path / "out", workers=1,
-                               task=_crash_on_studio))
+                               task=crash_on_studio))
     assert rows["studio.exr"].status == "error" and "worker process died" in rows["studio.exr"].error
     assert rows["uniform.exr"].status == "done" and rows["sun_copy.exr"].status == "done"
 
@@ -572,3 +568,41 @@ def test_links_that_leave_the_source_folder_are_refused_unless_asked(tmp_path):
     assert "secret" not in (out / "summary.csv").read_text()
     rows = by_source(run_batch([lib], out, workers=0, follow_links=True))
     assert rows["outside.exr"].verdict in ("pass", "warn")
+
+
+def test_verify_reports_the_exact_reference_bound_in_the_summary_and_its_time_in_the_manifest(tmp_path):
+    """The reference's relative error bound (seed-independent, so byte-stable) is a summary field;
+    its seconds, a timing, stay out of the summaries and reach the command through the row."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "sky.exr", make_sky("rooftop", width=WIDTH))
+    out = tmp_path / "out"
+    m = run_batch([lib], out, workers=0, verify=True).maps[0]
+    metrics = json.loads((out / m.folder / "verify" / "metrics.json").read_text())
+    bound = metrics["reference"]["relative_error_bound"]
+    assert 0.0 <= bound < 1e-9 and m.figures["verify_reference_bound"] == bound
+    assert metrics["reference"]["resolution"] == [m.figures["table_width"], m.figures["table_height"]]
+    assert m.figures["verify_reference_seconds"] == metrics["reference"]["seconds"] > 0.0
+    row = json.loads((out / "summary.json").read_text())["maps"][0]
+    assert row["verify_reference_bound"] == bound and "verify_reference_seconds" not in row
+    skipped = run_batch([lib], out, workers=0, verify=True).maps[0]
+    assert skipped.status == "skipped"
+    assert skipped.figures["verify_reference_seconds"] == m.figures["verify_reference_seconds"]
+
+
+def test_split_sun_splits_only_maps_whose_sun_holds_the_sampling_checks_share(tmp_path):
+    """batch --split-sun: maps/NAME/split/ for a sun over half the light; a note for the others."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "noon.exr", make_sky("sun", width=256, elevation_deg=50.0), pixel_type="float")
+    write_map(lib / "grey.exr", make_sky("overcast", width=WIDTH))
+    result = run_batch([lib], tmp_path / "out", workers=0, split_sun=True)
+    rows = {Path(m.source).name: m.to_row() for m in result.maps}
+    assert rows["noon.exr"]["split_note"].startswith("split: sun")
+    assert rows["grey.exr"]["split_note"] == "no sun-like emitter: not split"
+    split = tmp_path / "out" / rows["noon.exr"]["folder"] / "split"
+    assert json.loads((split / "map.sky.json").read_text())["lights"][0]["file"] == "map.sun.json"
+    assert (split / "map.sky.exr").exists() and not (tmp_path / "out" / rows["grey.exr"]["folder"] / "split").exists()
+    # Without the option nothing is split.
+    again = run_batch([lib], tmp_path / "out2", workers=0)
+    assert all(m.to_row()["split_note"] is None for m in again.maps)

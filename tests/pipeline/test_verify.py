@@ -38,7 +38,7 @@ SPP = 16
 
 #: Keys of metrics.json that depend on wall time (or are derived from it) and so differ between runs.
 TIMING_KEYS = {"seconds", "time_per_sample_s", "samples_per_second", "efficiency", "efficiency_note",
-               "reference_seconds"}
+               "reference_seconds", "accuracy_seconds"}
 
 
 def _read_exr(path) -> np.ndarray:

@@ -14,7 +14,7 @@ import ast
 from pathlib import Path
 
 #: Topic packages from the lowest layer to the highest; "" is the package root (errors, _version).
-LAYERS = ("", "core", "io", "sampling", "estimation", "reference", "validation", "qa", "reports", "pipeline",
+LAYERS = ("", "core", "io", "sampling", "estimation", "reference", "lights", "validation", "qa", "reports", "pipeline",
           "synth", "cli")
 
 

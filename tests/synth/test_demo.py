@@ -162,3 +162,16 @@ def test_demo_command_json_and_bad_width(tmp_path):
     odd = runner.invoke(main, ["demo", str(tmp_path / "odd"), "--width", "63"])
     assert odd.exit_code == 2 and odd.stderr.startswith("error: Invalid value for '--width': 63 is odd")
     assert not (tmp_path / "odd").exists()
+
+
+def test_demo_rooftop_goes_through_the_split(demo):
+    """The rooftop's sun is split off (sky, sun file, sky table) and sky + sun agrees with the map."""
+    from pathlib import Path
+
+    from envsample.pipeline.split import load_sun
+
+    sp = demo["extra"]["split"]["rooftop"]
+    sun = load_sun(Path(sp["folder"]) / "rooftop.sun.json")
+    assert sun.angles_deg == pytest.approx(ROOFTOP_SUN, abs=180.0 / (WIDTH // 2))  # within one pixel
+    assert sp["consistent"] is True
+    assert sp["relative_rmse_split"] < sp["relative_rmse_unsplit_table"]

@@ -14,7 +14,8 @@ import pytest
 from scipy import integrate
 
 from envsample.core.constants import SUN_SOLID_ANGLE_SR
-from envsample.core.sphere import direction_to_uv, pixel_center_directions, pixel_solid_angles, row_cos_edges
+from envsample.core.color import luminance
+from envsample.core.sphere import direction_to_uv, pixel_center_directions, pixel_solid_angles, row_cos_edges, row_solid_angles
 from envsample.synth import skies
 
 #: Relative tolerance of integrals of float32 maps whose cell averages are exact.
@@ -357,3 +358,36 @@ def test_sun_direction_takes_azimuth_then_elevation_by_keyword():
         old = skies.sun_direction(60.0, 30.0)
     np.testing.assert_array_equal(d, old)
     assert d[1] == pytest.approx(math.sin(math.radians(60.0)))  # up = +y: the y component is sin(elevation)
+
+
+def test_sun_sky_follows_the_elevation_with_the_clear_sky_model():
+    """Sun DNI and sky DHI of pvlib's Ineichen & Perez model at 2, 30 and 80 deg, times CLEAR_SKY_SCALE (1 %)."""
+    pvlib = pytest.importorskip("pvlib")
+    from envsample.core.latlong import row_cosine_weights
+    from envsample.lights.split import split_sun
+
+    integrals, colours = [], []
+    for el in (2.0, 30.0, 80.0):
+        img = skies.sun_sky(1024, azimuth_deg=15.0, elevation_deg=el)
+        sp = split_sun(img)
+        z = 90.0 - el
+        am = pvlib.atmosphere.get_relative_airmass(z, model="kastenyoung1989")
+        ref = pvlib.clearsky.ineichen(z, pvlib.atmosphere.get_absolute_airmass(am), 3.0)
+        e_n = float(luminance(sp.sun.normal_irradiance[None, :], dtype=np.float64)[0])
+        assert e_n == pytest.approx(float(ref["dni"]) * skies.CLEAR_SKY_SCALE, rel=0.01)
+        lum = luminance(sp.sky, dtype=np.float64)
+        e_h = float(lum.sum(axis=1) @ row_cosine_weights(512, 1024))
+        assert e_h == pytest.approx(float(ref["dhi"]) * skies.CLEAR_SKY_SCALE, rel=0.01)
+        integrals.append(float((luminance(img, dtype=np.float64).sum(axis=1) * row_solid_angles(512, 1024)).sum()))
+        colours.append(sp.sun.radiance / sp.sun.radiance.sum())
+    assert integrals[0] < integrals[1] < integrals[2]
+    assert colours[0][2] < colours[1][2] < colours[2][2]  # bluer as the sun climbs
+
+
+def test_sun_sky_keeps_given_brightness():
+    """A given sun_illuminance keeps the former behaviour: the disk's normal illuminance is the value given."""
+    from envsample.lights.split import split_sun
+
+    for el in (5.0, 60.0):
+        sun = split_sun(skies.sun_sky(1024, elevation_deg=el, sun_illuminance=2.0, zenith_luminance=1.0)).sun
+        assert float(luminance(sun.normal_irradiance[None, :], dtype=np.float64)[0]) == pytest.approx(2.0, rel=0.01)

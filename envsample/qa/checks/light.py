@@ -15,6 +15,7 @@ import numpy as np
 
 from envsample.core.constants import SUN_ANGULAR_DIAMETER_DEG
 from envsample.core.latlong import row_channel_sums
+from envsample.core.latlong import row_cosine_weights as _cos_weights
 from envsample.core.text import CAUTION, caution
 from envsample.qa.context import CheckContext
 from envsample.qa.messages import deg, fmt, pct
@@ -54,6 +55,8 @@ def check_sun(ctx: CheckContext) -> CheckResult:
     sunlike = [e for e in listed if e.diameter_deg <= s["compact_max_deg"]]
     details = {"emitters": [e.to_dict() | {"sun_like": e.diameter_deg <= s["compact_max_deg"]} for e in listed],
                "sun_diameter_deg": SUN_ANGULAR_DIAMETER_DEG}
+    if sunlike and ctx.sun is not None:
+        details["sun"] = ctx.sun.to_dict()  # the shared finder's measures (the same as envsample split)
     if not sunlike:
         if listed:
             e = listed[0]
@@ -78,13 +81,6 @@ def check_sun(ctx: CheckContext) -> CheckResult:
                            details=details)
     return CheckResult("sun", "pass", value=e.diameter_deg, threshold=s["warn_diameter_deg"], message=msg,
                        details=details)
-
-
-def _cos_weights(height: int, width: int) -> np.ndarray:
-    """Integral of cos(theta) over one pixel of each row above the horizon, sr (H,): pi/W (sin^2 b - sin^2 a)."""
-    edges = np.minimum(np.pi * np.arange(height + 1) / height, math.pi / 2.0)
-    s2 = np.sin(edges) ** 2
-    return (math.pi / width) * np.diff(s2)
 
 
 def check_light_level(ctx: CheckContext) -> CheckResult:

@@ -117,7 +117,7 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
                           f"(full size {ctx.width}x{ctx.height}): coarser cells blur the sun into the sky")
         if e.share >= s["analytic_light_share"]:
             advice.append(f"separate the sun ({pct(e.share)} of the light) into an analytic light "
-                          f"of {SUN_ANGULAR_DIAMETER_DEG:.3f} deg and remove it from the map")
+                          f"of {SUN_ANGULAR_DIAMETER_DEG:.3f} deg and remove it from the map: envsample split")
     details = {"spp": s["spp"], "repeats": s["repeats"], "normals": s["normals"], "seed": s["seed"],
                "table_size": list(size), "estimator": graded,
                "mean_reference": float(luminance(ref.astype(np.float32), prim, dtype=np.float64).mean()),

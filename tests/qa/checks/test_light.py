@@ -95,3 +95,15 @@ def test_flat_map_dynamic_range_in_stops():
     img[:32] = 8.0
     c = check_map(img, checks=["dynamic-range"])["dynamic-range"]
     assert c.severity == "pass" and c.value == pytest.approx(3.0)
+
+
+def test_sun_check_reports_the_shared_finders_measures():
+    """QA's sun check and envsample split see one sun: the details carry find_sun's result."""
+    from envsample.lights.finder import find_sun
+
+    img = skies.sun_sky(1024, azimuth_deg=30.0, elevation_deg=25.0)
+    details = check_map(img, checks=["sun"])["sun"].details
+    found = find_sun(img)
+    assert details["sun"]["azimuth_deg"] == pytest.approx(found.azimuth_deg)
+    assert details["sun"]["solid_angle_sr"] == pytest.approx(found.solid_angle_sr)
+    assert details["sun"]["clipped"] is False

@@ -74,7 +74,7 @@ def test_sampling_fails_when_the_graded_estimator_is_cosine_only():
 def test_sampling_advises_an_analytic_sun_when_it_holds_most_of_the_light():
     img = skies.sun_sky(W, sky="none", elevation_deg=40.0)
     advice = check_map(img, checks=["sampling"])["sampling"].details["advice"]
-    assert any("analytic light" in a for a in advice)
+    assert any("analytic light" in a and "envsample split" in a for a in advice)
 
 
 

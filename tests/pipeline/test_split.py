@@ -1,0 +1,71 @@
+"""Tests of envsample.pipeline.split (the files of ``envsample split``) and the split command."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+from click.testing import CliRunner
+from support.sun_maps import analytic_sun
+
+from envsample.cli import main
+from envsample.io.maps import read_map, write_map
+from envsample.lights.split import SUN_SCHEMA, map_integral
+from envsample.pipeline.split import load_sun, split_map_file
+from envsample.sampling.table import load_table
+
+
+@pytest.fixture()
+def sun_map(tmp_path):
+    path = tmp_path / "clear.exr"
+    write_map(path, analytic_sun(512, azimuth_deg=179.9, elevation_deg=1.5), pixel_type="float")
+    return path
+
+
+def test_split_writes_sky_sun_and_a_table_that_names_the_sun(sun_map, tmp_path):
+    out = tmp_path / "out"
+    result = split_map_file(sun_map, out)
+    sky = read_map(out / "clear.sky.exr").rgb
+    assert np.array_equal(sky, result.split.sky)
+    doc = json.loads((out / "clear.sun.json").read_text())
+    assert SUN_SCHEMA.matches(doc) and doc["files"]["table"] == "clear.sky.json"
+    table_doc = json.loads((out / "clear.sky.json").read_text())
+    assert table_doc["lights"][0]["file"] == "clear.sun.json"
+    table = load_table(out / "clear.sky")
+    assert table.metadata["lights"][0]["kind"] == "sun"
+    sun = load_sun(out / "clear.sun.json")
+    original = read_map(sun_map).rgb
+    assert np.allclose(map_integral(sky) + sun.power, map_integral(original), rtol=1e-4)
+
+
+def test_split_writes_nothing_for_a_map_without_a_sun(tmp_path):
+    path = tmp_path / "flat.exr"
+    write_map(path, np.ones((64, 128, 3), np.float32), pixel_type="float")
+    result = CliRunner().invoke(main, ["split", str(path), "-o", str(tmp_path / "out")])
+    assert result.exit_code == 2 and "no sun-like emitter" in result.output
+    assert not (tmp_path / "out").exists()
+
+
+def test_split_command_prints_the_sun_and_the_caution(sun_map, tmp_path):
+    result = CliRunner().invoke(main, ["split", str(sun_map), "-o", str(tmp_path / "o"), "--sun-illuminance", "4"])
+    assert result.exit_code == 0, result.output
+    assert "restored" in result.output and "assumed" in result.output and "not certified" in result.output
+
+
+def test_load_sun_refuses_another_schema(tmp_path):
+    p = tmp_path / "x.json"
+    p.write_text(json.dumps({"schema": "envsample.table", "schema_version": 1}))
+    with pytest.raises(Exception, match="envsample.sun"):
+        load_sun(p)
+
+
+def test_verify_on_a_split_folder_compares_it_with_the_original(sun_map, tmp_path):
+    from envsample.pipeline.verify import verify_map
+
+    split_map_file(sun_map, tmp_path / "s")
+    doc = verify_map(tmp_path / "s", tmp_path / "v", spp=8, normals=(16, 8), sphere=False)
+    assert doc["split"]["compared"] and doc["split"]["consistent"]
+    saved = json.loads((tmp_path / "v" / "split.json").read_text())
+    assert set(saved["estimators"]) == {"unsplit:table", "unsplit:mis-balance", "split:sun-mis-balance",
+                                        "split:sun-one-sample-balance"}
