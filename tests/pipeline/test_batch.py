@@ -606,3 +606,17 @@ def test_split_sun_splits_only_maps_whose_sun_holds_the_sampling_checks_share(tm
     # Without the option nothing is split.
     again = run_batch([lib], tmp_path / "out2", workers=0)
     assert all(m.to_row()["split_note"] is None for m in again.maps)
+
+
+def test_a_rerun_without_split_sun_keeps_the_split(tmp_path):
+    """--split-sun adds to the table output (like --raw): a rerun without it deletes nothing."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "noon.exr", make_sky("sun", width=256, elevation_deg=50.0), pixel_type="float")
+    out = tmp_path / "out"
+    m = run_batch([lib], out, workers=0, split_sun=True).maps[0]
+    before = tree_hashes(out / m.folder)
+    assert any(k.startswith("split/") for k in before)
+    again = run_batch([lib], out, workers=0).maps[0]
+    assert again.status == "skipped" and tree_hashes(out / m.folder) == before
+    assert again.figures["split_note"].startswith("split: sun")
