@@ -92,6 +92,11 @@ _EXPORTS = {
     "ProfileError": "qa.profile",
     "format_report": "qa.report",
     "report_to_json": "qa.report",
+    "apply_remedy": "qa.remedies",
+    "REMEDIES": "qa.remedies",
+    "fix_map": "pipeline.fix",
+    "FixResult": "pipeline.fix",
+    "FixRefusedError": "pipeline.fix",
     # reference and verify
     "reference_irradiance": "reference.irradiance",
     "reference_accuracy": "reference.irradiance",

@@ -10,6 +10,7 @@ from envsample.cli import (  # noqa: F401 - importing a command module registers
     build_cmd,
     check_cmd,
     demo_cmd,
+    fix_cmd,
     inspect_cmd,
     sky_cmd,
     split_cmd,

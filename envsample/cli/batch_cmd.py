@@ -24,6 +24,8 @@ from envsample.qa.profile import load_profile
 @click.option("--split-sun", is_flag=True, help="Also split the sun off every map whose sun holds the sampling "
               "check's analytic_light_share of the light (envsample split, into maps/NAME/split/).")
 @click.option("--force", is_flag=True, help="Redo maps whose outputs are already up to date.")
+@click.option("--fix", is_flag=True, help="Apply the safe remedies of 'envsample fix --auto' before building "
+              "(the sources are never changed; fixed.exr and fix.json join each repaired map's folder).")
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="Send the work to a Dask distributed scheduler (needs 'pip install envsample[dask]').")
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
@@ -39,7 +41,7 @@ from envsample.qa.profile import load_profile
 @click.option("--prune", is_flag=True, help="Remove map folders whose source is gone or has changed.")
 @click.option("--follow-links", is_flag=True,
               help="Accept symbolic links in source folders that lead outside them (refused by default).")
-def batch(sources, outdir, workers, verify, split_sun, force, scheduler, profile_path, strict, size, primaries,
+def batch(sources, outdir, workers, verify, split_sun, force, fix, scheduler, profile_path, strict, size, primaries,
           mapping, uniform_mix, up, rotation_deg, compensate, tune, raw, repair, allow_aspect, build_failed, prune,
           follow_links):
     """Check, build tables for (and optionally verify) every map under SOURCE.
@@ -70,8 +72,8 @@ def batch(sources, outdir, workers, verify, split_sun, force, scheduler, profile
     try:
         with bar:
             result = run_batch(list(sources), outdir, workers=workers, verify=verify, split_sun=split_sun, force=force,
-                               scheduler=scheduler, options=options, profile=profile, build_failed=build_failed,
-                               prune=prune, follow_links=follow_links, progress=progress)
+                               fix=fix, scheduler=scheduler, options=options, profile=profile,
+                               build_failed=build_failed, prune=prune, follow_links=follow_links, progress=progress)
     except BatchInterrupted as e:
         c = e.result.counts
         click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete), "

@@ -9,7 +9,7 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.output import progress_bar
-from envsample.core.files import atomic_write_text
+from envsample.core.files import atomic_write_text, refuse_inputs_as_outputs
 from envsample.qa.profile import load_profile
 from envsample.qa.report import format_report, report_to_json
 from envsample.qa.run import check_map
@@ -21,7 +21,8 @@ from envsample.reports.pages import check_page
 @click.option("--profile", "profile_path", type=click.Path(dir_okay=False, exists=True, path_type=Path), default=None,
               help="Thresholds (TOML); default: the built-in profile (see 'envsample/profiles/default.toml').")
 @click.option("--json", "json_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="FILE",
-              help="Also write every check with its values as JSON ('-' for standard output).")
+              help="Also write every check with its values as JSON ('-' for standard output, which then holds the JSON "
+                   "alone; the table goes to standard error).")
 @click.option("--html", "html_path", type=click.Path(dir_okay=False, path_type=Path), default=None, metavar="FILE",
               help="Also write one self-contained HTML page for all the maps.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 on warnings too.")
@@ -35,7 +36,9 @@ def check(maps, profile_path, json_path, html_path, strict, only):
     (with --strict also any warn), 2 unreadable input or usage error.
     Light levels are estimates for asset preparation, not certified lighting calculations.
     """
-
+    refuse_inputs_as_outputs([json_path, html_path], list(maps) + ([profile_path] if profile_path else []))
+    if json_path is not None and html_path is not None and str(json_path) != "-" and str(json_path) == str(html_path):
+        raise click.UsageError(f"{json_path}: --json and --html name the same file; give each its own")
     profile = load_profile(profile_path)
     ids = None if only is None else [c.strip() for c in only.split(",") if c.strip()]
     for out in (json_path, html_path):
@@ -46,17 +49,18 @@ def check(maps, profile_path, json_path, html_path, strict, only):
         for path in maps:
             reports.append(check_map(path, profile=profile, checks=ids))
             bar.update(1)
-    click.echo(format_report(reports, color=sys.stdout.isatty()))
+    # With --json -, standard output carries the JSON alone: the table and the notes go to standard error.
+    to_stdout = json_path is not None and str(json_path) == "-"
+    human = sys.stderr if to_stdout else sys.stdout
+    click.echo(format_report(reports, color=human.isatty()), file=human)
     if json_path is not None:
         text = report_to_json(reports) + "\n"
-        if str(json_path) == "-":
+        if to_stdout:
             click.echo(text, nl=False)
         else:
-
             atomic_write_text(json_path, text)
-            click.echo(f"wrote {json_path}")
+            click.echo(f"wrote {json_path}", file=human)
     if html_path is not None:
-
         check_page(reports, html_path)
-        click.echo(f"wrote {html_path}")
+        click.echo(f"wrote {html_path}", file=human)
     return max(r.exit_code(strict=strict) for r in reports)

@@ -16,8 +16,10 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["TEMP_NAME_CHARS", "atomic_write", "atomic_write_bytes", "atomic_write_text", "file_mode",
-           "temporary_path"]
+from envsample.errors import EnvsampleError
+
+__all__ = ["TEMP_NAME_CHARS", "OutputIsInputError", "atomic_write", "atomic_write_bytes", "atomic_write_text",
+           "file_mode", "refuse_inputs_as_outputs", "same_file", "temporary_path"]
 
 #: Characters of the target's name kept in a temporary name (".NAME." + 8 random + ".tmp").
 TEMP_NAME_CHARS = 100
@@ -25,6 +27,35 @@ TEMP_NAME_CHARS = 100
 
 def _prefix(name: str) -> str:
     return f".{name[:TEMP_NAME_CHARS]}."
+
+
+class OutputIsInputError(EnvsampleError, ValueError):
+    """An output path names one of the command's inputs (it would be replaced)."""
+
+
+def same_file(a, b) -> bool:
+    """True when paths ``a`` and ``b`` name the same file (links and relative paths resolved)."""
+    pa, pb = Path(a), Path(b)
+    with contextlib.suppress(OSError):
+        if pa.exists() and pb.exists():
+            return os.path.samefile(pa, pb)
+    return os.path.realpath(pa) == os.path.realpath(pb)
+
+
+def refuse_inputs_as_outputs(outputs, inputs, *, what: str = "output") -> None:
+    """Raise :class:`OutputIsInputError` when an output path (None and "-" skipped) names an input file.
+
+    Called before anything is read or written, so that ``check m.exr --json m.exr`` refuses
+    with one line instead of replacing the map.
+    """
+    ins = [Path(i) for i in inputs]
+    for out in outputs:
+        if out is None or str(out) == "-":
+            continue
+        for i in ins:
+            if same_file(out, i):
+                raise OutputIsInputError(
+                    f"{out}: this {what} would replace the input {i}; choose another file name")
 
 
 def file_mode(path) -> int:

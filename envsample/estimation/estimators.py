@@ -120,8 +120,10 @@ def estimator_name(name: str) -> str:
     return new
 
 
-def estimators(kind: str | None = None, *, sun: bool = False) -> tuple[str, ...]:
-    """Names of the estimators; ``kind`` = "irradiance" or "glossy" keeps those valid for it.
+def estimators(kind: str | None = "irradiance", *, sun: bool = False) -> tuple[str, ...]:
+    """Names of the estimators valid for ``kind``: "irradiance" (the default, the names
+    :func:`estimate_irradiance` accepts), "glossy" (:func:`estimate_glossy`), or None for every name
+    of either kind.
 
     ``bsdf`` samples the "BSDF" of the integrand: the clamped cosine (cosine density)
     for irradiance, GGX visible normals for glossy.  ``mis-*`` combine the table and

@@ -698,7 +698,8 @@ def validate_map(
 # --------------------------------------------------------------------------- writing
 
 
-def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", chromaticities=None, alpha=None) -> Path:
+def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", chromaticities=None, alpha=None,
+              attributes=None) -> Path:
     """Write an environment map atomically to ``.exr`` or ``.hdr``; return the path.
 
     Parameters
@@ -721,6 +722,9 @@ def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", 
         ``PRIMARIES=`` header line.
     alpha : array_like, shape (H, W), optional
         EXR only: written as an RGBA image.
+    attributes : mapping of str to str, optional
+        EXR only: extra string attributes of the header (e.g. the record of ``envsample fix``);
+        ignored for ``.hdr``.
 
     The file is first written to a temporary file in the same directory and
     then renamed over the target (``os.replace``), so readers never see a
@@ -747,7 +751,8 @@ def write_map(path, rgb, *, pixel_type: str = "half", compression: str = "zip", 
     a = None if alpha is None else _as_alpha(alpha, arr.shape[:2])
     chroma = None if chromaticities is None else _check_chromaticities(chromaticities)
     if ext in _EXR_EXTENSIONS:
-        writer = _exr_writer(p, arr, pixel_type, compression, chroma, a)
+        extra = {"attributes": attributes} if attributes else {}
+        writer = _exr_writer(p, arr, pixel_type, compression, chroma, a, **extra)
     else:
         writer = _hdr_writer(p, arr, chroma, a)
     parent = p.parent
@@ -795,7 +800,7 @@ def _check_chromaticities(chroma) -> dict:
     return out
 
 
-def _exr_writer(p: Path, arr: np.ndarray, pixel_type: str, compression: str, chroma, alpha):
+def _exr_writer(p: Path, arr: np.ndarray, pixel_type: str, compression: str, chroma, alpha, attributes=None):
     exr = _openexr()
     dtype = np.float16 if pixel_type == "half" else np.float32
     # ascontiguousarray: the bindings ignore strides and would write the parent buffer of a view.
@@ -815,7 +820,8 @@ def _exr_writer(p: Path, arr: np.ndarray, pixel_type: str, compression: str, chr
     comp = getattr(exr, "NO_COMPRESSION" if compression == "none" else f"{compression.upper()}_COMPRESSION")
 
     def write(tmp: str) -> None:
-        header = {"compression": comp, "type": exr.scanlineimage, "envmap": exr.ENVMAP_LATLONG}
+        header = {str(k): str(v) for k, v in (attributes or {}).items()}
+        header.update({"compression": comp, "type": exr.scanlineimage, "envmap": exr.ENVMAP_LATLONG})
         if chroma is not None:
             header["chromaticities"] = tuple(float(v) for k in _CHROMATICITY_KEYS for v in chroma[k])
         # A fresh dict each time: the bindings replace the arrays in the dict they are given.

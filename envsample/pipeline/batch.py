@@ -348,6 +348,8 @@ def output_keys(opts: dict, profile, version: str) -> tuple[dict, dict]:
     docs = {"check": {**common, "profile": profile.to_dict()["settings"], "thumb_width": THUMB_WIDTH},
             "table": {**common, "build": {k: v for k, v in opts.items() if k not in ADDITIVE}},
             "verify": {**common, "verify": dict(VERIFY_SETTINGS)}}
+    if opts.get("fix"):  # only when asked, so the check key of runs without it stays the same
+        docs["check"]["fix"] = True
     keys = {name: _digest(doc) for name, doc in docs.items()}
     docs["table"]["asked"] = {k: opts[k] for k in ADDITIVE}
     return docs, keys
@@ -415,6 +417,7 @@ def run_batch(
     verify: bool = False,
     split_sun: bool = False,
     force: bool = False,
+    fix: bool = False,
     scheduler=None,
     options: Mapping | None = None,
     profile=None,
@@ -451,6 +454,9 @@ def run_batch(
         it keeps the split.
     force : bool
         Redo maps whose outputs are up to date.
+    fix : bool
+        Apply the safe remedies of ``envsample fix --auto`` to each map before its table is
+        built (the source is never changed; ``fixed.exr`` and ``fix.json`` join its folder).
     scheduler : str or dask.distributed.Client, optional
         Send the tasks to a Dask cluster (``"tcp://host:8786"`` or a Client) instead
         of local processes; needs ``pip install envsample[dask]`` and a file system
@@ -492,7 +498,7 @@ def run_batch(
     """
     n_workers = _check_workers(workers)
     paths, refused, run = _prepare(sources, outdir, options=options, profile=profile, follow_links=follow_links,
-                                   scheduler=scheduler, flags={"verify": verify, "split_sun": split_sun,
+                                   scheduler=scheduler, flags={"verify": verify, "split_sun": split_sun, "fix": fix,
                                                                "build_failed": build_failed, "force": force,
                                                                "prune": prune})
     with _locked(run.out):
@@ -519,7 +525,8 @@ def _prepare(sources, outdir, *, options, profile, follow_links, scheduler, flag
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
     # split_sun adds to a map's table output like raw and tune (tasks.ADDITIVE): not part of its key.
-    opts = {**opts, "split_sun": bool(flags["split_sun"])}
+    # fix changes the report and the pixels the table is built from: part of both keys.
+    opts = {**opts, "split_sun": bool(flags["split_sun"]), "fix": bool(flags["fix"])}
     docs, keys = output_keys(opts, prof, __version__)
     run = _Run(out=out, key_docs=docs, keys=keys, profile=prof, version=__version__, verify=bool(flags["verify"]),
                build_failed=bool(flags["build_failed"]), force=bool(flags["force"]), prune=bool(flags["prune"]),

@@ -70,7 +70,7 @@ OUTPUTS = ("check", "table", "verify")
 
 #: Row fields each output contributes (the rest of ROW_FIELDS describe the source and the run).
 OUTPUT_FIELDS = {
-    "check": ("verdict", "error", "width", "height", "format", "pixel_type", "failed_checks", "warned_checks",
+    "check": ("verdict", "error", "fix_note", "width", "height", "format", "pixel_type", "failed_checks", "warned_checks",
               "dynamic_range", "sun_azimuth_deg", "sun_elevation_deg", "sun_share", "irradiance_up",
               "sampling_relative_rmse", "peak_sample_share"),
     "table": ("luminance_integral", "table_width", "table_height", "table_note", "tuned", "split_note"),
@@ -235,6 +235,20 @@ class _Map:
         self.sha256 = task["sha256"]
         self._image = None
         self._read = False
+        self.fixed = None  # the repaired map of batch --fix, when this run repaired it
+
+    def fixed_image(self, work: Path):
+        """The repaired map (this run's, or ``fixed.exr`` carried over with the check output), else the source."""
+        from envsample.io.maps import read_map
+
+        if self.fixed is not None:
+            return self.fixed
+        if (work / "fixed.exr").is_file():
+            import dataclasses
+
+            source = self.image()
+            return dataclasses.replace(source, rgb=read_map(work / "fixed.exr").rgb)
+        return self.image()
 
     def image(self):
         from envsample.io.maps import read_map
@@ -265,6 +279,10 @@ def _make_check(task: Mapping, source: _Map, work: Path) -> dict:
         top = float(np.nanmax(image.rgb)) if image is not None and image.rgb.size else float("nan")
         raise EnvsampleError(f"{source.path}: the QA checks could not run on this map ({error_line(e)}; its "
                              f"largest value is {top:.3g}); this is a bug of envsample, please report it") from e
+    fix_note = None
+    if task["options"].get("fix") and image is not None and report.readable:
+        image, report, fix_note = _auto_fix(image, report, work, task["profile"])
+        source.fixed = image
     dump_json(work / "check.json", report.to_dict())
     row = _report_figures(report)
     if image is None or not report.readable:
@@ -275,6 +293,7 @@ def _make_check(task: Mapping, source: _Map, work: Path) -> dict:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", EnvsampleWarning)
         check_page(report, work / "check.html", images=[None if image is None else image])
+    row["fix_note"] = fix_note
     return row
 
 
@@ -294,17 +313,19 @@ def table_serves(out: Mapping | None, options: Mapping) -> bool:
     return all(ex[k] or not options[k] for k in ADDITIVE)
 
 
-def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping) -> tuple[dict, bool]:
+def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping,
+                fix_note: str | None = None) -> tuple[dict, bool]:
     """table.json/.npz (.bin); the row part, and whether a table was written.
 
     ``extras`` are the additive parts an earlier table had: they are made again, so a
-    rebuild does not lose what a rerun did not ask for.
+    rebuild does not lose what a rerun did not ask for.  With ``fix`` the table is built
+    from the repaired map (``fixed.exr`` of the check output) when there is one.
     """
     from envsample.io.maps import validate_map
     from envsample.sampling.table import build_table
 
     o = {**task["options"], **{k: bool(task["options"][k] or extras.get(k)) for k in ADDITIVE}}
-    image = source.image()
+    image = source.fixed_image(work) if o.get("fix") else source.image()
     # The notes of validation and of the build say what the warnings would say; a batch
     # records them in the row instead of printing them once per map.
     with warnings.catch_warnings():
@@ -321,7 +342,8 @@ def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping) -> tup
 
             table.metadata["recommendation"] = recommend(table, seed=map_seed(task["sha256"]) % (1 << 32))
     table.save(work / "table", raw=o["raw"])
-    notes = list(notes) + [str(n) for n in table.metadata.get("notes", []) if str(n) not in notes]
+    notes = ([fix_note] if fix_note else []) + list(notes) + [
+        str(n) for n in table.metadata.get("notes", []) if str(n) not in notes]
     rec = table.metadata.get("recommendation")
     row = {"luminance_integral": float(table.integrals["luminance"]), "table_width": table.table_width,
            "table_height": table.table_height, "table_note": "; ".join(notes) or None,
@@ -329,6 +351,43 @@ def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping) -> tup
     if o["split_sun"]:
         row.update(_split(clean, work / "split", {**task, "options": o}))
     return row, True
+
+
+def _auto_fix(image, report, work: Path, profile):
+    """``batch --fix``: the safe remedies (``fix --auto``) in memory; the map, its report and a note for the row.
+
+    When something was repaired, ``fixed.exr`` (steps in its header) and ``fix.json`` (steps,
+    verdicts before and after) join the map's folder, and the table is built from the repaired
+    map.  A map that cannot be fixed, or needs nothing, is kept as it is (the note says why).
+    """
+    import dataclasses
+
+    from envsample.io.maps import write_map
+    from envsample.pipeline.fix import (
+        FIX_LOG_SCHEMA,
+        HEADER_ATTRIBUTE,
+        FixRefusedError,
+        header_record,
+        output_pixel_type,
+        repair_image,
+    )
+    from envsample.qa.run import check_map
+
+    try:
+        rgb, records, _, _ = repair_image(image, report, auto=True, profile=profile)
+    except FixRefusedError as e:
+        return image, report, "not fixed: " + str(e).split(": ", 1)[-1]
+    if not records:
+        return image, report, None
+    write_map(work / "fixed.exr", rgb, pixel_type=output_pixel_type(image, rgb),
+              attributes={HEADER_ATTRIBUTE: header_record(image, records)})
+    fixed = dataclasses.replace(image, rgb=rgb)
+    after = check_map(fixed, profile=profile)
+    dump_json(work / "fix.json", {**FIX_LOG_SCHEMA.header(), "source": str(image.path), "source_sha256": image.sha256,
+                                  "steps": records, "before": {"verdict": report.verdict},
+                                  "after": {"verdict": after.verdict}})
+    names = ", ".join(r["remedy"] for r in records)
+    return fixed, after, f"fixed ({names}): {report.verdict} -> {after.verdict}"
 
 
 def _split(image, folder: Path, task: Mapping) -> dict:
@@ -414,7 +473,8 @@ def _build_outputs(task: Mapping, work: Path, final: Path) -> tuple[dict, dict, 
         if not wanted:
             notes.append("table kept from an earlier run with build_failed")
     elif wanted or old_table is not None:
-        parts["table"], has_table = _make_table(task, source, work, _extras(recorded_table))
+        parts["table"], has_table = _make_table(task, source, work, _extras(recorded_table),
+                                                fix_note=parts["check"].get("fix_note"))
     elif verdict == "fail":
         parts["table"] = {"table_note": NOT_BUILT_NOTE}
     table_sha = regular_file_sha256(work / "table.json") if has_table else None

@@ -22,7 +22,8 @@ __all__ = ["Emitter", "emitter_level", "emitter_mask", "find_emitters", "label_w
 def emitter_level(ctx: CheckContext) -> float:
     """Luminance above which a pixel belongs to an emitter (``[sun]`` thresholds)."""
     s = ctx.settings("sun")
-    return _emitters.emitter_level(ctx.luminance, ctx.median_luminance,
+    # The level reads only the peak of what it is given: the scan's row maxima hold it without a pass over the map.
+    return _emitters.emitter_level(ctx.scan.row_luminance_max, ctx.median_luminance,
                                    median_multiple=s["threshold_median_multiple"],
                                    max_fraction=s["threshold_max_fraction"])
 
@@ -32,6 +33,12 @@ def find_emitters(ctx: CheckContext) -> list[Emitter]:
     return _emitters.find_emitters(ctx.luminance, labels, n, ctx.row_solid_angles, total_power=ctx.total_power)
 
 
-def emitter_mask(ctx: CheckContext, e: Emitter) -> np.ndarray | None:
-    region = ctx.emitter_labels[0] == e.label
-    return region if region.any() else None
+def emitter_mask(ctx: CheckContext, e: Emitter) -> tuple[np.ndarray, np.ndarray] | None:
+    """``(rows, mask)``: the rows (int, ascending) that hold the emitter and its mask there (bool (n, W))."""
+    labels = ctx.emitter_labels[0]
+    rows = ctx.emitter_rows
+    if rows.size == 0:
+        return None
+    band = labels[rows] == e.label
+    keep = band.any(axis=1)
+    return (rows[keep], band[keep]) if keep.any() else None

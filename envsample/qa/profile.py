@@ -24,6 +24,15 @@ class ProfileError(EnvsampleError, ValueError):
     """A QA profile is missing, not valid TOML, or has an unknown section/key or a bad value."""
 
 
+#: Largest number of samples per estimator the ``sampling`` check may draw (spp x repeats x
+#: normals): about 1 GiB of working memory at an estimated 256 bytes per sample.
+MAX_SAMPLING_SAMPLES = 1 << 22
+#: Largest table of the ``sampling`` check (cells): 4096 x 2048.
+MAX_SAMPLING_CELLS = 4096 * 2048
+#: Severities a check may be given in its profile section (``severity`` keys).
+SETTABLE_SEVERITIES = ("warn", "fail")
+
+
 def _default_profile_text() -> str:
     return resources.files("envsample.qa").joinpath("profiles/default.toml").read_text(encoding="utf-8")
 
@@ -111,6 +120,11 @@ def _check_range(where: str, section: str, key: str, value) -> None:
         if value not in estimators("irradiance"):
             raise ProfileError(f"{where}: {full}: unknown estimator {value!r}; valid names: "
                                f"{', '.join(estimators('irradiance'))}")
+    elif key == "severity":
+        if value not in SETTABLE_SEVERITIES:
+            raise ProfileError(f"{where}: {full} must be one of {', '.join(SETTABLE_SEVERITIES)}, got {value!r}")
+    elif key.endswith("_stops") or key in ("fail_above", "fail_below_peak"):
+        return  # stops may be negative (below a reference); value bounds are any finite number
     elif key.endswith("_percentile"):
         if not 0.0 < value <= 100.0:
             raise ProfileError(f"{where}: {full} must be in (0, 100], got {value}")
@@ -140,6 +154,7 @@ def _merge(where: str, user: Mapping) -> dict:
             value = _coerce(where, f"[{section}] {key}", value, defaults[section][key])
             _check_range(where, section, key, value)
             merged[section][key] = value
+    _check_sampling_size(where, merged["sampling"])
     dr = merged["dynamic-range"]
     if dr["low_percentile"] >= dr["high_percentile"]:
         raise ProfileError(f"{where}: [dynamic-range] low_percentile must be below high_percentile")
@@ -150,6 +165,20 @@ def _merge(where: str, user: Mapping) -> dict:
         if merged[section][lo] > merged[section][hi]:
             raise ProfileError(f"{where}: [{section}] {lo} must not exceed {hi}")
     return merged
+
+
+def _check_sampling_size(where: str, s: dict) -> None:
+    """Refuse, before anything is allocated, a sampling check that would need more than about 1 GiB."""
+    samples = s["spp"] * s["repeats"] * s["normals"]
+    if samples > MAX_SAMPLING_SAMPLES:
+        raise ProfileError(
+            f"{where}: [sampling] spp x repeats x normals = {samples:.3g} samples, above the limit of "
+            f"{MAX_SAMPLING_SAMPLES} (about 1 GiB of working memory); lower spp, repeats or normals")
+    cells = s["table_width"] * s["table_height"]
+    if cells > MAX_SAMPLING_CELLS:
+        raise ProfileError(
+            f"{where}: [sampling] table_width x table_height = {cells:.3g} cells, above the limit of "
+            f"{MAX_SAMPLING_CELLS} (4096 x 2048); lower them (the check's cost does not need more)")
 
 
 def load_profile(path_or_none=None) -> Profile:

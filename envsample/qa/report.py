@@ -31,8 +31,10 @@ def format_report(report, *, color: bool = False) -> str:
     """A compact plain-text table of one report (or several, one block each).
 
     One header line per file (verdict, counts, size, the start of the SHA-256),
-    then one line per check: severity, id, value, limit and message; warnings and
-    failures get a second line with the remedy.  ANSI colour only when ``color``.
+    then one line per check: severity, id, value, limit, unit (``CheckResult.unit``,
+    the values as stored in the JSON) and message; warnings and failures get a second
+    line with the remedy, passing checks past their limit one with the criterion that
+    cleared them.  ANSI colour only when ``color``.
     """
     if isinstance(report, Report):
         reports = [report]
@@ -56,12 +58,16 @@ def format_report(report, *, color: bool = False) -> str:
         lims = [_cell(x.threshold, 20) for x in r.checks]
         vw = max([len(v) for v in vals] + [5])
         lw = max([len(v) for v in lims] + [5])
-        lines.append(f"  {'':4}  {'check':<{idw}}  {'value':>{vw}}  {'limit':>{lw}}  message")
+        uw = max([len(x.unit) for x in r.checks] + [4])
+        lines.append(f"  {'':4}  {'check':<{idw}}  {'value':>{vw}}  {'limit':>{lw}}  {'unit':<{uw}}  message")
+        pad = f"  {'':4}  {'':<{idw}}  {'':>{vw}}  {'':>{lw}}  {'':<{uw}}"
         for x, v, lim in zip(r.checks, vals, lims):
             sev = _paint(f"{x.severity:<4}", x.severity, color)
-            lines.append(f"  {sev}  {x.id:<{idw}}  {v:>{vw}}  {lim:>{lw}}  {x.message}")
+            lines.append(f"  {sev}  {x.id:<{idw}}  {v:>{vw}}  {lim:>{lw}}  {x.unit:<{uw}}  {x.message}")
             if x.severity != "pass" and x.remedy:
-                lines.append(f"  {'':4}  {'':<{idw}}  {'':>{vw}}  {'':>{lw}}  -> {x.remedy}")
+                lines.append(f"{pad}  -> {x.remedy}")
+            elif x.severity == "pass" and x.cleared_by:
+                lines.append(f"{pad}  passes: {x.cleared_by}")
         if r.skipped:
             ids = ", ".join(s["id"] for s in r.skipped)
             lines.append(f"  skipped: {ids}")

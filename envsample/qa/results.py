@@ -21,12 +21,28 @@ SEVERITIES = ("pass", "warn", "fail")
 RANK = {s: i for i, s in enumerate(SEVERITIES)}
 
 
+#: Units of check values and thresholds (``CheckResult.unit``), with their meaning.  Values are
+#: stored in their unit (a share of 0.25 is stored as 25 with unit "%"), so the terminal table,
+#: the HTML page, the CSV and the JSON all show the same number.
+UNITS = {
+    "": "no unit (a name, yes/no, or a count of levels)",
+    "px": "pixels",
+    "%": "percent (of the sphere's solid angle or of the light, as the message says)",
+    "stops": "log2 ratio",
+    "ratio": "a ratio of two like quantities",
+    "deg": "degrees",
+    "xy": "CIE 1931 xy chromaticity distance",
+    "lx": "lux (calibrated maps)",
+    "map*sr": "map units x steradians (irradiance of an uncalibrated map)",
+}
+
+
 #: Name and version of the JSON report of one map (``Report.to_dict``).
-REPORT_SCHEMA = Schema("envsample.qa-report", 2)
+REPORT_SCHEMA = Schema("envsample.qa-report", 3)
 
 
 #: Name and version of the JSON document holding many reports (:func:`report_to_json`).
-REPORTS_SCHEMA = Schema("envsample.qa-reports", 2)
+REPORTS_SCHEMA = Schema("envsample.qa-reports", 3)
 
 
 def jsonable(x):
@@ -49,14 +65,22 @@ def jsonable(x):
     return str(x)
 
 
+class NotApplicable(Exception):
+    """Raised by a check that does not apply to this map; :func:`~envsample.qa.run.check_map` lists it as skipped
+    with the exception's text as the reason."""
+
+
 @dataclass
 class CheckResult:
     """The outcome of one check.
 
     ``id`` is the stable check name; ``severity`` one of :data:`SEVERITIES`;
     ``value`` the measured quantity and ``threshold`` the limit it was compared with
-    (numbers, strings or None; units in the message); ``message`` one line;
-    ``remedy`` one line ("" when nothing is to be done); ``details`` JSON-ready extras.
+    (numbers, strings or None), both in ``unit`` (one of :data:`UNITS`; "" for a
+    value without a unit, such as a name or yes/no); ``message`` one line;
+    ``remedy`` one line ("" when nothing is to be done); ``cleared_by`` says, for a
+    passing check whose value is past its threshold, which criterion let it pass
+    ("" otherwise); ``details`` JSON-ready extras.
     """
 
     id: str
@@ -66,10 +90,14 @@ class CheckResult:
     message: str = ""
     remedy: str = ""
     details: dict = field(default_factory=dict)
+    unit: str = ""
+    cleared_by: str = ""
 
     def __post_init__(self):
         if self.severity not in RANK:
             raise ValueError(f"severity must be one of {', '.join(SEVERITIES)}, got {self.severity!r}")
+        if self.unit not in UNITS:
+            raise ValueError(f"unit must be one of {', '.join(map(repr, UNITS))}, got {self.unit!r}")
 
     def to_dict(self) -> dict:
         return {
@@ -77,7 +105,9 @@ class CheckResult:
             "severity": self.severity,
             "value": jsonable(self.value),
             "threshold": jsonable(self.threshold),
+            "unit": self.unit,
             "message": self.message,
+            "cleared_by": self.cleared_by,
             "remedy": self.remedy,
             "details": jsonable(self.details),
         }

@@ -14,7 +14,7 @@ from envsample.io.maps import MapImage, file_sha256, read_map
 from envsample.qa.checks import CHECKS
 from envsample.qa.context import CheckContext
 from envsample.qa.profile import load_profile
-from envsample.qa.results import CheckResult, Report, Source
+from envsample.qa.results import CheckResult, NotApplicable, Report, Source
 
 
 def _file_sha256(p: Path) -> str | None:
@@ -99,6 +99,8 @@ def check_map(path_or_image, *, profile=None, checks: Iterable[str] | None = Non
             continue
         try:
             results.append(fn(ctx))
+        except NotApplicable as e:
+            skipped.append({"id": cid, "reason": str(e)})
         except EnvsampleError as e:
             # A lower layer refused this map on purpose (one-line message); report it, keep the others.
             results.append(CheckResult(cid, "fail", message=f"could not run: {e}",

@@ -313,18 +313,41 @@ def pdf_png(rgb: np.ndarray, primaries: str, emitters: list[dict]) -> tuple[byte
     return data, caption
 
 
-def clip_settings(rep: dict) -> tuple[float | None, float]:
-    """(plateau level, relative tolerance) when the clipping check failed on a plateau, else (None, 0)."""
+def clip_settings(rep: dict) -> tuple:
+    """(clip level(s), relative tolerance) when the clipping check failed on clipped values, else (None, 0).
+
+    A report of this version lists one level per clipped channel (``details["channels"]``, with
+    the tolerance as ``band_width``): the levels come back as [R, G, B] with None where a channel
+    is not clipped.  An older report's single plateau level applies to the largest channel.
+    """
     c = _check(rep, "clipping") or {}
-    plateau = (c.get("details") or {}).get("plateau") or {}
-    level = finite(plateau.get("level"))
-    if c.get("severity") != "fail" or level is None:
+    details = c.get("details") or {}
+    if c.get("severity") != "fail":
+        return None, 0.0
+    channels = details.get("channels")
+    if isinstance(channels, list) and channels:
+        levels = [None, None, None]
+        for ch in channels:
+            k = "RGB".find(str((ch or {}).get("channel", "")))
+            level = finite((ch or {}).get("level"))
+            if k >= 0 and level is not None:
+                levels[k] = level
+        tol = finite(details.get("band_width")) or 0.0
+        return (levels if any(v is not None for v in levels) else None), tol
+    level = finite((details.get("plateau") or {}).get("level"))
+    if level is None:
         return None, 0.0
     try:
         tol = float(_profile(rep).section("clipping")["plateau_relative_tolerance"])
     except (KeyError, TypeError, ValueError, EnvsampleError):
         tol = 0.0
     return level, tol
+
+
+def _levels_text(level) -> str:
+    if np.ndim(level) == 0:
+        return num(level, 4)
+    return ", ".join(f"{ch} {num(v, 4)}" for ch, v in zip("RGB", level) if v is not None)
 
 
 def overlay_png(raw: np.ndarray, rep: dict) -> tuple[bytes, str, list]:
@@ -336,7 +359,7 @@ def overlay_png(raw: np.ndarray, rep: dict) -> tuple[bytes, str, list]:
                                 width=THUMB_WIDTH)
     caption = ("Range overlay: the map in grey, with pixels that hide or lose light in false colour "
                "(a thumbnail pixel takes the worst class of the map pixels it covers). Clipped: at the plateau "
-               "the clipping check failed on" + (f" (value {num(level, 4)})" if level is not None else
+               "the clipping check failed on" + (f" (value {_levels_text(level)})" if level is not None else
                                                  "; none here") + "; over range: above the half-float maximum "
                f"{HALF_FLOAT_MAX:g} or infinite; invalid: NaN or negative.")
     legend = [(name, RANGE_COLORS[name], counts[name]) for name in ("clipped", "over range", "invalid")]
@@ -349,7 +372,9 @@ def overlay_png(raw: np.ndarray, rep: dict) -> tuple[bytes, str, list]:
 def _check_rows(rep: dict) -> list[dict]:
     rows = []
     for c in rep.get("checks", []):
-        unit, factor = _UNITS.get(c.get("id"), ("", 1.0))
+        unit, factor = _UNITS.get(c.get("id"), (c.get("unit", ""), 1.0))
+        if "unit" in c:  # qa-report v3: values are stored in their unit (percent already), not scaled again
+            factor = 1.0
         if c.get("id") == "light-level" and ((c.get("details") or {}).get("unit") == "lx"):
             unit = "lx"
         sev = c.get("severity", "error")

@@ -642,7 +642,8 @@ def range_overlay(rgb, *, clip_level: float | None = None, clip_tolerance: float
     Classes (:data:`RANGE_COLORS`), checked on the largest channel of each map pixel:
     ``invalid`` (NaN or negative), ``over range`` (``+Inf`` or above ``over_level``, e.g.
     the half-float maximum), ``clipped`` (within ``clip_tolerance`` (relative) of
-    ``clip_level``, the plateau a clipping check found; ``None``: none).  The thumbnail
+    ``clip_level``, the level a clipping check found: one number for the largest channel, or
+    one per channel (R, G, B; None for a channel that is not clipped); ``None``: none).  The thumbnail
     is the tone-mapped map in grey, downsampled like :func:`thumbnail`; a thumbnail
     pixel takes the colour of the worst class among the map pixels it covers
     (invalid > over range > clipped), so a single bad pixel still shows.  Maps
@@ -656,8 +657,14 @@ def range_overlay(rgb, *, clip_level: float | None = None, clip_tolerance: float
         invalid = np.isnan(arr).any(axis=2) | (np.nan_to_num(arr, nan=0.0) < 0).any(axis=2)
         over = ~invalid & (top > over_level)
         clipped = np.zeros_like(over)
-        if clip_level is not None and clip_level > 0:
-            clipped = ~invalid & ~over & (top >= clip_level * (1.0 - clip_tolerance))
+        if clip_level is not None and np.ndim(clip_level) == 0:
+            if clip_level > 0:
+                clipped = ~invalid & ~over & (top >= clip_level * (1.0 - clip_tolerance))
+        elif clip_level is not None:
+            for c, level in enumerate(clip_level):
+                if level is not None and level > 0:
+                    clipped |= arr[..., c] >= level * (1.0 - clip_tolerance)
+            clipped &= ~invalid & ~over
     counts = {"clipped": int(clipped.sum()), "over range": int(over.sum()), "invalid": int(invalid.sum())}
     grey = thumbnail(arr.astype(np.float32), width=width)
     f = max(1, arr.shape[1] // int(width))

@@ -71,3 +71,44 @@ def test_missing_output_folder_is_a_usage_error(maps, tmp_path):
     r = _run("check", "--json", tmp_path / "nowhere" / "r.json", maps / "clean.exr")
     assert r.exit_code == 2
     assert "does not exist" in r.output
+
+
+def test_json_to_standard_output_is_only_json(maps):
+    """Issue 9: `check --json -` piped into a JSON parser must not meet the human table."""
+    r = CliRunner().invoke(main, ["check", str(maps / "clean.exr"), "--json", "-"])
+    assert r.exit_code == 0, r.output
+    doc = json.loads(r.stdout)
+    assert doc["schema"] == "envsample.qa-reports" and doc["reports"][0]["verdict"] == "pass"
+    assert "PASS" in r.stderr  # the table is still shown, on standard error
+
+
+@pytest.mark.parametrize("option", ["--json", "--html"])
+def test_an_output_that_is_the_input_is_refused_and_the_map_kept(maps, tmp_path, option):
+    """Issue 12 item 6: `check m.exr --json m.exr` replaced the map."""
+    m = tmp_path / "m.exr"
+    m.write_bytes((maps / "clean.exr").read_bytes())
+    before = m.read_bytes()
+    r = _run("check", m, option, tmp_path / "." / "m.exr")
+    assert r.exit_code == 2
+    assert "would replace the input" in r.output and "\n" not in r.output.strip()
+    assert m.read_bytes() == before
+
+
+@pytest.mark.parametrize("name, make", [
+    ("black", lambda: np.zeros((64, 128, 3), np.float32)),
+    ("huge", lambda: np.full((64, 128, 3), 3e38, np.float32)),
+    ("random-huge", lambda: (np.random.default_rng(5).random((64, 128, 3)) * 1e38).astype(np.float32)),
+    ("denormal", lambda: np.full((64, 128, 3), 1e-45, np.float32)),
+])
+def test_extreme_maps_get_a_report_with_the_value_range_check(tmp_path, name, make):
+    """Issue 12 item 8: all black, all 3e38, random up to 1e38 and all 1e-45 (denormal) maps end in a
+    report whose `value-range` check fails with a remedy, never an internal error (exit 3)."""
+    m = tmp_path / f"{name}.exr"
+    write_map(m, make(), pixel_type="float")
+    out = tmp_path / f"{name}.json"
+    r = _run("check", m, "--json", out)
+    assert r.exit_code == 1, r.output
+    doc = json.loads(out.read_text())["reports"][0]
+    vr = {c["id"]: c for c in doc["checks"]}["value-range"]
+    assert vr["severity"] == "fail" and vr["remedy"]
+    assert "finite and non-negative" not in r.output

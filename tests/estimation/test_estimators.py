@@ -300,8 +300,16 @@ def test_results_are_reproducible_bit_for_bit_and_independent_of_chunking(overca
     assert np.array_equal(g1, g2)
 
 
+def test_every_default_estimator_name_is_accepted_by_estimate_irradiance(overcast_table):
+    """Issue 9 item 7: listing the estimators and looping over them must not hit an error."""
+    assert estimators() == estimators("irradiance")
+    for name in estimators():
+        e = estimate_irradiance(overcast_table, UP, estimator=name, spp=4, seed=1)
+        assert np.all(np.isfinite(e))
+
+
 def test_estimator_names_and_bad_arguments(overcast_table):
-    names = estimators()
+    names = estimators(None)
     for required in ("cosine", "uniform-hemisphere", "uniform-sphere", "table", "bsdf-ggx", "mis-balance",
                      "mis-power", "mis-max", "mis-cutoff", "one-sample-balance"):
         assert required in names

@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
 
-from envsample.qa.emitters import label_wrapped
+from envsample.qa.emitters import label_wrapped, ring
 
 
 def test_label_wrapped_joins_across_the_seam_and_around_the_poles():
@@ -19,3 +19,50 @@ def test_label_wrapped_joins_across_the_seam_and_around_the_poles():
     assert labels[3, 0] == labels[4, 15] != 0
     assert labels[0, 2] == labels[0, 9] != 0
     assert len({labels[3, 0], labels[0, 2], labels[6, 7]}) == 3
+
+
+def _reference_components(mask: np.ndarray) -> np.ndarray:
+    """Components of the pixel graph (8-neighbours, columns wrapping, each pole row one vertex set) by
+    scipy.sparse.csgraph.connected_components, an outside reference library; -1 off the mask."""
+    from scipy import sparse
+    from scipy.sparse.csgraph import connected_components
+
+    h, w = mask.shape
+    idx = np.arange(h * w).reshape(h, w)
+    a, b = [], []
+    for dy in (-1, 0, 1):
+        for dx in (-1, 0, 1):
+            if dy == dx == 0:
+                continue
+            ys, xs = np.nonzero(mask)
+            ny, nx = ys + dy, (xs + dx) % w
+            ok = (ny >= 0) & (ny < h)
+            ok[ok] &= mask[ny[ok], nx[ok]]
+            a.append(idx[ys[ok], xs[ok]])
+            b.append(idx[ny[ok], nx[ok]])
+    for row in (0, h - 1):
+        cols = np.nonzero(mask[row])[0]
+        a.append(idx[row, cols[:-1]])
+        b.append(idx[row, cols[1:]])
+    a, b = np.concatenate(a), np.concatenate(b)
+    g = sparse.coo_matrix((np.ones(a.size), (a, b)), shape=(h * w, h * w))
+    _, comp = connected_components(g, directed=False)
+    return np.where(mask, comp.reshape(h, w), -1)
+
+
+def test_label_wrapped_and_ring_match_scipy(rng):
+    """Against outside reference libraries: the components of the wrapped pixel graph by
+    scipy.sparse.csgraph, and the ring by scipy.ndimage.maximum_filter (columns wrapping)."""
+    from scipy import ndimage
+
+    for _ in range(30):
+        h, w = int(rng.integers(2, 20)), int(rng.integers(3, 40))
+        mask = rng.random((h, w)) < rng.choice([0.05, 0.2, 0.45])
+        labels, n = label_wrapped(mask)
+        ref = _reference_components(mask)
+        on = mask.ravel()
+        mine, theirs = labels.ravel()[on], ref.ravel()[on]
+        assert np.array_equal(mine[:, None] == mine[None, :], theirs[:, None] == theirs[None, :])
+        assert n == len(np.unique(theirs)) and sorted(np.unique(mine)) == list(range(1, n + 1))
+        grown = ndimage.maximum_filter(mask, size=3, mode=("constant", "wrap"), cval=False)
+        assert np.array_equal(ring(mask), grown & ~mask)

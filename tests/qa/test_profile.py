@@ -3,6 +3,8 @@
 
 from __future__ import annotations
 
+import re
+
 import pytest
 from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
 
@@ -52,3 +54,22 @@ def test_bad_profiles_raise_one_line_errors_naming_the_problem(tmp_path, text, m
 def test_missing_profile_file_is_an_error(tmp_path):
     with pytest.raises(ProfileError, match="file not found"):
         load_profile(tmp_path / "none.toml")
+
+
+@pytest.mark.parametrize("settings, what", [
+    ({"spp": 100_000_000}, "spp x repeats x normals"),
+    ({"spp": 65536, "repeats": 1024}, "spp x repeats x normals"),
+    ({"table_width": 100000, "table_height": 50000}, "table_width x table_height"),
+])
+def test_oversized_sampling_requests_are_refused_when_the_profile_is_read(settings, what):
+    """Issue 12 item 4: a profile spp of 1e8 ended in MemoryError (exit 3) inside the check; it is now
+    refused in one line, naming the estimate and the limit, before anything is allocated."""
+    with pytest.raises(ProfileError, match=rf"\[sampling\] {re.escape(what)} = .* above the limit") as e:
+        load_profile({"sampling": settings})
+    assert "\n" not in str(e.value)
+
+
+def test_orientation_severity_must_be_warn_or_fail():
+    assert load_profile({"orientation": {"severity": "fail"}}).section("orientation")["severity"] == "fail"
+    with pytest.raises(ProfileError, match=r"\[orientation\] severity must be one of warn, fail, got 'pass'"):
+        load_profile({"orientation": {"severity": "pass"}})

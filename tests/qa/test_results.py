@@ -33,7 +33,7 @@ REPORT_KEYS = {"schema", "schema_version", "source", "readable", "verdict", "cou
 
 
 
-CHECK_KEYS = {"id", "severity", "value", "threshold", "message", "remedy", "details"}
+CHECK_KEYS = {"id", "severity", "value", "threshold", "unit", "message", "cleared_by", "remedy", "details"}
 
 
 
@@ -41,7 +41,7 @@ def test_json_report_keys_are_pinned(profile):
     """The JSON schema is a public interface: changing these keys needs a new schema version."""
     d = check_map(sunny(), profile=profile).to_dict()
     assert set(d) == REPORT_KEYS
-    assert (d["schema"], d["schema_version"]) == ("envsample.qa-report", 2)
+    assert (d["schema"], d["schema_version"]) == ("envsample.qa-report", 3)
     assert set(d["source"]) == {"path", "sha256", "size"}
     assert set(d["counts"]) == {"pass", "warn", "fail"}
     assert set(d["profile"]) == {"name", "path"} and d["profile"]["name"] == "tests"
@@ -51,6 +51,6 @@ def test_json_report_keys_are_pinned(profile):
     assert "not certified lighting calculations" in d["caution"]
     many = json.loads(report_to_json([check_map(sunny(), profile=profile), check_map("missing.exr")]))
     assert set(many) == {"schema", "schema_version", "summary", "reports"}
-    assert (many["schema"], many["schema_version"]) == ("envsample.qa-reports", 2)
+    assert (many["schema"], many["schema_version"]) == ("envsample.qa-reports", 3)
     assert many["summary"] == {"files": 2, "unreadable": 1, "pass": 1, "warn": 0, "fail": 0}
     assert [set(r) for r in many["reports"]] == [REPORT_KEYS, REPORT_KEYS]

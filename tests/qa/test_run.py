@@ -7,6 +7,7 @@ diameter (from memory) are the clean maps; a uniform sky is the furnace test (te
 from __future__ import annotations
 
 import hashlib
+import json
 
 import pytest
 from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
@@ -100,3 +101,21 @@ def test_a_check_refused_by_a_lower_layer_fails_without_stopping_the_others(monk
     report = check_map(sunny(64), checks=["seam", "poles"])
     assert report["seam"].severity == "fail" and "refused on purpose" in report["seam"].message
     assert report["poles"].severity == "pass"
+
+
+def test_check_map_never_raises_on_hostile_values(profile):
+    """Seeded fuzz (issue 12 item 8): maps of random sizes mixing NaN, +-Inf, negatives, zeros, denormals
+    and values near the float32 maximum always give a report; no check fails to run."""
+    rng = np.random.default_rng(12)
+    specials = np.array([np.nan, np.inf, -np.inf, -1.0, 0.0, -0.0, 1e-45, 1e-40, 3e38, 1e38, 1.0, 65504.0],
+                        np.float32)
+    for _ in range(40):
+        h = int(rng.integers(1, 40))
+        w = int(rng.choice([2 * h, int(rng.integers(1, 90))]))
+        img = rng.lognormal(0.0, 3.0, (h, w, 3)).astype(np.float32)
+        mask = rng.random(img.shape) < rng.choice([0.0, 0.01, 0.3, 1.0])
+        img[mask] = rng.choice(specials, size=int(mask.sum()))
+        report = check_map(img, profile=profile)
+        assert report.readable and report.checks[0].id == "read"
+        assert not [c.message for c in report.checks if c.message.startswith("could not run")]
+        json.dumps(report.to_dict(), allow_nan=False)

@@ -21,6 +21,12 @@ def test_emitter_positions_follow_the_documented_convention():
     assert _emitter_uv([]).shape == (0, 2)
 
 
+def test_the_overlay_takes_each_clipped_channel_when_the_clipping_check_failed():
+    failed = {"checks": [{"id": "clipping", "severity": "fail", "details": {
+        "band_width": 1e-6, "channels": [{"channel": "R", "level": 500.0}, {"channel": "B", "level": 80.0}]}}]}
+    assert clip_settings(failed) == ([500.0, None, 80.0], 1e-6)
+
+
 def test_the_overlay_takes_the_plateau_only_when_the_clipping_check_failed():
     failed = {"checks": [{"id": "clipping", "severity": "fail", "details": {"plateau": {"level": 500.0}}}],
               "profile": {"path": None}}

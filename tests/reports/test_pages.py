@@ -251,10 +251,12 @@ def test_measured_values_thresholds_and_units_are_shown(maps, pages):
     cells = re.findall(r"<td[^>]*>(.*?)</td>", row)
     assert cells[0] == str(r["resolution"].value) and cells[1] == str(r["resolution"].threshold)
     assert cells[2] == "px wide"
-    # Fractions are shown in per cent with the unit saying so.
+    # Shares are shown in per cent with the unit saying so, the number the report holds (qa-report v3
+    # stores each value in its unit, so the terminal, the page and the JSON show the same number).
     row = raw.split('<td class="id">orientation</td>')[1].split("</tr>")[0]
     cells = re.findall(r"<td[^>]*>(.*?)</td>", row)
-    assert float(cells[0]) == pytest.approx(100.0 * r["orientation"].value, rel=1e-3)
+    assert r["orientation"].unit == "%"
+    assert float(cells[0]) == pytest.approx(r["orientation"].value, rel=1e-3)
     assert cells[2].startswith("% of the light")
     assert "<th>measured</th><th>threshold</th><th>unit</th>" in raw
 

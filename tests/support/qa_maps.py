@@ -73,3 +73,40 @@ def clipped_sun(width=W):
 def srgb_encode(x):
     """IEC 61966-2-1 encoding of linear values in [0, 1]."""
     return np.where(x <= 0.0031308, 12.92 * x, 1.055 * np.power(x, 1 / 2.4) - 0.055)
+
+
+def debevec_malik_merge(radiance, *, exposures=(1 / 64, 1 / 8, 1.0, 8.0), noise=0.004, seed=7):
+    """A captured HDR made here: 8-bit exposures of ``radiance`` with sensor noise, merged back.
+
+    Camera: response Z = 255 (E t)^(1/2.2) clipped to [0, 255] (a known response), Gaussian read
+    noise of ``noise`` x full scale before quantisation.  Merge: Debevec, P. E. and Malik, J. (1997).
+    Recovering high dynamic range radiance maps from photographs. SIGGRAPH 97, eq. 6: ln E =
+    sum w(Z) (g(Z) - ln t) / sum w(Z), with the hat weight w(z) = min(z, 255 - z) and the known
+    g = ln f^-1.  The result is float32 scene-referred radiance whose values sit on no lattice.
+    """
+    rng = np.random.default_rng(seed)
+    e = np.asarray(radiance, dtype=np.float64)
+    num = np.zeros_like(e)
+    den = np.zeros_like(e)
+    for t in exposures:
+        x = np.clip(e * t, 0.0, None) ** (1 / 2.2) + rng.normal(0.0, noise, e.shape)
+        z = np.clip(np.round(255.0 * x), 0, 255)
+        w = np.minimum(z, 255.0 - z)
+        g = 2.2 * np.log(np.maximum(z, 0.5) / 255.0)  # ln of the linear exposure f^-1(Z)
+        num += w * (g - math.log(t))
+        den += w
+    merged = np.exp(num / np.maximum(den, 1e-12))
+    # Pixels no exposure measured (w = 0 everywhere) take the nearest exposure's estimate.
+    merged = np.where(den > 0, merged, e)
+    return merged.astype(np.float32)
+
+
+def eight_bit(img, *, scale=1.0, srgb=False):
+    """A display-referred copy: values / max to [0, 1], quantised to 8 bits (sRGB-encoded if asked), times ``scale``."""
+    x = np.clip(np.asarray(img, dtype=np.float64) / np.percentile(img, 99.0), 0.0, 1.0)
+    if srgb:
+        k = np.round(255.0 * srgb_encode(x)) / 255.0
+        v = np.where(k <= 0.04045, k / 12.92, ((k + 0.055) / 1.055) ** 2.4)
+    else:
+        v = np.round(255.0 * x) / 255.0
+    return (v * scale).astype(np.float32)

@@ -9,22 +9,18 @@ from __future__ import annotations
 from collections.abc import Callable
 
 from envsample.qa.checks.clipping import check_clipping
-from envsample.qa.checks.container import (
-    check_channels,
-    check_chromaticities,
-    check_hdr,
-    check_pixel_type,
-    check_read,
-)
+from envsample.qa.checks.container import check_channels, check_chromaticities, check_pixel_type, check_read
+from envsample.qa.checks.content import check_hdr
 from envsample.qa.checks.geometry import (
     check_aspect,
+    check_hemisphere,
     check_orientation,
     check_poles,
     check_resolution,
     check_seam,
 )
-from envsample.qa.checks.light import check_dynamic_range, check_light_level, check_sun
-from envsample.qa.checks.pixels import check_inf, check_nan, check_negative
+from envsample.qa.checks.light import check_dynamic_range, check_exposure, check_light_level, check_sun
+from envsample.qa.checks.pixels import check_inf, check_nan, check_negative, check_value_range
 from envsample.qa.checks.sampling import check_sampling
 from envsample.qa.context import CheckContext
 from envsample.qa.results import CheckResult
@@ -43,24 +39,16 @@ CHECKS: dict[str, Callable[[CheckContext], CheckResult]] = {
     "nan": check_nan,
     "inf": check_inf,
     "negative": check_negative,
+    "value-range": check_value_range,
     "dynamic-range": check_dynamic_range,
     "clipping": check_clipping,
     "seam": check_seam,
     "poles": check_poles,
     "orientation": check_orientation,
+    "hemisphere": check_hemisphere,
     "sun": check_sun,
     "sampling": check_sampling,
     "light-level": check_light_level,
+    "exposure": check_exposure,
     "chromaticities": check_chromaticities,
 }
-
-
-# =============================================================================
-# the entry point
-# =============================================================================
-
-
-# =============================================================================
-# formatting
-# =============================================================================
-

@@ -1,7 +1,7 @@
-"""Checks of the file and its container: ``read``, ``hdr``, ``pixel-type``, ``channels``, ``chromaticities``.
+"""Checks of the file and its container: ``read``, ``pixel-type``, ``channels``, ``chromaticities``.
 
 Chromaticities are compared with the named RGB spaces of :data:`envsample.core.constants.PRIMARIES`
-(ITU-R BT.709, BT.2020, ACES AP0/AP1); sRGB decoding of 8/16-bit images follows IEC 61966-2-1:1999.
+(ITU-R BT.709, BT.2020, ACES AP0/AP1).
 """
 
 from __future__ import annotations
@@ -22,24 +22,6 @@ def check_read(ctx: CheckContext) -> CheckResult:
     extra = ", ".join(x for x in (im.pixel_type, im.compression) if x)
     return CheckResult("read", "pass", value=fmt, threshold=None,
                        message=f"read {ctx.width}x{ctx.height} {fmt}" + (f" ({extra})" if extra else ""))
-
-
-def check_hdr(ctx: CheckContext) -> CheckResult:
-    im = ctx.image
-    if ctx.all_finite:
-        peak = float(ctx.raw.max()) if ctx.raw.size else None
-    else:
-        finite = ctx.raw[ctx.finite]
-        peak = float(finite.max()) if finite.size else None
-    if im.is_hdr:
-        return CheckResult("hdr", "pass", value=True, threshold=True,
-                           message=f"high dynamic range data ({im.pixel_type}), brightest value {fmt(peak)}")
-    return CheckResult(
-        "hdr", "fail", value=False, threshold=True,
-        message=f"{im.pixel_type} {im.format} holds display-referred values that stop at 1.0: light sources are clipped",
-        remedy="supply a linear HDR capture (.exr or .hdr); an LDR image cannot light a scene correctly",
-        details={"max_code_value": peak},
-    )
 
 
 def check_pixel_type(ctx: CheckContext) -> CheckResult:
@@ -105,22 +87,22 @@ def check_chromaticities(ctx: CheckContext) -> CheckResult:
     chroma = ctx.image.chromaticities
     if chroma is None:
         basis = "OpenEXR's default" if ctx.image.format == "exr" else "no primaries in the file"
-        return CheckResult("chromaticities", "pass", value=None, threshold=s["tolerance"],
+        return CheckResult("chromaticities", "pass", value=None, threshold=s["tolerance"], unit="xy",
                            message=f"no chromaticities stored ({basis}); assuming {assumed}")
     named = {n: _chroma_distance(chroma, n) for n in PRIMARIES}
     best = min(named, key=named.get)
     match = best if named[best] <= s["tolerance"] else None
     details = {"file": {k: list(v) for k, v in chroma.items()}, "matches": match, "assumed": assumed}
     if assumed not in PRIMARIES:
-        return CheckResult("chromaticities", "pass", value=match, threshold=s["tolerance"],
+        return CheckResult("chromaticities", "pass", value=match, threshold=s["tolerance"], unit="",
                            message=f"file primaries {match or 'unnamed'}; luminance uses the channel {assumed}",
                            details=details)
     d = named[assumed]
     if d <= s["tolerance"]:
-        return CheckResult("chromaticities", "pass", value=d, threshold=s["tolerance"],
+        return CheckResult("chromaticities", "pass", value=d, threshold=s["tolerance"], unit="xy",
                            message=f"file primaries match the assumed {assumed}", details=details)
     said = match or "unnamed primaries"
-    return CheckResult("chromaticities", "warn", value=d, threshold=s["tolerance"],
+    return CheckResult("chromaticities", "warn", value=d, threshold=s["tolerance"], unit="xy",
                        message=f"file says {said} but luminance assumes {assumed} (xy off by {fmt(d)})",
                        remedy=(f"set [profile] primaries = \"{match}\"" if match else
                                "convert the map to a known RGB space, or set [profile] primaries"),

@@ -19,7 +19,7 @@ from envsample.core.latlong import reduce_power
 from envsample.qa.context import CheckContext
 from envsample.qa.emitters import Emitter
 from envsample.qa.messages import fmt, pct
-from envsample.qa.results import CheckResult
+from envsample.qa.results import CheckResult, NotApplicable
 from envsample.reference.irradiance import reference_irradiance
 from envsample.sampling.table import build_table
 from envsample.validation.render import render_estimates
@@ -92,10 +92,14 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
     s = ctx.settings("sampling")
     prim = ctx.profile.primaries
     size = (min(s["table_width"], ctx.width), min(s["table_height"], ctx.height))
-    if not ctx.total_power > 0.0:
-        return CheckResult("sampling", "pass", value=None, threshold=s["warn_rmse"],
-                           message="the map is black: nothing to sample")
-    small = ctx.rgb if size == (ctx.width, ctx.height) else reduce_power(ctx.rgb, size)
+    top = ctx.scan.raw_max
+    vr = ctx.settings("value-range")
+    if not (ctx.total_power > 0.0 and vr["fail_below_peak"] <= top <= vr["fail_above"]):
+        raise NotApplicable("the map has no usable light (see value-range)")
+    if size == (ctx.width, ctx.height):
+        small = ctx.rgb
+    else:
+        small = ctx.scan.reduced if ctx.scan.reduced is not None else reduce_power(ctx.rgb, size)
     table = build_table(small, primaries=prim)
     normals = _fibonacci_normals(s["normals"])
     ref = reference_irradiance(small, normals)
@@ -138,4 +142,5 @@ def check_sampling(ctx: CheckContext) -> CheckResult:
     else:
         sev, limit = "pass", s["warn_rmse"]
     remedy = "; ".join(advice) if sev != "pass" else ""
-    return CheckResult("sampling", sev, value=value, threshold=limit, message=msg, remedy=remedy, details=details)
+    return CheckResult("sampling", sev, value=value, threshold=limit, unit="ratio", message=msg, remedy=remedy,
+                       details=details)

@@ -36,8 +36,17 @@ def test_seam_not_raised_by_rolling_the_map(profile):
 def test_upside_down_map_warns_orientation_only(profile):
     report = check_map(np.flipud(sunny()).copy(), profile=profile)
     assert non_pass(report) == {"orientation": "warn"}
-    assert report["orientation"].value < 0.5
+    assert report["orientation"].value < 50.0 and report["orientation"].unit == "%"
+    assert "envsample fix --flip" in report["orientation"].remedy
     assert report.exit_code() == 0 and report.exit_code(strict=True) == 1
+
+
+def test_profile_sets_the_severity_of_an_upside_down_map(profile_path, tmp_path):
+    """Issue 9: a library that never takes upside-down maps can make the check fail."""
+    p = tmp_path / "strict.toml"
+    p.write_text(profile_path.read_text() + '\n[orientation]\nseverity = "fail"\n')
+    report = check_map(np.flipud(sunny()).copy(), profile=p)
+    assert non_pass(report) == {"orientation": "fail"}
 
 
 
@@ -63,3 +72,38 @@ def test_dark_low_resolution_map_fails_resolution_with_defaults():
     report = check_map(sunny(32), checks=["resolution"])
     assert report["resolution"].severity == "fail"
     assert check_map(sunny(128), checks=["resolution"])["resolution"].severity == "warn"
+
+
+@pytest.mark.parametrize("rows", [H // 2, 2 * H // 3])
+def test_an_upper_hemisphere_is_recognised_with_its_own_remedy(profile, rows):
+    """Issue 9: a hemisphere-only map (4:1, or stretched to 3:1) was told to flip vertically."""
+    full = sunny(ground_albedo=0.0)
+    sky = full[: H // 2]
+    idx = np.minimum((np.arange(rows) * (H // 2) / rows).astype(int), H // 2 - 1)
+    img = np.ascontiguousarray(sky[idx])
+    report = check_map(img, profile=profile)
+    assert report["hemisphere"].severity == "fail"
+    assert "--pad-hemisphere" in report["hemisphere"].remedy and "--pad-hemisphere" in report["aspect"].remedy
+    assert "flip" not in report["orientation"].remedy
+
+
+def test_an_upper_hemisphere_stretched_to_two_to_one_is_recognised(profile):
+    """Its top row is a zenith (constant) while its bottom row, which should be the nadir, is a horizon."""
+    full = sunny(ground_albedo=0.0) + np.float32(0.0)
+    sky = full[: H // 2]
+    stretched = np.ascontiguousarray(np.repeat(sky, 2, axis=0))
+    # A horizon that varies with azimuth (a skyline), so the bottom row is not constant.
+    stretched[-3:, ::3] *= 0.1
+    report = check_map(stretched, profile=profile)
+    assert report["hemisphere"].severity == "fail" and "stretched" in report["hemisphere"].message
+    assert report["orientation"].severity == "pass"
+
+
+def test_a_full_sphere_is_not_a_hemisphere(profile):
+    c = check_map(sunny(), profile=profile)["hemisphere"]
+    assert c.severity == "pass" and c.unit == "ratio"
+
+
+def test_an_upper_hemisphere_fails_aspect_and_hemisphere_only(profile):
+    report = check_map(sunny(ground_albedo=0.0)[: H // 2].copy(), profile=profile)
+    assert non_pass(report) == {"aspect": "fail", "hemisphere": "fail"}

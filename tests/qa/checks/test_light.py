@@ -97,6 +97,36 @@ def test_flat_map_dynamic_range_in_stops():
     assert c.severity == "pass" and c.value == pytest.approx(3.0)
 
 
+def test_dynamic_range_of_a_sky_over_a_black_ground_uses_the_lit_pixels():
+    """Issue 9: `dynamic-range` was skipped as "p99.9/p1 undefined" on the tool's own `sky sun`
+    (half the sphere black).  Over the lit upper hemisphere cos(theta) is uniform in solid angle, so the
+    q-quantile of the overcast sky (1 + 2 cos theta) / 3 is (1 + 2 q) / 3 (closed form): p99.9/p1 is
+    log2(2.998 / 1.02) = 1.556 stops (to the histogram's 0.4 % and the pixel centres)."""
+    c = check_map(skies.make_sky("overcast", width=256), checks=["dynamic-range"])["dynamic-range"]
+    assert c.severity == "pass" and c.value == pytest.approx(math.log2(2.998 / 1.02), abs=0.01)
+    assert c.unit == "stops" and "black and left out" in c.message
+    c = check_map(skies.make_sky("sun", width=256), checks=["dynamic-range"])["dynamic-range"]
+    assert c.severity == "pass" and c.value is not None
+
+
+@pytest.mark.parametrize("stops, severity", [(-10.0, "warn"), (-3.0, "pass"), (0.0, "pass"), (7.0, "warn")])
+def test_exposure_plausibility(stops, severity):
+    """Issue 9: maps 10 stops too dark and 7 too bright passed.  A uniform sky L gives E = pi L
+    (textbook), so E / pi = L and the check reports log2(L) stops."""
+    img = np.full((64, 128, 3), 2.0 ** stops, np.float32)
+    c = check_map(img, checks=["exposure"])["exposure"]
+    assert c.severity == severity and c.value == pytest.approx(stops, abs=1e-6) and c.unit == "stops"
+    if severity == "warn":
+        assert "envsample fix --exposure" in c.remedy
+
+
+def test_exposure_is_skipped_for_calibrated_maps():
+    report = check_map(np.full((64, 128, 3), 2.0 ** 14, np.float32), checks=["exposure"],
+                       profile={"light-level": {"calibrated": True}})
+    assert report.get("exposure") is None
+    assert {"id": "exposure", "reason": "the map is calibrated: light-level checks its lux"} in report.skipped
+
+
 def test_sun_check_reports_the_shared_finders_measures():
     """QA's sun check and envsample split see one sun: the details carry find_sun's result."""
     from envsample.lights.finder import find_sun
