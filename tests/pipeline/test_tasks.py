@@ -174,3 +174,21 @@ def test_a_250_character_file_name_is_processed(tmp_path):
     m = run_batch([lib], tmp_path / "out", workers=0).maps[0]
     assert m.status == "done" and m.verdict in ("pass", "warn")
     assert len(Path(m.folder).name) < 100
+
+
+def test_batch_fix_builds_from_the_repaired_map_and_resumes(tmp_path):
+    """batch --fix: fixed.exr joins the check output, the table is built from it, and a rerun is up to date."""
+    import numpy as np
+
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    rgb = make_sky("overcast", width=WIDTH)
+    rgb[5, 7] = np.nan
+    write_map(lib / "hole.exr", rgb, pixel_type="float")
+    out = tmp_path / "out"
+    m = run_batch([lib], out, workers=0, fix=True).maps[0]
+    folder = out / m.folder
+    assert (folder / "fixed.exr").is_file() and (folder / "table.json").is_file(), m.figures
+    assert m.verdict in ("pass", "warn") and m.figures["table_note"].startswith("fixed (")
+    assert np.isfinite(load_table(folder / "table").image).all()
+    assert run_batch([lib], out, workers=0, fix=True).maps[0].status == "skipped"
