@@ -13,6 +13,11 @@ Usage:  python benchmarks/bench_verify.py [--quick] [--full]
 * ``--full``: the whole ``verify_map`` (reference, 12 default estimators, pictures,
   convergence, metrics) on the same map, seconds.
 * ``--quick``: a 512x256 map, for a smoke run.
+* ``--tune``: how stable the one-sample tuning pilot's choice is across seeds: for a sun
+  sky and a studio map (256x128), :func:`envsample.validation.tuning.tune_one_sample` with
+  6 seeds at 16 and at 64 samples per normal (the default, ``PILOT_SPP``); prints the
+  (heuristic, fraction) chosen per seed, how many seeds disagree with the most common
+  choice, the runner-up margin in standard errors and the seconds per tuning.
 
 Timings are the best of a few repeats (``time.perf_counter``); run on an idle machine.
 """
@@ -48,11 +53,42 @@ def best(fn, repeats=3):
     return min(times)
 
 
+def tune_stability(seeds: int = 6) -> None:
+    from collections import Counter
+
+    from envsample.validation.tuning import tune_one_sample
+
+    for kind in ("sun", "studio"):
+        table = build_table(skies.make_sky(kind, width=256))
+        for spp in (16, 64):
+            picks, margins, ratios, rel_se = [], [], [], []
+            t0 = time.perf_counter()
+            for seed in range(seeds):
+                r = tune_one_sample(table, spp=spp, seed=seed)
+                picks.append((r["heuristic"], r["table_fraction"]))
+                margins.append(r["margin_sigmas"])
+                ratios.append(r["variance_ratio"])
+                won = next(p for p in r["pilot"] if (p["heuristic"], p["table_fraction"]) == picks[-1])
+                rel_se.append(won["variance_vs_default_se"] / won["variance_vs_default"])
+            per = (time.perf_counter() - t0) / seeds
+            common, count = Counter(picks).most_common(1)[0]
+            print(f"{kind:7s} pilot {spp:3d} spp: {seeds - count} of {seeds} seeds differ from {common}; "
+                  f"margins {', '.join(f'{m:.2g}' for m in margins)} SE; {per:.2f} s per tuning")
+            print(f"        re-measured variance ratio {min(ratios):.3f}..{max(ratios):.3f} "
+                  f"(spread {max(ratios) / min(ratios) - 1:.1%}); the winner's pilot standard error "
+                  f"{np.mean(rel_se):.1%} of its value")
+            print(f"        choices: {picks}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="512x256 map instead of 2048x1024")
     ap.add_argument("--full", action="store_true", help="also time the whole verify_map report")
+    ap.add_argument("--tune", action="store_true", help="only measure the stability of the tuning pilot")
     args = ap.parse_args()
+    if args.tune:
+        tune_stability()
+        return
     width = 512 if args.quick else 2048
     rgb = skies.make_sky("rooftop", width=width)
     table = build_table(rgb)

@@ -36,6 +36,8 @@ FLAG_WORDS = (
     ("choose one with layer=NAME", "choose one with --layer NAME"),
     ("pass one of them as layer=", "pass one of them with --layer"),
     ("pixel_type='float'", "--pixel-type float"),
+    ("pass build_failed=True", "pass --build-failed"),
+    ("pass follow_links=True", "pass --follow-links"),
 )
 
 

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from envsample.cli.app import main
+from envsample.cli.app import flags, main
 from envsample.cli.options import table_options
 from envsample.cli.output import progress_bar
 from envsample.pipeline.batch import run_batch
@@ -32,21 +32,34 @@ from envsample.qa.profile import load_profile
               help="QA thresholds (TOML); default: the built-in profile.")
 @click.option("--strict", is_flag=True, help="Exit with status 1 when any map warns, too.")
 @table_options
+@click.option("--compensate", is_flag=True, help="MIS-compensated tables (valid only inside an MIS combination).")
+@click.option("--tune", is_flag=True, help="Store the tuned one-sample MIS selection in each table (as build --tune).")
+@click.option("--raw", is_flag=True, help="Also write table.bin in each map folder (as build --raw).")
+@click.option("--repair", is_flag=True, help="Build tables of maps with NaN/Inf pixels, set to 0 (as build --repair).")
+@click.option("--allow-aspect", is_flag=True, help="Build tables of maps that are not 2:1.")
+@click.option("--build-failed", is_flag=True, help="Also build tables for maps that failed QA.")
+@click.option("--prune", is_flag=True, help="Remove map folders whose source is gone or has changed.")
+@click.option("--follow-links", is_flag=True,
+              help="Accept symbolic links in source folders that lead outside them (refused by default).")
 def batch(sources, outdir, workers, verify, split_sun, force, fix, scheduler, profile_path, strict, size, primaries,
-          mapping, uniform_mix, up, rotation_deg):
+          mapping, uniform_mix, up, rotation_deg, compensate, tune, raw, repair, allow_aspect, build_failed, prune,
+          follow_links):
     """Check, build tables for (and optionally verify) every map under SOURCE.
 
     SOURCE is files, folders (searched recursively) or glob patterns. Each map's
     outputs appear in OUTDIR only when complete, so an interrupted batch can be
-    rerun to resume; maps whose source and options are unchanged are skipped.
-    Source files are never modified. Exit status: 0 every map passed or warned,
+    rerun to resume; maps whose source, options and output checksums are unchanged
+    are skipped, and outputs a rerun does not ask for (an earlier --verify) are kept.
+    Maps that fail QA get no table unless --build-failed. Source files are never
+    modified. Exit status: 0 every map passed or warned,
     1 any map failed or could not be read (with --strict also any warning), 2 usage
     error, 130 interrupted.
     """
 
     profile = load_profile(profile_path)
     options = {"size": size, "primaries": primaries.lower(), "mapping": mapping, "uniform_mix": uniform_mix,
-               "up": up, "rotation_deg": rotation_deg}
+               "up": up, "rotation_deg": rotation_deg, "compensate": compensate, "tune": tune, "raw": raw,
+               "repair": repair, "allow_aspect": allow_aspect}
     bar = progress_bar(0, "maps")
 
     def progress(p):
@@ -59,11 +72,12 @@ def batch(sources, outdir, workers, verify, split_sun, force, fix, scheduler, pr
     try:
         with bar:
             result = run_batch(list(sources), outdir, workers=workers, verify=verify, split_sun=split_sun, force=force,
-                               fix=fix, scheduler=scheduler, options=options, profile=profile, progress=progress)
+                               fix=fix, scheduler=scheduler, options=options, profile=profile,
+                               build_failed=build_failed, prune=prune, follow_links=follow_links, progress=progress)
     except BatchInterrupted as e:
         c = e.result.counts
-        click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete); "
-                   "rerun the same command to resume", err=True)
+        click.echo(f"interrupted: {c['done']} of {c['maps']} maps finished (their folders are complete), "
+                   f"{c['pending']} not done; rerun the same command to resume", err=True)
         return 130
     for m in result.maps:
         if m.verdict == "pass":
@@ -71,12 +85,17 @@ def batch(sources, outdir, workers, verify, split_sun, force, fix, scheduler, pr
         failed, warned = m.figures.get("failed_checks") or [], m.figures.get("warned_checks") or []
         detail = m.error or "; ".join(
             f"{label} {', '.join(ids)}" for label, ids in (("failed:", failed), ("warned:", warned)) if ids)
-        click.echo(f"{m.verdict:<5}  {m.source}" + (f"  {detail}" if detail else ""))
+        click.echo(f"{m.verdict:<5}  {m.source}" + (f"  {flags(detail)}" if detail else ""))
     c = result.counts
     click.echo(f"{c['maps']} maps: {c['pass']} pass, {c['warn']} warn, {c['fail']} fail, {c['error']} error "
                f"({c['skipped']} up to date, not redone)")
     for dup in result.duplicates:
-        click.echo("duplicate: " + " == ".join(dup["sources"]))
+        click.echo("duplicate: " + " == ".join(dup["sources"]) + "  (one folder serves them)")
+    for st in result.stale:
+        what = "removed" if st["pruned"] else "kept" + (" (--prune removes it)" if st["reason"] in (
+            "source gone", "source changed") else "")
+        click.echo(f"stale: {st['folder']}  {st['reason']}" + (f": {st['source']}" if st["source"] else "")
+                   + f"; {what}")
     line = _reference_line(result.maps)
     if line:
         click.echo(line)

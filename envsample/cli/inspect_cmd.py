@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import click
@@ -89,7 +88,10 @@ def _print_table_facts(f: dict) -> None:
          else "metadata and file sizes only (--verify reads and checks the arrays)"),
     ]
     if f.get("recommendation"):
-        rows.append(("advice", json.dumps(f["recommendation"])))
+        from envsample.validation.tuning import advice_text
+
+        for k, line in enumerate(advice_text(f["recommendation"])):
+            rows.append(("advice" if k == 0 else "", line))
     for k, note in enumerate(f["notes"]):
         rows.append(("note" if k == 0 else "", note))
     for k, item in enumerate(f["files"]):

@@ -8,7 +8,7 @@ import click
 
 from envsample.cli.app import main
 from envsample.cli.options import SIZE
-from envsample.cli.output import print_rows, progress_bar
+from envsample.cli.output import print_rows, progress_bar, warnings_as_lines
 from envsample.estimation.estimators import estimators as estimator_names
 from envsample.pipeline.verify import verify_map
 
@@ -45,44 +45,69 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
     if source is None or outdir is None:
         raise click.UsageError("give MAP_OR_TABLE and -o OUTDIR (or --list)")
     names = None if estimators is None else [e.strip() for e in estimators.split(",") if e.strip()]
-    with progress_bar(0, "verify") as bar:
+    with warnings_as_lines([]), progress_bar(0, "verify") as bar:
         def progress(label):
             bar.set_description(label)
             bar.refresh()
 
         m = verify_map(source, outdir, spp=spp, normals=normals, estimators=names, roughness=roughness, seed=seed,
                        table_size=table_size, sphere=not no_sphere, progress=progress)
-    tab = m["table"]
-    ref = m["reference"]
-    print_rows([
+    _print_report(source, outdir, m)
+    return 0
+
+
+def _fmt(x, spec: str, width: int) -> str:
+    """A number in a fixed-width column, or a dash where there is none (a black map has no errors)."""
+    return f"{x:{spec}}".rjust(width) if isinstance(x, (int, float)) else "-".rjust(width)
+
+
+def _print_report(source, outdir, m: dict) -> None:
+    tab, ref = m["table"], m["reference"]
+    rows = [
         ("verify", f"{source}  (table {tab['cells'][0]}x{tab['cells'][1]}, {tab['mapping']})"),
         ("normals", f"{m['normals']['width']}x{m['normals']['height']} x {m['spp']} spp, seed {m['seed']}"),
         ("reference", f"exact at {ref['resolution'][0]}x{ref['resolution'][1]}, relative error bound "
                       f"{ref['relative_error_bound']:.1e} ({ref['seconds']:.1f} s, its accuracy check "
                       f"{ref['accuracy_seconds']:.1f} s; {ref['backend']} kernel)"),
-    ])
+    ]
+    if m.get("scale"):
+        rows.append(("scale", m["scale"]["why"]))
+    print_rows(rows)
     click.echo("")
-    head = f"{'estimator':<20} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}  {'ns/sample':>9}  {'efficiency':>10}"
-    click.echo(head)
+    click.echo(f"{'estimator':<20} {'rel. RMSE':>9}  {'bias +- SE':>17}  {'firefly':>8}  {'ns/sample':>9}  "
+               f"{'efficiency':>10}")
     rec = m["recommended"]
     for name, e in m["estimators"].items():
-        bias = f"{e['mean_bias']:+.3f} +- {e['mean_bias_se']:.3f}"
+        bias = (f"{e['mean_bias']:+.3f} +- {e['mean_bias_se']:.3f}"
+                if isinstance(e.get("mean_bias"), float) and isinstance(e.get("mean_bias_se"), float) else "-")
         # An unbiased estimator whose mean is many SE off has missed rare, bright samples (the sun).
-        mark = "  <- recommended" if name == rec["estimator"] else ("" if e["bias_consistent_with_zero"]
-                                                                   else "  (mean off: misses rare bright light)")
-        click.echo(f"{name:<20} {e['relative_rmse']:>9.4g}  {bias:>17}  {e['firefly_index']:>8.3g}  "
-                   f"{e['time_per_sample_s'] * 1e9:>9.0f}  {e['efficiency']:>10.3g}{mark}")
+        mark = "  <- recommended" if name == rec["estimator"] else (
+            "  (mean off: misses rare bright light)" if e.get("bias_consistent_with_zero") is False else "")
+        if e.get("tuned_from"):
+            mark += f"  (the table's tuned setting: {e['tuned_from']['estimator']} at {e['tuned_from']['table_fraction']:g})"
+        click.echo(f"{name:<20} {_fmt(e.get('relative_rmse'), '.4g', 9)}  {bias:>17}  "
+                   f"{_fmt(e.get('firefly_index'), '.3g', 8)}  {_fmt(e['time_per_sample_s'] * 1e9, '.0f', 9)}  "
+                   f"{_fmt(e.get('efficiency'), '.3g', 10)}{mark}")
     if m.get("split"):
         _print_split(m["split"])
     click.echo("")
-    print_rows([
-        ("recommended", f"{rec['estimator']} (highest efficiency among estimators whose bias is within 4 SE; "
-                        f"least variance: {rec['lowest_variance']})"),
-        ("wrote", f"{outdir}/ (metrics.json and {len(list(Path(outdir).glob('*.exr')))} EXR, "
-                  f"{len(list(Path(outdir).glob('*.png')))} PNG files)"),
-    ])
+    if rec["estimator"] is None:
+        rows = [("recommended", "none: " + rec["rule"] + " (no light reaches any normal)")]
+    else:
+        rows = [("recommended", f"{rec['estimator']} (highest efficiency among estimators whose bias is within 4 SE; "
+                                f"least variance: {rec['lowest_variance']})")]
+    g = m.get("glossy")
+    if g:
+        angles = ", ".join(f"{a:g}" for a in g["view_angles_deg"])
+        rows.append(("glossy", f"GGX roughness {g['roughness']:g}, relative RMSE at view angles {angles} deg "
+                               f"({g['normals'][0]}x{g['normals'][1]} normals, map reduced to "
+                               f"{g['map'][0]}x{g['map'][1]}):"))
+        for name, e in g["estimators"].items():
+            rows.append(("", f"{name:<20} " + "  ".join(_fmt(x, ".3g", 8) for x in e["relative_rmse"])))
+    rows.append(("wrote", f"{outdir}/ (report.html, metrics.json and {len(list(Path(outdir).glob('*.exr')))} EXR, "
+                          f"{len(list(Path(outdir).glob('*.png')))} PNG files)"))
+    print_rows(rows)
     click.echo(f"({m['caution']})")
-    return 0
 
 
 def _print_split(doc: dict) -> None:

@@ -10,6 +10,9 @@ is the one check that an output path does not name one of a command's inputs.
 
 ``mkstemp`` creates 0600 files; the result gets
 the permissions of the file it replaces, else those a plain ``open()`` would give.
+The temporary name holds at most the first :data:`TEMP_NAME_CHARS` characters of the
+target's name, so a target whose own name is near the file system's limit (255 bytes on
+most) can still be written; an OS error names the target, never the temporary file.
 """
 
 from __future__ import annotations
@@ -21,8 +24,15 @@ from pathlib import Path
 
 from envsample.errors import EnvsampleError
 
-__all__ = ["OutputIsInputError", "atomic_write", "atomic_write_bytes", "atomic_write_text", "atomic_write_group",
-           "file_mode", "temporary_path", "refuse_overwriting_inputs", "same_file"]
+__all__ = ["TEMP_NAME_CHARS", "OutputIsInputError", "atomic_write", "atomic_write_bytes", "atomic_write_text",
+           "atomic_write_group", "file_mode", "temporary_path", "refuse_overwriting_inputs", "same_file"]
+
+#: Characters of the target's name kept in a temporary name (".NAME." + 8 random + ".tmp").
+TEMP_NAME_CHARS = 100
+
+
+def _prefix(name: str) -> str:
+    return f".{name[:TEMP_NAME_CHARS]}."
 
 
 class OutputIsInputError(EnvsampleError, ValueError):
@@ -48,7 +58,7 @@ def file_mode(path) -> int:
 def temporary_path(path, *, suffix: str = ".tmp") -> str:
     """Create and return an empty temporary file beside ``path`` (the caller renames or removes it)."""
     p = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name[:80]}.", suffix=suffix, dir=p.parent)
+    fd, tmp = tempfile.mkstemp(prefix=_prefix(p.name), suffix=suffix, dir=p.parent)
     os.close(fd)
     return tmp
 
@@ -60,6 +70,13 @@ def atomic_write(path, write, *, fsync: bool = True) -> Path:
     temporary file is removed and an existing file at ``path`` is left untouched.
     """
     return atomic_write_group([(path, write)], fsync=fsync)[0]
+
+
+def _naming(error: OSError, path: Path) -> OSError:
+    """The same OS error with the target as its file name (a full disk names the file being written)."""
+    if error.errno is None:
+        return error
+    return type(error)(error.errno, error.strerror, os.fspath(path))
 
 
 def atomic_write_bytes(path, data: bytes, *, fsync: bool = True) -> Path:
@@ -98,16 +115,25 @@ def atomic_write_group(items, *, fsync: bool = True) -> list[Path]:
     try:
         for p, write in items:
             mode = file_mode(p)
-            fd, tmp = tempfile.mkstemp(prefix=f".{p.name[:80]}.", suffix=".tmp", dir=p.parent)
+            try:
+                fd, tmp = tempfile.mkstemp(prefix=_prefix(p.name), suffix=".tmp", dir=p.parent)
+            except OSError as e:
+                raise _naming(e, p) from e
             temps.append(tmp)
-            with os.fdopen(fd, "wb") as f:
-                write(f)
-                f.flush()
-                if fsync:
-                    os.fsync(f.fileno())
-            os.chmod(tmp, mode)
+            try:
+                with os.fdopen(fd, "wb") as f:
+                    write(f)
+                    f.flush()
+                    if fsync:
+                        os.fsync(f.fileno())
+                os.chmod(tmp, mode)
+            except OSError as e:
+                raise _naming(e, p) from e
         for (p, _), tmp in zip(items, temps):
-            os.replace(tmp, p)
+            try:
+                os.replace(tmp, p)
+            except OSError as e:
+                raise _naming(e, p) from e
     except BaseException:
         for tmp in temps:
             with contextlib.suppress(FileNotFoundError):

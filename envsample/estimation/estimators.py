@@ -49,7 +49,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from envsample.core.color import luminance
-from envsample.core.compat import renamed_keywords
+from envsample.core.compat import renamed_keywords, warn_renamed
 from envsample.core.limits import check_memory
 from envsample.estimation.heuristics import heuristic_name, mis_weights, sample_counts
 from envsample.sampling.frames import Frame, make_frame
@@ -61,6 +61,8 @@ __all__ = [
     "Combination",
     "EstimatorSamples",
     "Integrand",
+    "RENAMED_ESTIMATORS",
+    "estimator_name",
     "estimate",
     "estimate_glossy",
     "estimate_irradiance",
@@ -92,8 +94,8 @@ class _Spec:
 def _build_registry() -> dict[str, _Spec]:
     reg = {
         "cosine": _Spec("single", ("cosine",)),
-        "uniform": _Spec("single", ("uniform-hemisphere",)),
-        "sphere": _Spec("single", ("uniform-sphere",)),
+        "uniform-hemisphere": _Spec("single", ("uniform-hemisphere",)),
+        "uniform-sphere": _Spec("single", ("uniform-sphere",)),
         "table": _Spec("single", ("table",)),
         "bsdf": _Spec("single", ("bsdf",)),
         "bsdf-ggx": _Spec("single", ("ggx",), glossy_only=True),
@@ -107,6 +109,19 @@ def _build_registry() -> dict[str, _Spec]:
 
 
 _ESTIMATORS = _build_registry()
+
+#: Former estimator names, accepted for one more version with a DeprecationWarning: they did
+#: not say what they sample (the hemisphere above the normal, or the whole sphere).
+RENAMED_ESTIMATORS = {"uniform": "uniform-hemisphere", "sphere": "uniform-sphere"}
+
+
+def estimator_name(name: str) -> str:
+    """The current name of an estimator: a former name (:data:`RENAMED_ESTIMATORS`) warns and is translated."""
+    new = RENAMED_ESTIMATORS.get(name)
+    if new is None:
+        return name
+    warn_renamed(name, new, what="estimator name", stacklevel=5)
+    return new
 
 
 def estimators(kind: str | None = "irradiance", *, sun: bool = False) -> tuple[str, ...]:
@@ -492,6 +507,7 @@ def _check_sun(sun, spec: _Spec, estimator: str):
 def _run(kind, table, frame, factor, estimator, spp, seed, fractions, table_method, beta, cutoff,
          return_samples, max_chunk_samples, sun=None):
     _check_table(table)
+    estimator = estimator_name(estimator)
     spec = _spec(estimator, kind)
     lights = _check_sun(sun, spec, estimator)
     strategies = [_strategy_for(r, kind, table, table_method, sun) for r in spec.roles]

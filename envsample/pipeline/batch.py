@@ -17,15 +17,17 @@ Output layout
 ::
 
     OUTDIR/
-      summary.json  summary.csv  index.html     one row per source (written last; the
-                                                 page by envsample.html.index_page)
+      summary.json  summary.csv  index.html     one row per source (written at the start
+                                                 and again last; the page by
+                                                 envsample.reports.pages.index_page)
       maps/<stem>-<sha8>/                        one folder per map name and content
-        manifest.json   written last: source sha256, options key, tool version,
-                        the files with sizes and SHA-256, the summary row
-        check.json      the QA report (envsample.qa, Report.to_dict())
-        thumb.png       tone-mapped thumbnail
-        table.json  table.npz                    when the map passes validation
-        verify/...                               with verify=True
+        manifest.json   written last: source sha256, tool version, and per output
+                        (check, table, verify) its options key, its files with
+                        sizes and SHA-256, and its part of the summary row
+        check.json  check.html  thumb.png        the QA report, its page, a thumbnail
+        table.json  table.npz  (table.bin)       when the map passed or warned
+                                                 (with build_failed also when it failed)
+        verify/  (report.html, metrics.json...)  with verify=True
       .staging/                                  only while a batch runs
       .lock                                      an empty file, locked while a batch runs
 
@@ -40,9 +42,20 @@ Each map is built in ``OUTDIR/.staging/<name>.<token>/`` and renamed into
 ``rename(2)``), so an interrupted or killed batch never leaves a partial map
 folder; the staging area is removed on exit, or at the start of the next batch
 if the process was killed.  A map folder whose manifest records the same source
-SHA-256, the same options key and the same tool version, and whose files are all
-present with their recorded sizes, is up to date and skipped unless ``force``.
-Source files are only ever opened for reading.
+SHA-256 and tool version, and for every output this run asks for the same options
+key and files whose SHA-256 still match, is up to date and skipped unless ``force``.
+Outputs a run does not ask for (an earlier verify) are kept.  Maps whose bytes
+are found under several names are done once, in the folder of the first name;
+the others' rows point at it (``duplicate_of``).  Folders in ``maps/`` that no
+source of the run claims are listed as stale (source gone, source changed, or not
+among this run's sources); ``prune`` removes the first two kinds.
+
+Sources are only ever opened for reading, and only regular files: a FIFO, a
+device or a socket named like a map is refused before a byte is read, and a
+symbolic link found in a source folder whose target lies outside that folder is
+refused unless ``follow_links``.  While a batch runs, ``summary.json`` says
+``"state": "running"`` and lists the maps still pending, so a batch killed with
+SIGKILL leaves a summary that says so.
 
 Determinism
 -----------
@@ -81,7 +94,7 @@ import os
 import re
 from collections.abc import Callable, Mapping
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
@@ -98,20 +111,19 @@ from envsample.pipeline.outcomes import (
 from envsample.pipeline.runners import import_distributed, make_runner
 from envsample.pipeline.summary import write_summaries
 from envsample.pipeline.tasks import (
+    ADDITIVE,
     MAPS_FOLDER,
     THUMB_WIDTH,
     VERIFY_SETTINGS,
     process_map,
+    read_manifest,
+    regular_file_sha256,
     remove_tree,
     up_to_date,
 )
 
 __all__ = [
     "BUILD_OPTIONS",
-    "SUMMARY_SCHEMA",
-    "MANIFEST_SCHEMA",
-    "ROW_FIELDS",
-    "VERDICTS",
     "BatchResult",
     "MapResult",
     "BatchProgress",
@@ -122,8 +134,9 @@ __all__ = [
     "process_map",
 ]
 
-#: Table options a batch accepts and their defaults (see :func:`envsample.sampling.table.build_table`);
-#: ``rotation_deg`` is in degrees.
+#: Table options a batch accepts and their defaults: the keywords of
+#: :func:`envsample.sampling.table.build_table` (``rotation_deg`` in degrees) and the
+#: per-map options of ``envsample build`` (``tune``, ``raw``, ``repair``, ``allow_aspect``).
 BUILD_OPTIONS = {
     "size": None,
     "primaries": "bt709",
@@ -131,18 +144,20 @@ BUILD_OPTIONS = {
     "uniform_mix": 0.0,
     "up": "y",
     "rotation_deg": 0.0,
+    "compensate": False,
+    "tune": False,
+    "raw": False,
+    "repair": False,
+    "allow_aspect": False,
 }
 
+_FLAGS = ("compensate", "tune", "raw", "repair", "allow_aspect")
+
 # Bump when the layout or the content of a map folder changes: old folders are then redone.
-_LAYOUT_VERSION = 1
+_LAYOUT_VERSION = 2
 _STAGING = ".staging"
 _NAME_CHARS = re.compile(r"[^A-Za-z0-9._-]+")
 _GLOB_CHARS = re.compile(r"[*?\[]")
-
-
-# =============================================================================
-# results
-# =============================================================================
 
 
 # =============================================================================
@@ -164,7 +179,61 @@ def _walk(folder: Path, extensions: tuple[str, ...], exclude: Path | None) -> li
     return found
 
 
-def expand_sources(sources, *, exclude=None) -> list[Path]:
+def _glob_root(pattern: str) -> Path:
+    """The folder a glob pattern searches: its leading components without wildcards."""
+    parts = []
+    for part in Path(pattern).parts:
+        if _GLOB_CHARS.search(part):
+            break
+        parts.append(part)
+    return Path(*parts) if parts else Path(".")
+
+
+def _collect_sources(sources, *, exclude=None, follow_links: bool = False) -> tuple[list[Path], dict]:
+    """(sorted unique files, {path: why refused}) for :func:`expand_sources` and :func:`run_batch`."""
+    from envsample.io.maps import supported_extensions
+
+    if isinstance(sources, (str, os.PathLike)):
+        sources = [sources]
+    extensions = supported_extensions()
+    ex = None if exclude is None else Path(exclude).resolve()
+    candidates: list[tuple[Path, Path | None]] = []  # (file, the folder it was found in, or None if named)
+    for src in sources:
+        text = os.fspath(src)
+        p = Path(text)
+        if p.is_dir():
+            candidates.extend((f, p) for f in _walk(p, extensions, ex))
+        elif p.exists() or p.is_symlink():
+            candidates.append((p, None))
+        elif _GLOB_CHARS.search(text):
+            matches = sorted(glob.glob(text, recursive=True))
+            if not matches:
+                raise EnvsampleError(f"{text}: the pattern matches no file; check the pattern and the folder")
+            root = _glob_root(text)
+            for m in matches:
+                mp = Path(m)
+                if mp.is_dir():
+                    candidates.extend((f, mp) for f in _walk(mp, extensions, ex))
+                else:
+                    candidates.append((mp, root))
+        else:
+            raise EnvsampleError(f"{text}: no such file or folder; check the path")
+    unique: dict[Path, Path] = {}
+    refused: dict[str, str] = {}
+    for c, tree in candidates:
+        key = c.resolve()
+        if _under(key, ex):
+            continue
+        if tree is not None and not follow_links and not _under(key, tree.resolve()):
+            # Named without the target (it may be a system file).
+            refused[os.fspath(c)] = (f"{c}: a symbolic link to a file outside the source folder {tree}; "
+                                     "refused (pass follow_links=True to include such links)")
+            continue
+        unique.setdefault(key, c)
+    return [unique[k] for k in sorted(unique, key=os.fspath)], refused
+
+
+def expand_sources(sources, *, exclude=None, follow_links: bool = False) -> list[Path]:
     """Files, folders and glob patterns to a sorted, de-duplicated list of files.
 
     Parameters
@@ -173,11 +242,15 @@ def expand_sources(sources, *, exclude=None) -> list[Path]:
         A file is taken as it is (whatever its extension: QA reports what it is).
         A folder is searched recursively for ``.exr`` and ``.hdr`` maps and for
         LDR images (``.png``, ``.jpg``, ``.jpeg``, ``.tif``, ``.tiff``), so that QA can
-        fail them; hidden files and folders are skipped.  A string with ``*``, ``?``
-        or ``[`` that is not an existing path is a glob pattern (``**`` recursive);
-        folders it matches are searched as above.
+        fail them; hidden files and folders are skipped, and linked folders are not
+        entered.  A string with ``*``, ``?`` or ``[`` that is not an existing path is a
+        glob pattern (``**`` recursive); folders it matches are searched as above.
     exclude : str or PathLike, optional
         A folder whose contents are never inputs (the batch's output folder).
+    follow_links : bool
+        Keep files found in a folder (or by a pattern) that are symbolic links to a
+        file outside that folder (or outside the pattern's fixed leading folders).
+        By default they are left out (:func:`run_batch` lists them as refused).
 
     Returns
     -------
@@ -190,35 +263,7 @@ def expand_sources(sources, *, exclude=None) -> list[Path]:
     EnvsampleError
         A source that does not exist and matches nothing.
     """
-    from envsample.io.maps import supported_extensions
-
-    if isinstance(sources, (str, os.PathLike)):
-        sources = [sources]
-    extensions = supported_extensions()
-    ex = None if exclude is None else Path(exclude).resolve()
-    candidates: list[Path] = []
-    for src in sources:
-        text = os.fspath(src)
-        p = Path(text)
-        if p.is_dir():
-            candidates.extend(_walk(p, extensions, ex))
-        elif p.exists():
-            candidates.append(p)
-        elif _GLOB_CHARS.search(text):
-            matches = sorted(glob.glob(text, recursive=True))
-            if not matches:
-                raise EnvsampleError(f"{text}: the pattern matches no file; check the pattern and the folder")
-            for m in matches:
-                mp = Path(m)
-                candidates.extend(_walk(mp, extensions, ex) if mp.is_dir() else [mp])
-        else:
-            raise EnvsampleError(f"{text}: no such file or folder; check the path")
-    unique: dict[Path, Path] = {}
-    for c in candidates:
-        key = c.resolve()
-        if not _under(key, ex):
-            unique.setdefault(key, c)
-    return [unique[k] for k in sorted(unique, key=os.fspath)]
+    return _collect_sources(sources, exclude=exclude, follow_links=follow_links)[0]
 
 
 def normalize_options(options: Mapping | None) -> dict:
@@ -227,7 +272,9 @@ def normalize_options(options: Mapping | None) -> dict:
     Keys (all optional, defaults in :data:`BUILD_OPTIONS`): ``size`` (``"WxH"`` or
     ``(width, height)``, None = the map's resolution), ``primaries``, ``mapping``,
     ``uniform_mix`` (in [0, 1)), ``up`` (``"y"`` or ``"z"``), ``rotation_deg`` (degrees;
-    the old names ``rotate`` and ``rotate_deg`` are still accepted).  Unknown keys raise ValueError listing the valid ones.
+    the old names ``rotate`` and ``rotate_deg`` are still accepted), and the flags
+    ``compensate``, ``tune``, ``raw``, ``repair``, ``allow_aspect`` (as ``envsample build``).
+    Unknown keys raise ValueError listing the valid ones.
     """
     from envsample.core.color import canonical_primaries
     from envsample.core.latlong import MAPPINGS, parse_size
@@ -256,6 +303,9 @@ def normalize_options(options: Mapping | None) -> dict:
     rotation = float(opts["rotation_deg"])
     if not math.isfinite(rotation):
         raise ValueError(f"rotation_deg must be a finite angle in degrees, got {opts['rotation_deg']!r}")
+    for name in _FLAGS:
+        if not isinstance(opts[name], (bool, np.bool_)):
+            raise ValueError(f"{name} must be True or False, got {opts[name]!r}")
     return {
         "size": None if size is None else [size[0], size[1]],
         "primaries": canonical_primaries(opts["primaries"]),
@@ -263,6 +313,7 @@ def normalize_options(options: Mapping | None) -> dict:
         "uniform_mix": mix,
         "up": up,
         "rotation_deg": rotation,
+        **{name: bool(opts[name]) for name in _FLAGS},
     }
 
 
@@ -272,12 +323,10 @@ def _map_name(path: Path, sha256: str, width: int = 8) -> str:
 
 
 def _hash_all(paths: list[Path]) -> list[tuple[str | None, str | None]]:
-    """(sha256, error) per path; hashing releases the GIL, so threads overlap the reads."""
-    from envsample.io.maps import file_sha256
-
+    """(sha256, error) per path; special files are refused before reading; threads overlap the reads."""
     def one(p: Path):
         try:
-            return file_sha256(p), None
+            return regular_file_sha256(p), None
         except MapReadError as e:
             return None, str(e)
 
@@ -287,18 +336,23 @@ def _hash_all(paths: list[Path]) -> list[tuple[str | None, str | None]]:
         return list(pool.map(one, paths))
 
 
-def _options_key(doc: dict) -> str:
+def _digest(doc: dict) -> str:
     return hashlib.sha256(json.dumps(doc, sort_keys=True, allow_nan=False).encode("utf-8")).hexdigest()
 
 
-# =============================================================================
-# the task: one map, from its file to a published folder
-# =============================================================================
-
-
-# =============================================================================
-# runners: in this process, a local process pool, a Dask cluster
-# =============================================================================
+def output_keys(opts: dict, profile, version: str) -> tuple[dict, dict]:
+    """The options document and key of each output (check, table, verify): what shapes it."""
+    common = {"layout": _LAYOUT_VERSION, "tool_version": version}
+    # raw and tune only add to a table (tasks.ADDITIVE): they are not part of its key, so a table
+    # made with them serves a run without them; a verify is tied to the very table.json it checked.
+    docs = {"check": {**common, "profile": profile.to_dict()["settings"], "thumb_width": THUMB_WIDTH},
+            "table": {**common, "build": {k: v for k, v in opts.items() if k not in ADDITIVE}},
+            "verify": {**common, "verify": dict(VERIFY_SETTINGS)}}
+    if opts.get("fix"):  # only when asked, so the check key of runs without it stays the same
+        docs["check"]["fix"] = True
+    keys = {name: _digest(doc) for name, doc in docs.items()}
+    docs["table"]["asked"] = {k: opts[k] for k in ADDITIVE}
+    return docs, keys
 
 
 # =============================================================================
@@ -339,6 +393,22 @@ def _check_workers(workers) -> int:
     return int(workers)
 
 
+@dataclass
+class _Run:
+    """What every step of one batch needs: the output folder, the keys and the choices."""
+
+    out: Path
+    key_docs: dict
+    keys: dict
+    profile: object
+    version: str
+    verify: bool
+    build_failed: bool
+    force: bool
+    prune: bool
+    options: dict = field(default_factory=dict)
+
+
 def run_batch(
     sources,
     outdir,
@@ -351,6 +421,9 @@ def run_batch(
     scheduler=None,
     options: Mapping | None = None,
     profile=None,
+    build_failed: bool = False,
+    prune: bool = False,
+    follow_links: bool = False,
     progress: Callable[[BatchProgress], None] | None = None,
     task: Callable[[Mapping], dict] = process_map,
 ) -> BatchResult:
@@ -369,13 +442,16 @@ def run_batch(
         Scripts that call run_batch with workers must guard their entry point with
         ``if __name__ == "__main__":`` (spawned workers import the main module).
     verify : bool
-        Also run the validation render (:func:`envsample.verify.verify_map`) at
-        :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.
+        Also run the validation render (:func:`envsample.pipeline.verify.verify_map`) at
+        :data:`VERIFY_SETTINGS`, seeded from each map's SHA-256.  Without it, verify
+        results of an earlier run are kept (while the table they describe is unchanged).
     split_sun : bool
         Also split the sun off every map whose sun holds at least the profile's
         ``[sampling] analytic_light_share`` of the light (the share from which the check
         advises it): ``maps/NAME/split/`` holds ``map.sky.exr``, ``map.sun.json`` and the
-        sky's table (:func:`envsample.pipeline.split.write_split`); the row's ``split_note`` says why not.
+        sky's table (:func:`envsample.pipeline.split.write_split`); the row's ``split_note`` says
+        why not.  Like ``raw`` and ``tune`` it only adds to the table output, so a rerun without
+        it keeps the split.
     force : bool
         Redo maps whose outputs are up to date.
     fix : bool
@@ -387,9 +463,15 @@ def run_batch(
         shared with the workers.  The outputs are identical to a local run.
     options : mapping, optional
         Table options, see :func:`normalize_options` (size, primaries, mapping,
-        uniform_mix, up, rotation_deg in degrees).
+        uniform_mix, up, rotation_deg in degrees, compensate, tune, raw, repair, allow_aspect).
     profile : Profile, path, mapping or None
-        QA thresholds (:func:`envsample.qa.load_profile`).
+        QA thresholds (:func:`envsample.qa.profile.load_profile`).
+    build_failed : bool
+        Also build tables for maps that failed QA (by default they get none).
+    prune : bool
+        Remove the folders of ``maps/`` whose source is gone or has changed.
+    follow_links : bool
+        Accept symbolic links found in source folders that lead outside them.
     progress : callable, optional
         Called with a :class:`BatchProgress` once at the start and after every source.
     task : callable, optional
@@ -408,82 +490,85 @@ def run_batch(
     BatchInterrupted
         On Ctrl-C (a KeyboardInterrupt): pending maps are cancelled, workers
         stopped, staging removed; ``.result`` lists the maps finished (their
-        folders are complete) and no summary is written.  Rerun to resume.
+        folders are complete) and the summaries say ``"state": "interrupted"`` with
+        the pending maps.  Rerun to resume.
     EnvsampleError
         A missing source, no maps found, OUTDIR not a folder or locked by another
         batch, or dask missing.  ValueError / ProfileError: bad options.
     """
+    n_workers = _check_workers(workers)
+    paths, refused, run = _prepare(sources, outdir, options=options, profile=profile, follow_links=follow_links,
+                                   scheduler=scheduler, flags={"verify": verify, "split_sun": split_sun, "fix": fix,
+                                                               "build_failed": build_failed, "force": force,
+                                                               "prune": prune})
+    with _locked(run.out):
+        return _run_locked(paths, refused, run, runner=make_runner(scheduler, n_workers), progress=progress,
+                           task=task)
+
+
+def _prepare(sources, outdir, *, options, profile, follow_links, scheduler, flags) -> tuple:
+    """Check everything a batch is given, find its sources, make OUTDIR; (paths, refused, _Run)."""
     from envsample._version import __version__
     from envsample.qa.profile import load_profile
 
     opts = normalize_options(options)
     prof = load_profile(profile)
-    n_workers = _check_workers(workers)
     out = Path(outdir)
     if out.exists() and not out.is_dir():
         raise EnvsampleError(f"{out}: exists and is not a folder; choose an output folder")
-    paths = expand_sources(sources, exclude=out)
-    if not paths:
+    paths, refused = _collect_sources(sources, exclude=out, follow_links=follow_links)
+    if not paths and not refused:
         shown = ", ".join(os.fspath(s) for s in ([sources] if isinstance(sources, (str, os.PathLike)) else sources))
         raise EnvsampleError(f"no map files found in {shown or 'the sources given'}; pass .exr/.hdr files, folders or globs")
     if scheduler is not None:
         import_distributed()
     out.mkdir(parents=True, exist_ok=True)
     out = out.resolve()
-    key_doc = _key_doc(opts, prof, version=__version__, verify=verify, split_sun=split_sun, fix=fix)
-    with _locked(out):
-        return _run_locked(paths, out, key_doc=key_doc, key=_options_key(key_doc), profile=prof, force=force,
-                           runner=make_runner(scheduler, n_workers), progress=progress, task=task)
+    # split_sun adds to a map's table output like raw and tune (tasks.ADDITIVE): not part of its key.
+    # fix changes the report and the pixels the table is built from: part of both keys.
+    opts = {**opts, "split_sun": bool(flags["split_sun"]), "fix": bool(flags["fix"])}
+    docs, keys = output_keys(opts, prof, __version__)
+    run = _Run(out=out, key_docs=docs, keys=keys, profile=prof, version=__version__, verify=bool(flags["verify"]),
+               build_failed=bool(flags["build_failed"]), force=bool(flags["force"]), prune=bool(flags["prune"]),
+               options=opts)
+    return paths, refused, run
 
 
-def _key_doc(opts: dict, prof, *, version: str, verify: bool, split_sun: bool, fix: bool) -> dict:
-    """Everything a map's outputs depend on besides its bytes (hashed into the options key)."""
-    doc = {
-        "layout": _LAYOUT_VERSION,
-        "tool_version": version,
-        "build": opts,
-        "verify": dict(VERIFY_SETTINGS) if verify else None,
-        "thumb_width": THUMB_WIDTH,
-        "profile": prof.to_dict()["settings"],
-    }
-    # Only when asked, so the options key of batches without them stays the same.
-    if split_sun:
-        doc["split_sun"] = True
-    if fix:
-        doc["fix"] = True
-    return doc
-
-
-def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bool, runner, progress,
-                task) -> BatchResult:
+def _run_locked(paths, refused: dict, run: _Run, *, runner, progress, task) -> BatchResult:
     """The batch proper, with OUTDIR locked: plan, run, write the summaries; Ctrl-C anywhere -> BatchInterrupted."""
-    version = key_doc["tool_version"]
-    staging = out / _STAGING
+    staging = run.out / _STAGING
     results: list = [None] * len(paths)
-    duplicates: list = []
+    plan = None
+    jobs = None
 
     def emit(item):
         if progress is not None:
             progress(BatchProgress(done=sum(r is not None for r in results), total=len(results),
                                    counts=count_verdicts(results, total=len(results)), item=item))
 
-    jobs = None
+    def result(state: str) -> BatchResult:
+        done = [r for r in results if r is not None]
+        return BatchResult(outdir=run.out, maps=done if state == "interrupted" else list(results),
+                           options=run.options, interrupted=state == "interrupted",
+                           duplicates=plan.duplicates if plan else [], stale=plan.stale if plan else [],
+                           requested=len(results))
+
     try:
         remove_tree(staging)  # left by a batch that was killed
-        (out / MAPS_FOLDER).mkdir(exist_ok=True)
-        plan = _plan(paths, out, force=force, key=key, version=version)
-        results[:] = plan.results
-        duplicates = plan.duplicates
+        (run.out / MAPS_FOLDER).mkdir(exist_ok=True)
+        plan = _plan(paths, refused, run)
+        results = plan.results
         emit(None)
         for r in results:
             if r is not None:
                 emit(r)
+        pending = [os.fspath(paths[i]) for i in plan.todo]
+        write_summaries(result("running"), run.key_docs, run.profile, state="running", pending=pending)
         tasks = [(i, {"source": os.fspath(paths[i].resolve()), "display": os.fspath(paths[i]),
-                      "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(out),
-                      "staging": os.fspath(staging), "options": key_doc["build"],
-                      "verify": key_doc["verify"] is not None, "split_sun": bool(key_doc.get("split_sun")),
-                      "fix": bool(key_doc.get("fix")), "profile": profile, "key": key,
-                      "key_doc": key_doc, "version": version})
+                      "name": plan.names[i], "sha256": plan.hashes[i], "outdir": os.fspath(run.out),
+                      "staging": os.fspath(staging), "options": run.options, "verify": run.verify,
+                      "build_failed": run.build_failed, "profile": run.profile, "keys": run.keys,
+                      "key_docs": run.key_docs, "version": run.version})
                  for i in plan.todo]
         jobs = runner(tasks, task)
         for index, outcome in jobs:
@@ -493,15 +578,19 @@ def _run_locked(paths, out: Path, *, key_doc: dict, key: str, profile, force: bo
                 results[j] = _alias(results[index], os.fspath(paths[j]), plan.dup_of[j])
                 emit(results[j])
         jobs.close()
-        result = BatchResult(outdir=out, maps=results, options=key_doc["build"], duplicates=duplicates)
-        result.summary = write_summaries(result, key_doc, profile)
-        return result
+        final = result("complete")
+        final.summary = write_summaries(final, run.key_docs, run.profile, state="complete")
+        return final
     except KeyboardInterrupt:
         if jobs is not None:
             jobs.close()  # cancels what is pending and stops the workers
-        done = [r for r in results if r is not None]
-        raise BatchInterrupted(BatchResult(outdir=out, maps=done, options=key_doc["build"], interrupted=True,
-                                           duplicates=duplicates)) from None
+        stopped = result("interrupted")
+        if plan is not None:
+            pending = [os.fspath(p) for p, r in zip(paths, results) if r is None]
+            with contextlib.suppress(Exception):
+                stopped.summary = write_summaries(stopped, run.key_docs, run.profile, state="interrupted",
+                                                  pending=pending)
+        raise BatchInterrupted(stopped) from None
     finally:
         if jobs is not None:
             jobs.close()
@@ -517,47 +606,102 @@ class _Plan:
     aliases: dict
     dup_of: list
     duplicates: list
+    stale: list
 
 
-def _plan(paths: list[Path], out: Path, *, force: bool, key: str, version: str) -> _Plan:
-    """Hash the sources, name their folders, note duplicates and find what is up to date."""
+def _plan(paths: list[Path], refused: dict, run: _Run) -> _Plan:
+    """Hash the sources, name their folders, note duplicates, find what is up to date and what is stale."""
     n = len(paths)
     hashed = _hash_all(paths)
     results: list = [None] * n
     names: list = [None] * n
     hashes = [h for h, _ in hashed]
     dup_of: list = [None] * n
-    todo, aliases, owners, first, by_sha = [], {}, {}, {}, {}
+    todo, aliases, owner_of, by_sha, used, owners = [], {}, {}, {}, {}, []
     for i, (p, (sha, err)) in enumerate(zip(paths, hashed)):
         display = os.fspath(p)
         if err is not None:
             results[i] = MapResult(display, "error", "error", error=err)
             continue
         by_sha.setdefault(sha, []).append(display)
-        if first.setdefault(sha, display) != display:
-            dup_of[i] = first[sha]
-        name = _map_name(p, sha)
-        owner = owners.get(name.casefold())
-        if owner is not None and hashes[owner] != sha:
-            name = _map_name(p, sha, width=64)  # same stem and a clash of 8 hex digits
-            owner = owners.get(name.casefold())
-        names[i] = name
-        if owner is not None:
-            # Same name and same bytes (e.g. one file copied into two folders): one folder serves both.
+        if sha in owner_of:
+            # The same bytes under another name: the first copy's folder serves both.
+            owner = owner_of[sha]
+            dup_of[i] = os.fspath(paths[owner])
+            names[i] = names[owner]
             aliases.setdefault(owner, []).append(i)
             continue
-        owners[name.casefold()] = i
-        row = None if force else up_to_date(out / MAPS_FOLDER / name, sha, key, version)
+        owner_of[sha] = i
+        name = _map_name(p, sha)
+        if name.casefold() in used:
+            name = _map_name(p, sha, width=64)  # same stem and a clash of 8 hex digits
+        used[name.casefold()] = i
+        names[i] = name
+        owners.append(i)
+    for i, row in zip(owners, _stored_rows(run, [names[i] for i in owners], [hashes[i] for i in owners])):
         if row is not None:
-            results[i] = result_from_row({**row, "source": display, "duplicate_of": dup_of[i]}, status="skipped")
+            results[i] = result_from_row({**row, "source": os.fspath(paths[i]), "duplicate_of": None},
+                                         status="skipped")
         else:
             todo.append(i)
     for owner, members in aliases.items():
         if results[owner] is not None:
             for j in members:
                 results[j] = _alias(results[owner], os.fspath(paths[j]), dup_of[j])
+    extra = [MapResult(display, "error", "error", error=msg) for display, msg in sorted(refused.items())]
+    paths.extend(Path(d) for d, _ in sorted(refused.items()))
+    results.extend(extra)
+    names.extend([None] * len(extra))
+    hashes.extend([None] * len(extra))
+    dup_of.extend([None] * len(extra))
     duplicates = [{"sha256": s, "sources": d} for s, d in by_sha.items() if len(d) > 1]
-    return _Plan(results, names, hashes, todo, aliases, dup_of, duplicates)
+    stale = _stale_folders(run, {nm for nm in names if nm})
+    return _Plan(results, names, hashes, todo, aliases, dup_of, duplicates, stale)
+
+
+def _stored_rows(run: _Run, names: list, hashes: list) -> list:
+    """The stored row of each folder that is up to date (None where it must be redone).
+
+    Checking means hashing every output file; SHA-256 releases the GIL, so threads overlap the folders.
+    """
+    if run.force or not names:
+        return [None] * len(names)
+
+    def one(item):
+        name, sha = item
+        return up_to_date(run.out / MAPS_FOLDER / name, sha, run.keys, run.version, verify=run.verify,
+                          build_failed=run.build_failed, options=run.options)
+
+    with ThreadPoolExecutor(max_workers=min(4, len(names))) as pool:
+        return list(pool.map(one, zip(names, hashes)))
+
+
+def _stale_folders(run: _Run, claimed: set) -> list[dict]:
+    """Folders of maps/ that no source of this run claims, with the reason; pruned if asked."""
+    folder = run.out / MAPS_FOLDER
+    others = sorted(p for p in folder.iterdir() if p.is_dir() and p.name not in claimed)
+    found = []
+    for p in others:
+        doc = read_manifest(p)
+        entry = {"folder": f"{MAPS_FOLDER}/{p.name}", "source": None, "reason": "no manifest (not a folder "
+                 "this version of envsample made)", "pruned": False}
+        if doc is not None:
+            src = doc["source"]
+            entry["source"] = src.get("path")
+            resolved = Path(str(src.get("resolved") or src.get("path") or ""))
+            if not (resolved.exists() or resolved.is_symlink()):
+                entry["reason"] = "source gone"
+            else:
+                try:
+                    same = regular_file_sha256(resolved) == src.get("sha256")
+                except MapReadError:
+                    same = False
+                entry["reason"] = "not among this run's sources" if same else "source changed"
+            if run.prune and entry["reason"] in ("source gone", "source changed"):
+                remove_tree(p)
+                entry["pruned"] = not p.exists()
+        found.append(entry)
+    return found
 
 
 def _finish(plan: _Plan, index: int, outcome: Mapping) -> MapResult:
@@ -569,10 +713,3 @@ def _finish(plan: _Plan, index: int, outcome: Mapping) -> MapResult:
 def _alias(owner: MapResult, display: str, dup_of: str | None) -> MapResult:
     return MapResult(source=display, status=owner.status, verdict=owner.verdict, folder=owner.folder,
                      sha256=owner.sha256, duplicate_of=dup_of, error=owner.error, figures=dict(owner.figures))
-
-
-# =============================================================================
-# summaries: JSON, CSV and an HTML index
-# =============================================================================
-
-

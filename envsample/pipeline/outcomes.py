@@ -13,8 +13,8 @@ from pathlib import Path
 VERDICTS = ("pass", "warn", "fail", "error")
 
 
-#: Statuses of a source in one run.
-STATUSES = ("done", "skipped", "error")
+#: Statuses of a source in one run ("pending" only in the summary a running or interrupted batch leaves).
+STATUSES = ("done", "skipped", "error", "pending")
 
 
 @dataclass
@@ -65,7 +65,10 @@ class BatchResult:
     output folder; ``summary`` the paths of ``summary.json``, ``summary.csv`` and
     ``index.html`` (empty when interrupted); ``interrupted`` True after Ctrl-C;
     ``options`` the normalised table options; ``duplicates`` lists
-    ``{"sha256", "sources"}`` for bytes found under several names.
+    ``{"sha256", "sources"}`` for bytes found under several names (the first one's
+    folder serves them all); ``stale`` lists ``{"folder", "source", "reason", "pruned"}``
+    for map folders of OUTDIR that no source of this run claims; ``requested`` is the
+    number of sources the run was asked to do (after Ctrl-C, more than ``len(maps)``).
     """
 
     outdir: Path
@@ -74,11 +77,13 @@ class BatchResult:
     interrupted: bool = False
     summary: dict = field(default_factory=dict)
     duplicates: list = field(default_factory=list)
+    stale: list = field(default_factory=list)
+    requested: int | None = None
 
     @property
     def counts(self) -> dict:
-        """Sources per verdict, plus ``skipped``, ``done``, ``pending`` and ``maps`` (the total)."""
-        return count_verdicts(self.maps, total=len(self.maps))
+        """Sources per verdict, plus ``skipped``, ``done``, ``pending`` and ``maps`` (the total requested)."""
+        return count_verdicts(self.maps, total=len(self.maps) if self.requested is None else self.requested)
 
     def exit_code(self, strict: bool = False) -> int:
         """CLI status: 130 interrupted; 1 any map failed QA or errored (or, with
@@ -150,10 +155,13 @@ ROW_FIELDS = (
     "table_width",
     "table_height",
     "table_note",
+    "tuned",
     "verify_rmse_table",
     "verify_rmse_mis",
+    "verify_rmse_tuned",
     "verify_reference_bound",
     "split_note",
+    "note",
 )
 
 

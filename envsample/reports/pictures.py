@@ -15,7 +15,10 @@ Public objects
 ``heatmap_figure``          side-by-side panels sharing one labelled colour bar.
 ``convergence_plot``        log-log error against samples with an N^-1/2 guide.
 ``mark_points``             ring markers (e.g. a detected sun) on a uint8 picture.
-``png_data_uri``            ``data:image/png;base64,...`` for self-contained HTML.
+``colorize``                values -> uint8 RGB through a colour map (what a heat map shows).
+``range_overlay``           a grey thumbnail with clipped / over-range / invalid pixels in false colour.
+``latlong_figure``          a lat-long picture with azimuth/elevation axes.
+``png_size`` / ``png_data_uri``  pixel size of PNG bytes; ``data:image/png;base64,...`` for HTML.
 
 Conventions: input images are linear RGB float ``(H, W, 3)`` (any float dtype),
 pictures are uint8 ``(H, W, 3)``; lat-long panels follow :mod:`envsample.sphere`
@@ -60,6 +63,11 @@ __all__ = [
     "heatmap_figure",
     "convergence_plot",
     "mark_points",
+    "colorize",
+    "range_overlay",
+    "RANGE_COLORS",
+    "latlong_figure",
+    "png_size",
     "png_data_uri",
 ]
 
@@ -243,10 +251,22 @@ def _save_figure(fig, path) -> Path:
     return _atomic_write(path, buf.getvalue())
 
 
+def png_size(data: bytes) -> tuple[int, int]:
+    """(width, height) of PNG bytes from the IHDR chunk (ISO/IEC 15948, 11.2.2), the first chunk of every PNG."""
+    import struct
+
+    if not data.startswith(_PNG_SIGNATURE) or data[12:16] != b"IHDR":
+        raise ValueError("not a PNG stream (bad signature or no IHDR chunk)")
+    return struct.unpack(">II", data[16:24])
+
+
 def png_data_uri(path_or_array) -> str:
-    """``data:image/png;base64,...`` of a PNG file, or of an array encoded by :func:`encode_png`."""
+    """``data:image/png;base64,...`` (RFC 2397) of PNG bytes, a PNG file, or an array encoded by :func:`encode_png`."""
     if isinstance(path_or_array, np.ndarray):
         data = encode_png(path_or_array)
+    elif isinstance(path_or_array, (bytes, bytearray)):
+        data = bytes(path_or_array)
+        png_size(data)
     else:
         p = Path(path_or_array)
         try:
@@ -293,9 +313,54 @@ def _reduce_panel(arr: np.ndarray, log: bool) -> np.ndarray:
     return block_mean(arr, f, valid=ok)
 
 
+def colorize(values, *, vmin: float, vmax: float, log: bool = False, cmap: str = "magma",
+             bad=(212, 212, 212)) -> np.ndarray:
+    """2D values -> uint8 RGB ``(H, W, 3)`` through a matplotlib colour map, as :func:`heatmap_figure` shows them.
+
+    Values outside ``[vmin, vmax]`` take the end colours; NaN, infinite (and, with ``log``,
+    non-positive) values are drawn in ``bad`` (light grey).
+    """
+    import matplotlib
+    from matplotlib import colors as mcolors
+
+    arr = np.asarray(values, dtype=np.float64)
+    norm = mcolors.LogNorm(vmin=vmin, vmax=vmax) if log else mcolors.Normalize(vmin=vmin, vmax=vmax)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ok = np.isfinite(arr) & ((arr > 0) if log else True)
+        scaled = np.clip(np.ma.filled(norm(np.where(ok, arr, vmin)), 0.0), 0.0, 1.0)
+    rgb = matplotlib.colormaps[cmap](scaled)[..., :3]
+    out = np.rint(rgb * 255.0).astype(np.uint8)
+    out[~ok] = np.asarray(bad, dtype=np.uint8)
+    return out
+
+
+#: Pixels per panel column when rings are drawn on a heat map (rings need some pixels to show).
+_RING_PANEL_WIDTH = 512
+
+
+def ringed_panel(values, rings: Sequence[Mapping], *, vmin: float, vmax: float, log: bool = False,
+                 cmap: str = "magma") -> np.ndarray:
+    """A heat-map panel as uint8 RGB with rings drawn on it (:func:`mark_points`).
+
+    ``rings`` are mappings with ``uv`` ((N, 2) image coordinates in [0, 1]) and the
+    keywords of :func:`mark_points` (``color``, ``radius``, ``thickness``).  The panel is
+    enlarged by an integer pixel repetition to about 512 columns first, so a ring keeps
+    its size whatever the table's resolution.
+    """
+    pic = colorize(values, vmin=vmin, vmax=vmax, log=log, cmap=cmap)
+    rep = max(1, _RING_PANEL_WIDTH // pic.shape[1])
+    if rep > 1:
+        pic = np.repeat(np.repeat(pic, rep, axis=0), rep, axis=1)
+    for ring in rings:
+        style = {k: v for k, v in ring.items() if k != "uv"}
+        if len(ring["uv"]):
+            pic = mark_points(pic, ring["uv"], **style)
+    return pic
+
+
 def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = None, vmax: float | None = None,
                    log: bool = False, cmap: str = "magma", latlong: bool | None = None,
-                   rotation_deg: float = 0.0, title: str | None = None) -> Path:
+                   rotation_deg: float = 0.0, title: str | None = None, rings: Sequence | None = None) -> Path:
     """Panels side by side sharing one labelled colour bar, saved as PNG; returns the path.
 
     Parameters
@@ -314,18 +379,24 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
         Label axes in azimuth/elevation degrees; ``None`` decides from a 2:1 shape.
     rotation_deg : float
         Azimuth of the image centre, degrees, for the axis labels of lat-long panels.
+    rings : sequence (one entry per panel) of sequences of ring mappings, optional
+        Rings drawn on a panel (:func:`ringed_panel`), e.g. around the sun.
 
     Panels wider than 1024 columns are drawn block-averaged (the figure cannot
     show more), which keeps a 4096-wide panel fast; the colour range is taken
     from the full-resolution values.
     """
     import matplotlib
+    from matplotlib import cm
     from matplotlib import colors as mcolors
     from matplotlib import rc_context
     from matplotlib.figure import Figure
 
     if not panels:
         raise ValueError("heatmap_figure needs at least one (title, 2D array) panel")
+    rings = list(rings) if rings is not None else [()] * len(panels)
+    if len(rings) != len(panels):
+        raise ValueError(f"rings has {len(rings)} entries for {len(panels)} panels; give one (possibly empty) per panel")
     items = []
     for k, panel in enumerate(panels):
         try:
@@ -347,27 +418,29 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
     with rc_context(_STYLE):
         fig = Figure(figsize=(panel_w * n + 1.1, panel_h + (0.3 if title else 0.0)), layout="constrained")
         axes = fig.subplots(1, n, squeeze=False)[0]
-        image = None
         for i, (ax, (name, arr)) in enumerate(zip(axes, items)):
             is_ll = latlong if latlong is not None else arr.shape[1] == 2 * arr.shape[0]
             small = _reduce_panel(arr, log)
             shown = np.where(np.isfinite(small) & ((small > 0) if log else True), small, np.nan)
+            if rings[i]:
+                shown = ringed_panel(small, rings[i], vmin=lo, vmax=hi, log=log, cmap=cmap)
+            # An RGB panel (with rings) is drawn as it is; values go through the norm and colour map.
+            kw = {} if shown.ndim == 3 else {"cmap": colormap, "norm": norm}
             if is_ll:
                 extent = (-180.0 + rotation_deg, 180.0 + rotation_deg, -90.0, 90.0)
-                image = ax.imshow(shown, cmap=colormap, norm=norm, extent=extent, origin="upper",
-                                  interpolation="nearest", aspect="equal")
+                ax.imshow(shown, extent=extent, origin="upper", interpolation="nearest", aspect="equal", **kw)
                 ax.set_xticks(np.arange(-180.0, 181.0, 90.0) + rotation_deg)
                 ax.set_yticks(np.arange(-90.0, 91.0, 45.0))
                 ax.set_xlabel("azimuth (deg)")
                 if i == 0:
                     ax.set_ylabel("elevation (deg)")
             else:
-                image = ax.imshow(shown, cmap=colormap, norm=norm, interpolation="nearest", aspect="equal")
+                ax.imshow(shown, interpolation="nearest", aspect="equal", **kw)
                 ax.set_xlabel("column")
                 if i == 0:
                     ax.set_ylabel("row")
             ax.set_title(name)
-        bar = fig.colorbar(image, ax=list(axes), shrink=0.9, pad=0.02)
+        bar = fig.colorbar(cm.ScalarMappable(norm=norm, cmap=colormap), ax=list(axes), shrink=0.9, pad=0.02)
         bar.set_label(label)
         if title:
             fig.suptitle(title)
@@ -376,20 +449,27 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
 
 def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path, title: str | None = None,
                      xlabel: str = "samples per pixel", ylabel: str = "relative RMSE",
-                     reference: bool = True) -> Path:
-    """Log-log plot of error against sample count, one marked line per series; returns the path.
+                     reference: bool = True, bands: Mapping | None = None, marks: Mapping | None = None,
+                     xscale: str = "log", note: str | None = None) -> Path:
+    """Plot of error against sample count (log-log), one marked line per series; returns the path.
 
     ``series`` maps a name to errors at each of ``spp_values`` (same length);
     non-positive or non-finite errors are left out of the plot (e.g. an exact
     zero).  With ``reference`` a dashed ``N^-1/2`` line (the Monte Carlo rate of
     an unbiased estimator with finite variance, textbook) passes through the
-    first plotted point of the first series.
+    first plotted point of the first series.  ``bands`` maps a series name to its
+    standard error at each count (shaded as error +- one standard error, so a lucky
+    run shows); ``marks`` maps a name to one ``(count, error)`` point drawn as a large
+    star in the series' colour (e.g. the figure of the table beside the plot).
+    ``xscale="linear"`` draws a linear x axis (no guide line); ``note`` is printed
+    under the axes.
     """
+    import matplotlib.ticker
     from matplotlib import rc_context
     from matplotlib.figure import Figure
 
     x = np.asarray(spp_values, dtype=np.float64).ravel()
-    if x.size == 0 or not np.all(np.isfinite(x) & (x > 0)):
+    if x.size == 0 or not np.all(np.isfinite(x) & ((x > 0) if xscale == "log" else True)):
         raise ValueError("spp_values must be a non-empty list of positive sample counts")
     if not series:
         raise ValueError("convergence_plot needs at least one series")
@@ -399,29 +479,75 @@ def convergence_plot(spp_values, series: Mapping[str, Sequence[float]], *, path,
         if y.shape != x.shape:
             raise ValueError(f"series {name!r} has {y.size} values for {x.size} spp_values; give one error per count")
         data[str(name)] = np.where(np.isfinite(y) & (y > 0), y, np.nan)
+    bands, marks = dict(bands or {}), dict(marks or {})
 
     with rc_context(_STYLE):
-        fig = Figure(figsize=(5.6, 4.0), layout="constrained")
+        fig = Figure(figsize=(5.6, 4.3 if note else 4.0), layout="constrained")
         ax = fig.subplots()
         anchor = None
         for k, (name, y) in enumerate(data.items()):
             ok = np.isfinite(y)
+            color = _SERIES_COLORS[k % len(_SERIES_COLORS)]
             ax.plot(x[ok], y[ok], marker=_SERIES_MARKERS[k % len(_SERIES_MARKERS)],
-                    color=_SERIES_COLORS[k % len(_SERIES_COLORS)], linewidth=1.4, markersize=5, label=name)
+                    color=color, linewidth=1.4, markersize=5, label=name)
+            if name in bands:
+                se = np.asarray([np.nan if v is None else v for v in bands[name]], dtype=np.float64)
+                lo = np.where(np.isfinite(se), np.maximum(y - se, y * 0.05), np.nan)
+                hi = np.where(np.isfinite(se), y + se, np.nan)
+                good = ok & np.isfinite(lo) & np.isfinite(hi)
+                if good.any():
+                    ax.fill_between(x[good], lo[good], hi[good], color=color, alpha=0.15, linewidth=0)
+            if name in marks and marks[name] is not None:
+                mx, my = marks[name]
+                if my is not None and math.isfinite(my) and my > 0:
+                    ax.plot([mx], [my], marker="*", markersize=13, color=color, markeredgecolor="black",
+                            markeredgewidth=0.6, linestyle="none")
             if anchor is None and ok.any():
                 i0 = int(np.flatnonzero(ok)[0])
                 anchor = (x[i0], y[i0])
-        if reference and anchor is not None:
+        if reference and anchor is not None and xscale == "log":
             xs = np.array([x.min(), x.max()])
             ax.plot(xs, anchor[1] * np.sqrt(anchor[0] / xs), linestyle="--", color="#808080",
                     linewidth=1.0, label=r"$N^{-1/2}$ reference")
-        ax.set_xscale("log")
+        ax.set_xscale(xscale)
         ax.set_yscale("log")
+        # Ticks at the counts drawn, written as plain numbers.
+        ax.set_xticks(x, [f"{v:g}" for v in x])
+        ax.xaxis.set_minor_locator(matplotlib.ticker.NullLocator())
         ax.set_xlabel(xlabel)
         ax.set_ylabel(ylabel)
         ax.grid(True, which="major", color="#e2e2e2", linewidth=0.7)
         ax.grid(True, which="minor", color="#f0f0f0", linewidth=0.5)
         ax.legend(loc="best")
+        if title:
+            ax.set_title(title)
+        if note:
+            # A figure-level label below the axes: the constrained layout makes room for it.
+            fig.supxlabel(note, fontsize=7.0, color="#404040", wrap=True)
+        return _save_figure(fig, path)
+
+
+def latlong_figure(picture, *, path, rotation_deg: float = 0.0, title: str | None = None) -> Path:
+    """A lat-long picture (uint8 ``(H, W, 3)``, row 0 at the zenith) with azimuth/elevation axes in degrees.
+
+    Axes follow :mod:`envsample.core.sphere`: the left edge is azimuth -180 deg +
+    ``rotation_deg``, the right edge +180 deg + ``rotation_deg``, the top row elevation +90 deg.
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    pic = _as_picture(picture)
+    h, w = pic.shape[:2]
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(min(10.0, max(5.0, w / _DPI)) + 0.6, min(5.0, max(2.5, h / _DPI)) + 0.9),
+                     layout="constrained")
+        ax = fig.subplots()
+        ax.imshow(pic, extent=(-180.0 + rotation_deg, 180.0 + rotation_deg, -90.0, 90.0), origin="upper",
+                  interpolation="nearest", aspect="equal")
+        ax.set_xticks(np.arange(-180.0, 181.0, 45.0) + rotation_deg)
+        ax.set_yticks(np.arange(-90.0, 91.0, 30.0))
+        ax.set_xlabel("azimuth (deg)")
+        ax.set_ylabel("elevation (deg)")
         if title:
             ax.set_title(title)
         return _save_figure(fig, path)
@@ -499,3 +625,56 @@ def mark_points(image, uv_points, *, color=(0, 210, 255), radius: float = 6.0, t
         block[off <= thickness / 2.0] = ring_rgb
         out[np.ix_(rows, cols)] = block
     return out
+
+
+# ---------------------------------------------------------------------------
+# range overlay
+# ---------------------------------------------------------------------------
+
+#: False colours of :func:`range_overlay` (our choice; far from any grey), by pixel class.
+RANGE_COLORS = {"clipped": (255, 140, 0), "over range": (0, 110, 255), "invalid": (190, 0, 255)}
+
+
+def range_overlay(rgb, *, clip_level: float | None = None, clip_tolerance: float = 0.0,
+                  over_level: float, width: int = 512) -> tuple[np.ndarray, dict]:
+    """A grey thumbnail with problem pixels in false colour, and the pixel counts per class.
+
+    Classes (:data:`RANGE_COLORS`), checked on the largest channel of each map pixel:
+    ``invalid`` (NaN or negative), ``over range`` (``+Inf`` or above ``over_level``, e.g.
+    the half-float maximum), ``clipped`` (within ``clip_tolerance`` (relative) of
+    ``clip_level``, the level a clipping check found: one number for the largest channel, or
+    one per channel (R, G, B; None for a channel that is not clipped); ``None``: none).  The thumbnail
+    is the tone-mapped map in grey, downsampled like :func:`thumbnail`; a thumbnail
+    pixel takes the colour of the worst class among the map pixels it covers
+    (invalid > over range > clipped), so a single bad pixel still shows.  Maps
+    narrower than ``width`` are enlarged by an integer pixel repetition.
+    """
+    arr = np.asarray(rgb)
+    if arr.ndim != 3 or arr.shape[2] != 3:
+        raise ValueError(f"image must have shape (H, W, 3), got {arr.shape}")
+    with np.errstate(invalid="ignore"):
+        top = np.max(arr, axis=2).astype(np.float64)
+        invalid = np.isnan(arr).any(axis=2) | (np.nan_to_num(arr, nan=0.0) < 0).any(axis=2)
+        over = ~invalid & (top > over_level)
+        clipped = np.zeros_like(over)
+        if clip_level is not None and np.ndim(clip_level) == 0:
+            if clip_level > 0:
+                clipped = ~invalid & ~over & (top >= clip_level * (1.0 - clip_tolerance))
+        elif clip_level is not None:
+            for c, level in enumerate(clip_level):
+                if level is not None and level > 0:
+                    clipped |= arr[..., c] >= level * (1.0 - clip_tolerance)
+            clipped &= ~invalid & ~over
+    counts = {"clipped": int(clipped.sum()), "over range": int(over.sum()), "invalid": int(invalid.sum())}
+    grey = thumbnail(arr.astype(np.float32), width=width)
+    f = max(1, arr.shape[1] // int(width))
+    pic = np.repeat(np.rint(grey.mean(axis=2, keepdims=True)).astype(np.uint8), 3, axis=2)
+    for name in ("clipped", "over range", "invalid"):
+        mask = {"clipped": clipped, "over range": over, "invalid": invalid}[name]
+        if f > 1:
+            mask = block_mean(mask.astype(np.float32), f) > 0
+        pic[mask[:pic.shape[0], :pic.shape[1]]] = RANGE_COLORS[name]
+    rep = max(1, int(width) // pic.shape[1])
+    if rep > 1:
+        pic = np.repeat(np.repeat(pic, rep, axis=0), rep, axis=1)
+    return pic, counts

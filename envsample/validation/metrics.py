@@ -55,9 +55,14 @@ def error_metrics(estimate, reference, weights, *, primaries: str = "bt709") -> 
     ebar = float(np.dot(w, yr) / wsum)
     d = y - yr
     if not ebar > 0.0:
-        return {"relative_rmse": None, "mean_bias": None, "reference_mean": ebar}
+        return {"relative_rmse": None, "relative_rmse_se": None, "mean_bias": None, "reference_mean": ebar}
+    sq = d * d
+    mse = float(np.dot(w, sq) / wsum)
+    mse_se = float(math.sqrt(np.dot(w * w, (sq - mse) ** 2)) / wsum)
+    rmse = math.sqrt(mse)
     return {
-        "relative_rmse": float(math.sqrt(np.dot(w, d * d) / wsum) / ebar),
+        "relative_rmse": rmse / ebar,
+        "relative_rmse_se": (mse_se / (2.0 * rmse) / ebar) if rmse > 0 else 0.0,
         "mean_bias": float(np.dot(w, d) / wsum / ebar),
         "reference_mean": ebar,
     }

@@ -41,6 +41,11 @@ of the parameterisation).  With ``Ebar`` the weighted mean of the reference lumi
 The recommended estimator is the most efficient one whose measured bias is consistent
 with zero (:func:`envsample.validation.metrics.recommendation`).
 
+When the table carries a tuned one-sample MIS setting (``metadata["recommendation"]``,
+written by ``build --tune``, :func:`envsample.validation.tuning.recommend`), it is rendered
+as one more estimator named :data:`TUNED` beside the others, so verify evaluates the very
+setting the tuning chose and the two cannot give different advice unseen.
+
 The numbers are Monte Carlo estimates for preparing assets, not certified lighting
 calculations.
 
@@ -69,7 +74,7 @@ from envsample.core.color import luminance
 from envsample.core.schema import Schema
 from envsample.core.sphere import direction_angles
 from envsample.core.text import caution
-from envsample.estimation.estimators import estimate_irradiance
+from envsample.estimation.estimators import estimate_irradiance, estimator_name
 from envsample.estimation.estimators import estimators as valid_estimators
 from envsample.reference.irradiance import reference_accuracy, reference_irradiance
 from envsample.validation.glossy import glossy_check
@@ -87,6 +92,7 @@ __all__ = [
     "CAUTION",
     "DEFAULT_ESTIMATORS",
     "METRICS_SCHEMA",
+    "TUNED",
     "ValidationResult",
     "render_estimates",
     "render_validation",
@@ -100,10 +106,13 @@ METRICS_SCHEMA = Schema("envsample.verify-metrics", 1)
 #: Estimators rendered by default: every irradiance estimator except "bsdf", which for
 #: irradiance is the cosine strategy again.
 DEFAULT_ESTIMATORS = (
-    "cosine", "uniform", "sphere", "table",
+    "cosine", "uniform-hemisphere", "uniform-sphere", "table",
     "mis-balance", "mis-power", "mis-max", "mis-cutoff",
     "one-sample-balance", "one-sample-power", "one-sample-max", "one-sample-cutoff",
 )
+
+#: Name of the entry of the table's tuned setting (the estimator and table fraction of its recommendation).
+TUNED = "tuned"
 
 #: Largest normal grid of the convergence plot (a sub-grid of the render's normals).
 CONVERGENCE_GRID = (32, 16)
@@ -170,6 +179,7 @@ class ValidationResult:
             "caution": CAUTION,
             "tool_version": __version__,
             "source": source,
+            "scale": (source or {}).get("scale"),
             "table": _table_info(self.table),
             "seed": self.seed,
             "random_streams": "numpy SeedSequence(seed, spawn_key=(purpose, crc32(estimator name), index))",
@@ -219,10 +229,31 @@ def _largest_sample(samples, normals: np.ndarray, table) -> dict:
             "strategy": strategy}
 
 
+def tuned_setting(table) -> dict | None:
+    """The one-sample MIS setting a tuned table carries: ``{"estimator", "table_fraction"}``, or None."""
+    rec = (getattr(table, "metadata", None) or {}).get("recommendation")
+    if not isinstance(rec, dict):
+        return None
+    name, c = rec.get("estimator"), rec.get("table_fraction")
+    if name not in valid_estimators("irradiance") or not isinstance(c, (int, float)) or not 0.0 < c < 1.0:
+        return None
+    return {"estimator": name, "table_fraction": float(c)}
+
+
+def _run_spec(table, name: str) -> tuple[str, float | None]:
+    """(estimator, table fraction or None) that the entry ``name`` runs."""
+    if name == TUNED:
+        t = tuned_setting(table)
+        return t["estimator"], t["table_fraction"]
+    return name, None
+
+
 def _estimate_one(table, name: str, normals, weights, *, spp: int, seed, reference: np.ndarray, ebar: float,
                   reference_accuracy: float) -> EstimateResult:
+    estimator, fraction = _run_spec(table, name)
     t0 = time.perf_counter()
-    est, samples = estimate_irradiance(table, normals, estimator=name, spp=spp, seed=seed, return_samples=True)
+    est, samples = estimate_irradiance(table, normals, estimator=estimator, spp=spp, seed=seed, return_samples=True,
+                                       fractions=fraction)
     seconds = time.perf_counter() - t0
     est32 = est.astype(np.float32)
     err = error_metrics(est32, reference, weights, primaries=table.primaries)
@@ -241,6 +272,7 @@ def _estimate_one(table, name: str, normals, weights, *, spp: int, seed, referen
         "fractions": None if samples.fractions is None else list(samples.fractions),
         "counts": None if samples.counts is None else list(samples.counts),
         "relative_rmse": json_number(err["relative_rmse"]),
+        "relative_rmse_se": json_number(err["relative_rmse_se"]),
         "mean_bias": json_number(bias),
         "mean_bias_se": json_number(se),
         "bias_consistent_with_zero": consistent,
@@ -256,6 +288,9 @@ def _estimate_one(table, name: str, normals, weights, *, spp: int, seed, referen
     }
     if var == 0.0:
         entry["efficiency_note"] = "zero measured variance: efficiency unbounded (ranked first)"
+    if name == TUNED:
+        entry["tuned_from"] = {"estimator": estimator, "table_fraction": fraction,
+                               "source": "the table's metadata['recommendation'] (build --tune)"}
     return EstimateResult(name, est32, entry)
 
 
@@ -293,17 +328,25 @@ def _convergence_ladder(spp: int) -> list[int]:
 def _convergence(table, names, normals, weights, ref32, grid_wh, spp, seed) -> dict:
     idx, sub_wh = subgrid(*grid_wh, CONVERGENCE_GRID)
     ladder = _convergence_ladder(spp)
-    series = {}
+    series, errors = {}, {}
     for name in names:
-        errs = []
+        estimator, fraction = _run_spec(table, name)
+        errs, ses = [], []
         for k, s in enumerate(ladder):
-            est = estimate_irradiance(table, normals[idx], estimator=name, spp=s,
+            est = estimate_irradiance(table, normals[idx], estimator=estimator, spp=s, fractions=fraction,
                                       seed=stream(seed, "convergence", name, k))
-            errs.append(json_number(error_metrics(est.astype(np.float32), ref32[idx], weights[idx],
-                                                  primaries=table.primaries)["relative_rmse"]))
-        series[name] = errs
-    return {"spp": ladder, "normals": list(sub_wh), "relative_rmse": series,
-            "note": "strided sub-grid of the render's normals; fresh samples at every count"}
+            m = error_metrics(est.astype(np.float32), ref32[idx], weights[idx], primaries=table.primaries)
+            errs.append(json_number(m["relative_rmse"]))
+            ses.append(json_number(m["relative_rmse_se"]))
+        series[name], errors[name] = errs, ses
+    same = tuple(sub_wh) == tuple(grid_wh)
+    note = ("the render's own normals" if same else
+            f"a strided {sub_wh[0]}x{sub_wh[1]} sub-grid of the render's {grid_wh[0]}x{grid_wh[1]} normals (the "
+            "table beside the plot is on all of them: its figures are drawn as stars)")
+    return {"spp": ladder, "normals": list(sub_wh), "grid": list(grid_wh), "relative_rmse": series,
+            "relative_rmse_se": errors,
+            "note": note + "; fresh samples at every count, so a jump means a rare bright sample was hit; "
+                           "the band is +- one standard error over normals"}
 
 
 def _plotted(series: dict, entries: dict, first_name: str | None) -> list[str]:
@@ -341,7 +384,8 @@ def estimator_list(estimators, table) -> tuple[list[str], list[str]]:
             notes.append("the compensated table is valid only inside MIS: the lone 'table' estimator is left out")
         return names, notes
     names = [s.strip() for s in estimators.split(",")] if isinstance(estimators, str) else [str(s) for s in estimators]
-    names = [n for n in names if n]
+    names = [estimator_name(n) for n in names if n]
+    valid = valid + ((TUNED,) if tuned_setting(table) is not None else ())
     if not names:
         raise ValueError(f"estimators is empty; give one or more of: {', '.join(valid)}")
     unknown = [n for n in names if n not in valid]
@@ -403,6 +447,8 @@ def render_validation(table, *, spp: int = 64, normals=(128, 64), estimators=Non
     seed = check_seed(seed)
     roughness = check_roughness(roughness)
     names, notes = estimator_list(estimators, table)
+    if tuned_setting(table) is not None and TUNED not in names:
+        names.append(TUNED)
     n, weights = normal_grid(*grid_wh, up=table.up, rotation_deg=table.rotation_deg)
     tick("reference")
     t0 = time.perf_counter()
@@ -420,9 +466,10 @@ def render_validation(table, *, spp: int = 64, normals=(128, 64), estimators=Non
     recommended = recommendation(entries)
     tick("convergence")
     conv = _convergence(table, names, n, weights, ref32, grid_wh, spp, seed)
-    # The least-variance choice depends on the seed alone, so the plot (and metrics.json) do not
-    # change with timing noise, unlike the efficiency-ranked recommendation.
-    conv["plotted"] = _plotted(conv["relative_rmse"], entries, recommended["lowest_variance"])
+    # The series drawn first (the guide line's anchor) is the least-variance estimator: it depends on the
+    # seed only, so the plot and metrics.json are the same in every run with this seed.
+    conv["plotted"] = _plotted(conv["relative_rmse"], entries, recommended.get("lowest_variance"))
+    conv["left_out"] = [name for name in names if name not in conv["plotted"]]
     glossy = None
     if roughness is not None:
         tick("glossy")

@@ -14,7 +14,12 @@ import numpy as np
 
 from envsample.core.latlong import parse_size
 
-__all__ = ["STREAM_PURPOSES", "stream", "check_seed", "check_spp", "check_normals"]
+__all__ = ["STREAM_PURPOSES", "RENDER_MEMORY_LIMIT", "stream", "check_seed", "check_spp", "check_normals",
+           "render_bytes", "check_render_size"]
+
+#: Largest memory (bytes) a validation render may need before it is refused: 4 GiB, a sixth of
+#: the 24 GiB machines this project is built for (our choice).
+RENDER_MEMORY_LIMIT = 4 << 30
 
 #: Purposes of the random streams (first word of the SeedSequence spawn key).
 STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6, "split": 7}
@@ -51,3 +56,33 @@ def check_normals(normals, name: str = "normals") -> tuple[int, int]:
     if wh is None or wh[0] < 2 or wh[1] < 1:
         raise ValueError(f"{name} must be at least 2x1 normals, got {normals!r}")
     return wh
+
+
+def render_bytes(normals: tuple[int, int], spp: int, estimators: int) -> int:
+    """Memory (bytes) a validation render of ``normals = (w, h)`` at ``spp`` needs, estimated from its arrays.
+
+    Per normal: the direction and weight (32 B), the reference and one float32 RGB estimate per
+    estimator (12 B each), and while one estimator runs its per-sample contributions and
+    strategy indices (9 B per sample), counted twice for the temporaries of the estimate.
+    """
+    n = int(normals[0]) * int(normals[1])
+    return n * (32 + 12 * (int(estimators) + 1)) + 2 * n * int(spp) * 9
+
+
+def _size_text(nbytes: float) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB", "PiB"):
+        if nbytes < 1024 or unit == "PiB":
+            return f"{nbytes:.3g} {unit}"
+        nbytes /= 1024.0
+    return f"{nbytes:.3g} PiB"
+
+
+def check_render_size(normals: tuple[int, int], spp: int, estimators: int, *,
+                      limit: int = RENDER_MEMORY_LIMIT) -> int:
+    """Refuse a render that would need more than ``limit`` bytes, in one line, before anything is allocated."""
+    need = render_bytes(normals, spp, estimators)
+    if need > limit:
+        raise ValueError(f"normals {normals[0]}x{normals[1]} at {spp} spp with {estimators} estimators would need "
+                         f"about {_size_text(need)} of memory (limit {_size_text(limit)}); choose fewer normals, "
+                         "samples or estimators")
+    return need

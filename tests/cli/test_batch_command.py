@@ -40,6 +40,38 @@ def test_batch_usage_errors_exit_two(tmp_path):
     assert r.output.startswith("error:")
 
 
+def test_batch_takes_the_build_options_and_says_what_it_kept_and_found_stale(tmp_path):
+    """issue 10: --raw, --tune and --repair reach every map; failed maps get no table unless
+    --build-failed; a changed source's folder is listed and --prune removes it."""
+    import numpy as np
+
+    src = tmp_path / "library"
+    src.mkdir()
+    write_map(src / "sky.exr", make_sky("overcast", width=64), pixel_type="float")
+    holes = make_sky("overcast", width=64)
+    holes[3, 4] = np.nan
+    write_map(src / "holes.exr", holes, pixel_type="float")
+    out = tmp_path / "out"
+    r = _run("batch", src, "-o", out, "--workers", "0", "--raw", "--repair")
+    assert r.exit_code == 1, r.output  # the NaN pixel fails QA
+    assert list(out.glob("maps/sky-*/table.bin")) and not list(out.glob("maps/holes-*/table.json"))
+    assert "fail   " in r.output and "holes.exr" in r.output
+    r = _run("batch", src, "-o", out, "--workers", "0", "--repair", "--build-failed")
+    assert list(out.glob("maps/holes-*/table.json")), r.output  # repaired (NaN set to 0) and built
+    assert list(out.glob("maps/sky-*/table.bin"))  # kept: the rerun did not ask for --raw
+    write_map(src / "sky.exr", make_sky("overcast", width=64, zenith_luminance=2.0), pixel_type="float")
+    r = _run("batch", src, "-o", out, "--workers", "0")
+    assert "stale: maps/sky-" in r.output and "source changed" in r.output and "--prune removes it" in r.output
+    r = _run("batch", src, "-o", out, "--workers", "0", "--prune")
+    assert "removed" in r.output and len(list(out.glob("maps/sky-*"))) == 1
+
+
+def test_batch_help_lists_the_new_options():
+    r = _run("batch", "--help")
+    for flag in ("--raw", "--tune", "--repair", "--build-failed", "--prune", "--follow-links", "--compensate"):
+        assert flag in r.output
+
+
 def test_batch_verify_prints_the_reference_bound_and_time(tmp_path):
     src = tmp_path / "library"
     src.mkdir()

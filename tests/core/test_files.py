@@ -86,13 +86,6 @@ def test_group_write_that_fails_late_leaves_every_old_file(tmp_path):
     assert _listing(tmp_path) == ["a.json", "a.npz"]  # no temporary left
 
 
-def test_group_write_handles_very_long_names(tmp_path):
-    """A 250-character file name leaves room for the temporary name (255 bytes is the usual limit)."""
-    name = "m" * 245 + ".json"
-    atomic_write_group([(tmp_path / name, lambda f: f.write(b"x"))])
-    assert (tmp_path / name).read_bytes() == b"x"
-
-
 def test_refuse_overwriting_inputs_sees_the_same_file_under_other_names(tmp_path):
     """Issue 12, item 6: the same path, a relative spelling, a symlink and a hard link all count as the input."""
     src = tmp_path / "t.json"
@@ -104,3 +97,26 @@ def test_refuse_overwriting_inputs_sees_the_same_file_under_other_names(tmp_path
         with pytest.raises(EnvsampleError, match="would overwrite the input"):
             refuse_overwriting_inputs(out, [src], option="-o")
     refuse_overwriting_inputs(tmp_path / "other.json", [src, None], option="-o")  # a new file is fine
+
+
+def test_a_target_name_near_the_length_limit_can_be_written(tmp_path):
+    # issue 12 item 11: NAME_MAX is 255 bytes on common file systems (POSIX pathconf; ext4, tmpfs); the
+    # temporary name ".NAME.XXXXXXXX.tmp" must not exceed it when NAME itself is 250 characters.
+    target = tmp_path / ("m" * 246 + ".exr")
+    atomic_write_bytes(target, b"data")
+    assert target.read_bytes() == b"data"
+    assert sorted(p.name for p in tmp_path.iterdir()) == [target.name]
+
+
+def test_an_os_error_names_the_target_not_the_temporary_file(tmp_path):
+    import errno
+
+    target = tmp_path / "table.npz"
+
+    def disk_full(f):
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    with pytest.raises(OSError) as info:
+        atomic_write(target, disk_full)
+    assert info.value.errno == errno.ENOSPC and info.value.filename == os.fspath(target)
+    assert ".tmp" not in str(info.value)

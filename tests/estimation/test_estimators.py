@@ -310,8 +310,8 @@ def test_every_default_estimator_name_is_accepted_by_estimate_irradiance(overcas
 
 def test_estimator_names_and_bad_arguments(overcast_table):
     names = estimators(None)
-    for required in ("cosine", "uniform", "table", "bsdf-ggx", "mis-balance", "mis-power", "mis-max",
-                     "mis-cutoff", "one-sample-balance"):
+    for required in ("cosine", "uniform-hemisphere", "uniform-sphere", "table", "bsdf-ggx", "mis-balance",
+                     "mis-power", "mis-max", "mis-cutoff", "one-sample-balance"):
         assert required in names
     assert "bsdf-ggx" not in estimators("irradiance") and "bsdf-ggx" in estimators("glossy")
     with pytest.raises(ValueError, match="unknown irradiance estimator 'fast'; valid names: cosine"):
@@ -341,6 +341,16 @@ def test_an_enormous_sample_count_is_refused_before_allocation():
     t = build_table(np.ones((8, 16, 3), np.float32))
     with pytest.raises(ResourceLimitError, match=r"spp=1000000000000 .* needs about .* TiB"):
         estimate_irradiance(t, [[0.0, 1.0, 0.0]], spp=10**12)
+
+
+def test_former_estimator_names_warn_and_give_the_same_estimate(overcast_table):
+    # issue 10 item 6: "uniform" sampled the hemisphere and "sphere" the sphere; the names now say so.
+    assert "uniform" not in estimators() and "sphere" not in estimators()
+    for old, new in (("uniform", "uniform-hemisphere"), ("sphere", "uniform-sphere")):
+        with pytest.warns(DeprecationWarning, match=f"estimator name '{old}' is now called '{new}'"):
+            a = estimate_irradiance(overcast_table, UP, estimator=old, spp=16, seed=5)
+        b = estimate_irradiance(overcast_table, UP, estimator=new, spp=16, seed=5)
+        assert np.array_equal(a, b)
 
 
 # --- the sun as a third strategy (issue 11) -------------------------------------------

@@ -93,7 +93,7 @@ def tree_hashes(outdir: Path) -> dict:
 def assert_complete(folder: Path) -> dict:
     """Every file a manifest lists exists with its recorded size and SHA-256; nothing else is there."""
     manifest = json.loads((folder / "manifest.json").read_text())
-    listed = manifest["files"]
+    listed = {rel: info for out in manifest["outputs"].values() for rel, info in out["files"].items()}
     present = {p.relative_to(folder).as_posix() for p in folder.rglob("*") if p.is_file()} - {"manifest.json"}
     assert present == set(listed), folder
     for rel, info in listed.items():
@@ -150,9 +150,12 @@ def test_expand_sources_walks_folders_globs_and_dedupes(tmp_path):
 
 
 def test_normalize_options_checks_names_and_values():
-    opts = normalize_options({"size": "32x16", "primaries": "srgb", "rotation_deg": 90})
+    opts = normalize_options({"size": "32x16", "primaries": "srgb", "rotation_deg": 90, "tune": True})
     assert opts == {"size": [32, 16], "primaries": "bt709", "mapping": "equal-area", "uniform_mix": 0.0,
-                    "up": "y", "rotation_deg": 90.0}
+                    "up": "y", "rotation_deg": 90.0, "compensate": False, "tune": True, "raw": False,
+                    "repair": False, "allow_aspect": False}
+    with pytest.raises(ValueError, match="raw must be True or False"):
+        normalize_options({"raw": "yes"})
     with pytest.raises(ValueError, match="unknown batch option.*valid options: size, primaries"):
         normalize_options({"sizes": "32x16"})
     with pytest.raises(ValueError, match="unknown mapping 'flat'"):
@@ -199,13 +202,16 @@ def test_batch_reports_the_corrupt_file_and_finishes_the_rest(tmp_path):
     assert rows["uniform.exr"].figures["luminance_integral"] == pytest.approx(4 * math.pi, rel=1e-6)
     ldr = rows["photo.png"]
     assert ldr.verdict == "fail" and "hdr" in ldr.figures["failed_checks"]
-    assert ldr.figures["table_note"].startswith("no table:") and not (out / ldr.folder / "table.json").exists()
+    # A map that failed QA gets no table (issue 10: only with build_failed).
+    assert ldr.figures["table_note"].startswith("no table: the map failed QA")
+    assert not (out / ldr.folder / "table.json").exists()
 
-    # Same bytes under two names: processed once per name, the duplicate noted by SHA-256.
-    assert rows["sun_copy.exr"].folder != rows["sun.exr"].folder
+    # Same bytes under two names: done once, and the second name's row points at the first copy's folder.
+    assert rows["sun_copy.exr"].folder == rows["sun.exr"].folder
     assert rows["sun_copy.exr"].sha256 == rows["sun.exr"].sha256 == sha256(files["sun"])
-    dup_rows = [m for m in (rows["sun.exr"], rows["sun_copy.exr"]) if m.duplicate_of is not None]
-    assert len(dup_rows) == 1 and Path(dup_rows[0].duplicate_of).name in ("sun.exr", "sun_copy.exr")
+    first, second = sorted((rows["sun.exr"], rows["sun_copy.exr"]), key=lambda m: m.duplicate_of is not None)
+    assert first.duplicate_of is None and second.duplicate_of == first.source
+    assert len(list((out / "maps").glob("sun*"))) == 1
     assert result.duplicates == [{"sha256": sha256(files["sun"]),
                                   "sources": sorted([os.fspath(files["sun"]), os.fspath(files["duplicate"])],
                                                     key=lambda s: os.fspath(Path(s).resolve()))}]
@@ -213,6 +219,7 @@ def test_batch_reports_the_corrupt_file_and_finishes_the_rest(tmp_path):
     # Summaries: one row per source, in every format.
     summary = json.loads((out / "summary.json").read_text())
     assert SUMMARY_SCHEMA.matches(summary) and summary["schema"] == "envsample.batch-summary" and len(summary["maps"]) == 7
+    assert summary["state"] == "complete" and summary["stale"] == []
     assert summary["counts"]["error"] == 1 and summary["counts"]["fail"] == 1
     with open(out / "summary.csv", newline="") as fh:
         table_rows = list(csv.DictReader(fh))
@@ -259,8 +266,12 @@ def test_second_run_skips_everything_force_redoes_and_new_options_redo(tmp_path)
     assert all((out / m.folder / "manifest.json").stat().st_mtime_ns != manifests[m.source] for m in forced.maps)
 
     coarse = run_batch([tmp_path / "lib"], out, workers=0, options={"size": "32x16"})
-    assert [m.status for m in coarse.maps] == ["done"] * 7
     rows = by_source(coarse)
+    # Only the maps that have a table are redone: the unreadable and the failed map have nothing
+    # that the table options shape, so they stay up to date.
+    assert {n: m.status for n, m in rows.items()} == {
+        "broken.exr": "skipped", "photo.png": "skipped", "uniform.exr": "done", "overcast.hdr": "done",
+        "sun.exr": "done", "sun_copy.exr": "done", "studio.exr": "done"}
     assert (rows["sun.exr"].figures["table_width"], rows["sun.exr"].figures["table_height"]) == (32, 16)
     assert load_table(out / rows["sun.exr"].folder / "table").table_width == 32
 
@@ -289,7 +300,7 @@ def test_a_failing_map_is_recorded_and_the_batch_goes_on(tmp_path):
     rows = by_source(run_batch([tmp_path / "lib"], out, workers=0, task=_fail_inside_studio))
     bad = rows["studio.exr"]
     assert bad.status == "error" and bad.folder is None
-    assert bad.error.startswith("processing failed: TypeError: profile must be a path")
+    assert bad.error.startswith("processing failed: ") and "TypeError: profile must be a path" in bad.error
     assert not list((out / "maps").glob("studio-*")) and not (out / ".staging").exists()
     assert all(m.status == "done" for n, m in rows.items() if n != "studio.exr")
     # Errors are not cached: the next run tries the map again and skips the others.
@@ -374,7 +385,12 @@ def test_simulated_ctrl_c_cancels_cleans_up_and_a_rerun_completes(tmp_path):
     partial = info.value.result
     assert partial.interrupted and partial.exit_code() == 130
     assert len(partial.maps) == 2 and all(m.status == "done" for m in partial.maps)
-    assert not (out / ".staging").exists() and not (out / "summary.json").exists()
+    # issue 12 item 11: the counts name the 7 maps asked for, not only the 2 finished.
+    assert partial.counts["maps"] == 7 and partial.counts["done"] == 2 and partial.counts["pending"] == 5
+    assert not (out / ".staging").exists()
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["state"] == "interrupted" and len(summary["maps"]) == 7
+    assert sum(r["status"] == "pending" for r in summary["maps"]) == 5
     folders = sorted((out / "maps").iterdir())
     assert len(folders) == 2
     for f in folders:
@@ -401,7 +417,7 @@ _SCRIPT = textwrap.dedent(
 def test_killing_a_batch_midway_leaves_no_partial_output_and_a_rerun_completes(tmp_path, sig):
     lib = tmp_path / "many"
     lib.mkdir()
-    n_maps = 24
+    n_maps = 12
     for i in range(n_maps):
         write_map(lib / f"m{i:02d}.exr", make_sky("sun", width=WIDTH, azimuth_deg=float(12 * i - 150)))
     out = tmp_path / "out"
@@ -427,7 +443,10 @@ def test_killing_a_batch_midway_leaves_no_partial_output_and_a_rerun_completes(t
         assert not (out / ".staging").exists()
     else:
         assert proc.returncode == -signal.SIGKILL
-    assert not (out / "summary.json").exists()
+    # The summary never claims more than it knows: written when the plan was made, it says so.
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["state"] == ("interrupted" if sig == "SIGINT" else "running")
+    assert len(summary["maps"]) == n_maps
 
     rerun = run_batch([lib], out, workers=0)
     assert len(rerun.maps) == n_maps and all(m.verdict in ("pass", "warn") for m in rerun.maps)
@@ -493,10 +512,62 @@ def test_verify_figures_match_the_closed_form_variance_of_a_constant_sky(tmp_pat
     assert m.figures["verify_rmse_table"] == pytest.approx(expected, rel=tolerance)
     assert m.figures["verify_rmse_table"] == metrics["estimators"]["table"]["relative_rmse"]
     assert_complete(folder)
-    # verify is part of the options: a run without it redoes the map, a run with it skips.
+    # A rerun with verify skips; a rerun without it keeps the verify results (issue 10: nothing deleted).
     assert run_batch([lib], out, workers=0, verify=True).maps[0].status == "skipped"
+    before = tree_hashes(folder)
     plain = run_batch([lib], out, workers=0)
-    assert plain.maps[0].status == "done" and not (out / plain.maps[0].folder / "verify").exists()
+    assert plain.maps[0].status == "skipped" and plain.maps[0].figures["verify_rmse_table"] == m.figures["verify_rmse_table"]
+    assert tree_hashes(folder) == before
+
+
+# --------------------------------------------------------------------------- stale folders, links
+
+
+def test_a_changed_source_leaves_a_stale_folder_that_prune_removes(tmp_path):
+    """issue 10: a fixed source's old folder is listed (kept), and --prune removes it and gone sources' folders."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "a.exr", make_sky("overcast", width=WIDTH))
+    write_map(lib / "b.exr", make_sky("uniform", width=WIDTH))
+    out = tmp_path / "out"
+    first = by_source(run_batch([lib], out, workers=0))
+    old_a, old_b = first["a.exr"].folder, first["b.exr"].folder
+    write_map(lib / "a.exr", make_sky("overcast", width=WIDTH, zenith_luminance=3.0))  # "fixed": new bytes
+    (lib / "b.exr").unlink()
+    second = run_batch([lib], out, workers=0)
+    stale = {s["folder"]: s for s in second.stale}
+    assert stale[old_a]["reason"] == "source changed" and stale[old_b]["reason"] == "source gone"
+    assert not any(s["pruned"] for s in second.stale) and (out / old_a).is_dir() and (out / old_b).is_dir()
+    summary = json.loads((out / "summary.json").read_text())
+    assert {s["folder"] for s in summary["stale"]} == {old_a, old_b}
+    assert "source changed" in (out / "index.html").read_text()
+    pruned = run_batch([lib], out, workers=0, prune=True)
+    assert {s["folder"]: s["pruned"] for s in pruned.stale} == {old_a: True, old_b: True}
+    assert not (out / old_a).exists() and not (out / old_b).exists()
+    assert (out / pruned.maps[0].folder).is_dir()
+    assert run_batch([lib], out, workers=0).stale == []
+
+
+def test_links_that_leave_the_source_folder_are_refused_unless_asked(tmp_path):
+    """issue 12 item 11: a link to a file elsewhere is refused without naming its target."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    elsewhere = tmp_path / "private"
+    elsewhere.mkdir()
+    write_map(lib / "inside.exr", make_sky("overcast", width=WIDTH))
+    write_map(elsewhere / "secret.exr", make_sky("uniform", width=WIDTH))
+    (lib / "outside.exr").symlink_to(elsewhere / "secret.exr")
+    (lib / "alias.exr").symlink_to(lib / "inside.exr")  # inside the tree: the same file, counted once
+    found = expand_sources([lib])
+    assert len(found) == 1 and found[0].resolve() == (lib / "inside.exr").resolve()
+    out = tmp_path / "out"
+    rows = by_source(run_batch([lib], out, workers=0))
+    refused = rows["outside.exr"]
+    assert refused.verdict == "error" and "outside the source folder" in refused.error
+    assert "private" not in refused.error and "secret" not in refused.error
+    assert "secret" not in (out / "summary.csv").read_text()
+    rows = by_source(run_batch([lib], out, workers=0, follow_links=True))
+    assert rows["outside.exr"].verdict in ("pass", "warn")
 
 
 def test_verify_reports_the_exact_reference_bound_in_the_summary_and_its_time_in_the_manifest(tmp_path):
@@ -535,3 +606,17 @@ def test_split_sun_splits_only_maps_whose_sun_holds_the_sampling_checks_share(tm
     # Without the option nothing is split.
     again = run_batch([lib], tmp_path / "out2", workers=0)
     assert all(m.to_row()["split_note"] is None for m in again.maps)
+
+
+def test_a_rerun_without_split_sun_keeps_the_split(tmp_path):
+    """--split-sun adds to the table output (like --raw): a rerun without it deletes nothing."""
+    lib = tmp_path / "lib"
+    lib.mkdir()
+    write_map(lib / "noon.exr", make_sky("sun", width=256, elevation_deg=50.0), pixel_type="float")
+    out = tmp_path / "out"
+    m = run_batch([lib], out, workers=0, split_sun=True).maps[0]
+    before = tree_hashes(out / m.folder)
+    assert any(k.startswith("split/") for k in before)
+    again = run_batch([lib], out, workers=0).maps[0]
+    assert again.status == "skipped" and tree_hashes(out / m.folder) == before
+    assert again.figures["split_note"].startswith("split: sun")

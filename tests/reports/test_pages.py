@@ -7,7 +7,8 @@ Sources the tests check against, outside this project:
 - pictures are ``data:`` URIs (RFC 2397) whose base64 payload (RFC 4648) must decode strictly
   (``base64.b64decode(validate=True)``) to a PNG (ISO/IEC 15948 signature) that imageio reads,
   with the pixel size the <img> tag states;
-- escaping is compared with ``html.escape`` of the standard library;
+- escaping: every message must come back unchanged from the standard library's parser
+  (``html.parser`` with ``convert_charrefs``), and raw markup characters must not appear;
 - the ring around the sun is compared with the sun position the analytic sky was built with
   (:func:`envsample.skies.make_sky`, its documented convention: azimuth 0 at the image centre,
   positive to the right, elevation 90 deg at the top row), not with the QA check's estimate.
@@ -188,8 +189,8 @@ def test_clean_page_parses_and_every_picture_is_an_embedded_png(pages):
     p, raw = parse(pages["clean"])
     assert_self_contained(p, raw)
     assert_images_valid(p)
-    # Thumbnail and pdf heat map.
-    assert len(p.imgs) == 2
+    # Thumbnail, pdf heat map and range overlay.
+    assert len(p.imgs) == 3
     thumb = [a for a in p.imgs if a["alt"].startswith("tone-mapped thumbnail")]
     assert len(thumb) == 1
     # A 128-px map is enlarged by pixel repetition to the documented thumbnail width, 2:1.
@@ -219,9 +220,9 @@ def test_defective_map_shows_failures_with_word_and_shape(maps, pages):
     for cid in r.ids("fail") + r.ids("warn"):
         assert cid in text
     for x in r.checks:
-        assert std_html.escape(x.message) in raw
+        assert " ".join(x.message.split()) in text
         if x.remedy:
-            assert std_html.escape(x.remedy) in raw
+            assert " ".join(x.remedy.split()) in text
     # Every severity mark holds a shape element and the severity word (readable without colour).
     marks = re.findall(r'<span class="sev s-(\w+)"><span class="shape" aria-hidden="true"></span>(\w+)</span>', raw)
     assert len(marks) == raw.count('class="sev ')
@@ -321,8 +322,9 @@ def test_batch_page_with_verify_pictures_embedded_byte_for_byte(maps, verify_dir
         assert (verify_dir / name).read_bytes() in embedded, name
     for est in metrics["estimators"]:
         assert est in text
-    # One thumbnail and one pdf map per map, plus the verify pictures of the first.
-    assert len(p.imgs) == 4 + len(metrics["files"]["errors"]) + 1
+    # A thumbnail, a pdf map and a range overlay per map, plus the verify pictures of the first
+    # (map.png, the error maps and the convergence plot).
+    assert len(p.imgs) == 6 + 1 + len(metrics["files"]["errors"]) + 1
     assert set(CHECKS) - {s["id"] for r in reports for s in r.skipped} <= set(t.strip() for t in p.id_cells)
 
 
@@ -446,8 +448,9 @@ def test_index_page_rows_thumbnails_links_and_escaping(maps, tmp_path):
     p, raw = parse(page)
     assert_images_valid(p)
     assert len(p.imgs) == 2
-    assert decode_png(p.imgs[0]["src"])[0] == thumb_file.read_bytes()
-    hrefs = [v for t, k, v in p.refs if t == "a"]
+    clean_thumb = next(a for a in p.imgs if a["alt"] == "thumbnail of clean.exr")
+    assert decode_png(clean_thumb["src"])[0] == thumb_file.read_bytes()
+    hrefs = [v for t, k, v in p.refs if t == "a" and not v.startswith("#")]
     assert hrefs == ["maps/a/page.html", "maps/a/check.json", "maps/a/x%20y#1.json"]
     for h in hrefs:
         assert not re.match(r"^(?:[a-z][a-z0-9+.-]*:|/)", h, re.I)
@@ -499,3 +502,51 @@ def test_cli_check_writes_the_page(maps, tmp_path):
     assert_self_contained(p, raw)
     assert_images_valid(p)
     assert "clean.exr" in p.all_text and CAUTION in p.all_text
+
+
+# --------------------------------------------------------------------------- pictures that show the numbers
+
+
+def test_the_pdf_map_rings_the_sun_like_the_thumbnail(maps):
+    """issue 10: the sun was a near-invisible dot on the pdf map.  The ringed panel of the page's pdf
+    (before the figure scales it) has the sun ring centred where make_sky put the sun, and the page's
+    pdf picture carries the ring colour."""
+    from envsample.reports.map_parts import _emitters, _rings, pdf_values
+    from envsample.reports.pictures import ringed_panel
+
+    rgb = make_sky("sun", width=WIDTH, elevation_deg=SUN_EL, azimuth_deg=SUN_AZ)
+    pdf = pdf_values(rgb, "bt709")
+    rings = _rings(_emitters(maps["r_clean"].to_dict()), 512)
+    pic = ringed_panel(pdf, rings, vmin=float(pdf[pdf > 0].min()), vmax=float(pdf.max()), log=True, cmap="viridis")
+    ring = np.all(pic == SUN_RING_RGB, axis=-1)
+    rows, cols = np.nonzero(ring)
+    h, w = pic.shape[:2]
+    x_sun, y_sun = (0.5 + SUN_AZ / 360.0) * w, (90.0 - SUN_EL) / 180.0 * h
+    pixel = w / WIDTH
+    assert ring.sum() > 20
+    assert abs((cols + 0.5).mean() - x_sun) < pixel and abs((rows + 0.5).mean() - y_sun) < pixel
+    p, _ = parse(check_page(maps["r_clean"], maps["folder"] / "pdf-ring.html"))
+    _, shown = decode_png(next(a for a in p.imgs if a["alt"].startswith("sampling pdf"))["src"])
+    assert np.all(shown[..., :3] == SUN_RING_RGB, axis=-1).sum() > 20
+
+
+def test_the_range_overlay_marks_a_clipped_sun_and_not_a_clean_one(tmp_path):
+    """issue 10: a clipped and a clean sun looked identical.  The overlay paints the plateau the
+    clipping check failed on in the 'clipped' colour, at the sun (support.qa_maps.clipped_sun, sun at
+    azimuth 40, elevation 35), and nothing on the same sky unclipped."""
+    from support.qa_maps import SUN_AZ as AZ, SUN_EL as EL, W, clipped_sun, sunny
+
+    from envsample.reports.pictures import RANGE_COLORS
+
+    for img, expect in ((clipped_sun(), True), (sunny(), False)):
+        report = check_map(img)
+        p, raw = parse(check_page(report, tmp_path / "o.html", images=[img]))
+        _, pic = decode_png(next(a for a in p.imgs if a["alt"].startswith("range overlay"))["src"])
+        mask = np.all(pic[..., :3] == RANGE_COLORS["clipped"], axis=-1)
+        assert mask.any() == expect == (report["clipping"].severity == "fail")
+        assert "clipped:" in p.all_text and "over range:" in p.all_text  # the legend
+        if expect:
+            rows, cols = np.nonzero(mask)
+            scale = pic.shape[1] / W
+            assert abs((cols + 0.5).mean() / pic.shape[1] - (0.5 + AZ / 360.0)) < 2 * scale / pic.shape[1] + 0.01
+            assert abs((rows + 0.5).mean() / pic.shape[0] - (90.0 - EL) / 180.0) < 0.02

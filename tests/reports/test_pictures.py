@@ -294,3 +294,66 @@ def test_image_panels_names_each_picture(tmp_path):
     assert img.ndim == 3 and img.shape[1] > 80
     with pytest.raises(ValueError, match="at least one"):
         image_panels([], path=tmp_path / "q.png")
+
+
+# ---------------------------------------------------------------------------
+# rings on heat maps, range overlay, lat-long axes
+# ---------------------------------------------------------------------------
+
+def test_ringed_panel_draws_the_ring_around_the_peak_of_the_values():
+    values = np.full((32, 64), 1.0)
+    values[8, 48] = 100.0  # a peak at u = 48.5/64, v = 8.5/32
+    uv = [((48 + 0.5) / 64, (8 + 0.5) / 32)]
+    pic = P.ringed_panel(values, [{"uv": uv, "color": (255, 60, 170), "radius": 12.0, "thickness": 3.0}],
+                         vmin=1.0, vmax=100.0, log=True, cmap="viridis")
+    assert pic.shape == (256, 512, 3)  # enlarged by pixel repetition to about 512 columns
+    ring = np.all(pic == (255, 60, 170), axis=2)
+    rows, cols = np.nonzero(ring)
+    assert ring.sum() > 50
+    assert abs((cols + 0.5).mean() - uv[0][0] * 512) < 1.0 and abs((rows + 0.5).mean() - uv[0][1] * 256) < 1.0
+    # The peak's colour (the top of viridis) sits inside the ring, untouched.
+    assert tuple(pic[8 * 8 + 4, 48 * 8 + 4]) == tuple(P.colorize(np.array([[100.0]]), vmin=1.0, vmax=100.0, log=True,
+                                                                  cmap="viridis")[0, 0])
+
+
+def test_colorize_uses_the_end_colours_and_grey_for_bad_values():
+    import matplotlib
+
+    out = P.colorize(np.array([[0.5, 1.0, np.nan, 3.0]]), vmin=0.5, vmax=1.0, cmap="magma")
+    top = np.rint(np.array(matplotlib.colormaps["magma"](1.0)[:3]) * 255).astype(np.uint8)
+    assert tuple(out[0, 1]) == tuple(top) == tuple(out[0, 3]) and tuple(out[0, 2]) == (212, 212, 212)
+
+
+def test_range_overlay_marks_each_class_where_it_is():
+    rgb = np.full((32, 64, 3), 0.5, np.float32)
+    rgb[4:7, 10:13] = 500.0          # a plateau at the clip level
+    rgb[20, 40] = [1e6, 0.0, 0.0]    # above the half-float maximum
+    rgb[25, 5] = [np.nan, 0.0, 0.0]  # invalid
+    rgb[26, 60] = [-1.0, 0.5, 0.5]   # invalid
+    pic, counts = P.range_overlay(rgb, clip_level=500.0, clip_tolerance=1e-3, over_level=65504.0, width=64)
+    assert counts == {"clipped": 9, "over range": 1, "invalid": 2}
+    colors = P.RANGE_COLORS
+    assert np.all(pic[4:7, 10:13] == colors["clipped"])
+    assert tuple(pic[20, 40]) == colors["over range"] and tuple(pic[25, 5]) == colors["invalid"]
+    assert tuple(pic[26, 60]) == colors["invalid"]
+    others = np.ones((32, 64), bool)
+    others[4:7, 10:13] = others[20, 40] = others[25, 5] = others[26, 60] = False
+    assert np.all(pic[others][:, 0] == pic[others][:, 1])  # the rest is grey
+    clean, none = P.range_overlay(np.full((32, 64, 3), 0.5, np.float32), over_level=65504.0, width=64)
+    assert none == {"clipped": 0, "over range": 0, "invalid": 0} and np.all(clean[..., 0] == clean[..., 2])
+
+
+def test_range_overlay_keeps_a_single_bad_pixel_when_downsampled():
+    rgb = np.full((256, 512, 3), 0.5, np.float32)
+    rgb[100, 300] = np.inf
+    pic, counts = P.range_overlay(rgb, over_level=65504.0, width=128)
+    assert counts["over range"] == 1
+    assert tuple(pic[100 // 4, 300 // 4]) == P.RANGE_COLORS["over range"]
+
+
+def test_latlong_figure_writes_a_png_with_axes(tmp_path):
+    pic = np.zeros((32, 64, 3), np.uint8)
+    out = P.latlong_figure(pic, path=tmp_path / "map.png", title="map")
+    img = iio.imread(out)
+    # Axes with labels make the figure larger than the picture and put dark tick text on white.
+    assert img.shape[0] > 32 and img.shape[1] > 64 and (img[..., :3] == 255).all(axis=2).mean() > 0.3
