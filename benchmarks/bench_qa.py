@@ -21,25 +21,16 @@ import argparse
 import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
+from common import best
 
 from envsample.io.maps import write_map
 from envsample.qa.checks import CHECKS
 from envsample.qa.run import check_map
 from envsample.sampling.table import build_table
 from envsample.synth.skies import make_sky
-
-
-def best(fn, repeats=2):
-    out = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return min(out)
 
 
 def _process(code: str) -> None:

@@ -24,7 +24,6 @@ shared, so compare the ratios printed by one run.
 from __future__ import annotations
 
 import argparse
-import gc
 import math
 import resource
 import sys
@@ -33,6 +32,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from common import best_with_result
 
 from envsample.core.latlong import reduce_power
 from envsample.core.sphere import pixel_center_directions
@@ -62,35 +62,26 @@ def analytic_map(width: int, height: int, *, texture: bool = True) -> np.ndarray
     return img
 
 
-def best(fn, repeats: int):
-    times, out = [], None
-    for _ in range(repeats):
-        gc.collect()
-        t0 = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t0)
-    return min(times), out
-
 
 def bench_irradiance(img, normals, lum: float, args) -> None:
     scale = math.pi * float(np.mean(img))
     print(f"reference_irradiance, {normals.shape[0]} normals (128x64 grid):")
-    sec, e_all = best(lambda: reference_irradiance(img, normals), args.repeats)
+    sec, e_all = best_with_result(lambda: reference_irradiance(img, normals), args.repeats)
     print(f"  compiled, all CPUs : {sec:7.2f} s = {sec / lum:6.1f}x one luminance pass "
           f"({sec / normals.shape[0] / sum(img.shape[:2]) * 1e9:.1f} ns per normal x (H + W))")
-    sec1, e_one = best(lambda: reference_irradiance(img, normals, threads=1), 1)
+    sec1, e_one = best_with_result(lambda: reference_irradiance(img, normals, threads=1), 1)
     print(f"  compiled, 1 thread : {sec1:7.2f} s = {sec1 / lum:6.1f}x  (threads speed-up {sec1 / sec:.2f})")
     again = reference_irradiance(img, normals)
     print(f"  bit-identical: repeated run {np.array_equal(again, e_all)}, 1 thread vs all {np.array_equal(e_one, e_all)}")
     if not args.skip_numpy:
-        secn, e_np = best(lambda: reference_irradiance(img, normals, backend="numpy"), 1)
+        secn, e_np = best_with_result(lambda: reference_irradiance(img, normals, backend="numpy"), 1)
         diff = float(np.max(np.abs(e_np - e_all))) / scale
         print(f"  numpy fallback     : {secn:7.2f} s = {secn / lum:6.1f}x  (compiled is {secn / sec:.0f}x faster); "
               f"largest difference {diff:.1e} x pi mean L")
     plain = analytic_map(img.shape[1], img.shape[0], texture=False)
-    secp, _ = best(lambda: reference_irradiance(plain, normals), args.repeats)
+    secp, _ = best_with_result(lambda: reference_irradiance(plain, normals), args.repeats)
     print(f"  untextured scene (constant ground rows), compiled: {secp:.2f} s = {secp / lum:.1f}x")
-    seca, acc = best(lambda: reference_accuracy(img, normals), 1)
+    seca, acc = best_with_result(lambda: reference_accuracy(img, normals), 1)
     print(f"reference_accuracy (64 normals, both signs): {seca:.2f} s = {seca / lum:.1f}x; relative error bound "
           f"{acc['relative_error_bound']:.1e} (identity residual {acc['identity_residual']:.1e}, "
           f"snap bound {acc['snap_bound']:.1e})")
@@ -110,7 +101,7 @@ def bench_glossy(img, args) -> None:
                 def run(small=small, be=be):
                     return [reference_glossy(small, normals, view_directions(normals, a), alpha, backend=be)
                             for a in GLOSSY_VIEWS]
-                sec, _ = best(run, 1)
+                sec, _ = best_with_result(run, 1)
                 if base is None:
                     base = sec
                 print(f"  alpha {alpha:4.2f} {wh[0]:4d}x{wh[1]:<4d} {be:8s} {sec:6.2f} s = {sec / base:5.2f}x "
@@ -145,7 +136,7 @@ def main() -> None:
     width, height = (2048, 1024) if args.quick else (8192, 4096)
     img = analytic_map(width, height)
     weights = np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
-    lum, _ = best(lambda: img @ weights, 3)
+    lum, _ = best_with_result(lambda: img @ weights, 3)
     print(f"map {width}x{height} float32, one luminance pass {lum:.3f} s")
     normals = pixel_center_directions(64, 128).reshape(-1, 3)
     bench_irradiance(img, normals, lum, args)

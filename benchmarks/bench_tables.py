@@ -31,17 +31,10 @@ import time
 from pathlib import Path
 
 import numpy as np
+from common import best
 
 CLI = [sys.executable, "-c", "from envsample.cli import main; main()"]
 
-
-def best(fn, repeats=3) -> float:
-    times = []
-    for _ in range(repeats):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return min(times)
 
 
 def textured_map(h: int, w: int, seed: int = 1) -> np.ndarray:

@@ -25,11 +25,11 @@ Timings are the best of a few repeats (``time.perf_counter``); run on an idle ma
 from __future__ import annotations
 
 import argparse
-import gc
 import tempfile
 import time
 
 import numpy as np
+from common import best
 
 from envsample.estimation.estimators import estimate_irradiance
 from envsample.pipeline.verify import verify_map
@@ -42,15 +42,6 @@ ESTIMATORS = ("cosine", "table", "mis-balance", "mis-power", "one-sample-balance
 NORMALS = (128, 64)
 SPP = 64
 
-
-def best(fn, repeats=3):
-    times = []
-    for _ in range(repeats):
-        gc.collect()
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return min(times)
 
 
 def tune_stability(seeds: int = 6) -> None:

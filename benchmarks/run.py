@@ -17,10 +17,10 @@ from __future__ import annotations
 
 import argparse
 import gc
-import time
 import tracemalloc
 
 import numpy as np
+from common import best
 
 from envsample.core.color import luminance
 from envsample.core.constants import luminance_weights
@@ -28,17 +28,6 @@ from envsample.core.sphere import row_solid_angles
 from envsample.sampling.distribution import build_alias, build_row_cdfs, build_rows
 from envsample.sampling.kernels import backend_name, kernels
 from envsample.sampling.table import build_table
-
-
-def best(fn, repeats=3):
-    times = []
-    for _ in range(repeats):
-        gc.collect()
-        t0 = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t0)
-        del out
-    return min(times)
 
 
 def synthetic_map(width, height, seed=7):

@@ -194,15 +194,20 @@ def thumbnail(rgb, *, width: int = 512, exposure: float | None = None, curve: st
     Averaging happens in linear light before tone mapping, so a small bright sun
     still shows in the thumbnail.  Returns uint8 ``(h, w, 3)``.
     """
-    img = _clean(rgb)
-    if img.ndim != 3:
-        raise ValueError(f"image must have shape (H, W, 3), got {img.shape}")
+    arr = np.asarray(rgb)
+    if arr.ndim != 3:
+        raise ValueError(f"image must have shape (H, W, 3), got {arr.shape}")
     if int(width) != width or width < 1:
         raise ValueError(f"thumbnail width must be a positive integer, got {width!r}")
-    f = max(1, img.shape[1] // int(width))
+    f = max(1, arr.shape[1] // int(width))
     if f > 1:
-        img = block_mean(img, f).astype(np.float32)
-    return tonemap(img, exposure=exposure, curve=curve)
+        # A clean map (finite, non-negative: one float64 sum and one minimum, no copy) is averaged as
+        # it is; only a map with bad pixels pays for a cleaned full-size copy first.
+        with np.errstate(invalid="ignore", over="ignore"):
+            clean = np.issubdtype(arr.dtype, np.floating) and bool(np.isfinite(np.sum(arr, dtype=np.float64)))
+        clean = clean and float(arr.min()) >= 0.0
+        arr = block_mean(arr if clean else _clean(arr), f).astype(np.float32)
+    return tonemap(arr, exposure=exposure, curve=curve)
 
 
 # ---------------------------------------------------------------------------
@@ -666,7 +671,7 @@ def range_overlay(rgb, *, clip_level: float | None = None, clip_tolerance: float
                     clipped |= arr[..., c] >= level * (1.0 - clip_tolerance)
             clipped &= ~invalid & ~over
     counts = {"clipped": int(clipped.sum()), "over range": int(over.sum()), "invalid": int(invalid.sum())}
-    grey = thumbnail(arr.astype(np.float32), width=width)
+    grey = thumbnail(np.asarray(arr, dtype=np.float32), width=width)
     f = max(1, arr.shape[1] // int(width))
     pic = np.repeat(np.rint(grey.mean(axis=2, keepdims=True)).astype(np.uint8), 3, axis=2)
     for name in ("clipped", "over range", "invalid"):
