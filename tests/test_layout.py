@@ -11,7 +11,7 @@ import ast
 from pathlib import Path
 
 import pytest
-from support.layers import LAYERS, cycles, graph, layer_violations, module_names
+from support.layers import LAYERS, cycles, function_level_imports, graph, layer_violations, module_names
 
 ROOT = Path(__file__).resolve().parents[1]
 PACKAGE = "envsample"
@@ -37,6 +37,10 @@ def test_no_package_imports_a_higher_layer(edges):
 
 def test_no_modules_import_each_other_in_a_circle(edges):
     assert cycles(edges) == []
+
+
+def test_our_modules_import_each_other_at_the_top():
+    assert function_level_imports(ROOT, PACKAGE) == []
 
 
 def _write(root: Path, files: dict[str, str]) -> None:

@@ -11,6 +11,7 @@ from envsample.cli.options import PRIMARY_CHOICES
 from envsample.cli.output import direction_text, echo_json, num, print_rows, rgb_line, size_text
 from envsample.io.maps import read_map
 from envsample.pipeline.workflow import map_facts, table_facts
+from envsample.validation.tuning import advice_text
 
 
 def _is_table(path: Path) -> bool:
@@ -88,7 +89,6 @@ def _print_table_facts(f: dict) -> None:
          else "metadata and file sizes only (--verify reads and checks the arrays)"),
     ]
     if f.get("recommendation"):
-        from envsample.validation.tuning import advice_text
 
         for k, line in enumerate(advice_text(f["recommendation"])):
             rows.append(("advice" if k == 0 else "", line))

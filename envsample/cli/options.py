@@ -12,6 +12,7 @@ import click
 from envsample.core.color import PRIMARY_NAMES
 from envsample.core.constants import PRIMARY_ALIASES
 from envsample.core.latlong import MAPPINGS, parse_size
+from envsample.core.limits import parse_bytes
 from envsample.core.sphere import UP_AXES
 
 
@@ -94,7 +95,6 @@ class ByteSizeType(click.ParamType):
     name = "SIZE"
 
     def convert(self, value, param, ctx):
-        from envsample.core.limits import parse_bytes
 
         try:
             parse_bytes(value, name="--max-memory")

@@ -12,6 +12,7 @@ from envsample.cli.app import main
 from envsample.cli.options import DEGREES, SIZE, FiniteFloat, max_memory_option
 from envsample.cli.output import num, print_rows, rgb_line, size_text
 from envsample.core.constants import HALF_FLOAT_MAX
+from envsample.core.limits import check_memory
 from envsample.core.text import caution
 from envsample.io.maps import supported_extensions, write_map
 from envsample.pipeline.workflow import check_output_folder, map_integrals
@@ -109,7 +110,6 @@ def sky(kind, output, size, pixel_type, max_memory, **given):
             )
         options[keyword] = [_parse_light(v) for v in value] if name == "lights" else value
     width, height = size
-    from envsample.core.limits import check_memory
 
     # The map (12 B per pixel) and the float64 directions and temporaries the sky models use.
     check_memory(64 * width * height, what=f"sky --size {width}x{height}", limit=max_memory,

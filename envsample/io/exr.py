@@ -19,7 +19,6 @@ import numpy as np
 from envsample.errors import EnvsampleError, MapReadError
 from envsample.io.image import _CHROMATICITY_KEYS, MapImage, _chromaticities_from_flat, _file_start, _one_line
 
-
 # OpenEXR files start with this magic number (OpenEXR file layout documentation).
 _EXR_MAGIC = b"\x76\x2f\x31\x01"
 

@@ -17,7 +17,6 @@ import numpy as np
 
 from envsample.errors import MapReadError, MapValidationError
 
-
 _CHROMATICITY_KEYS = ("red", "green", "blue", "white")
 
 

@@ -22,7 +22,6 @@ import numpy as np
 from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapWriteError
 from envsample.io.image import _CHROMATICITY_KEYS, MapImage, _chromaticities_from_flat, _file_start, _one_line
 
-
 # Radiance pictures start with "#?" followed by the program name (usually RADIANCE or RGBE).
 _RADIANCE_MAGIC = b"#?"
 

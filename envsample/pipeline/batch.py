@@ -99,7 +99,12 @@ from pathlib import Path
 
 import numpy as np
 
+from envsample._version import __version__
+from envsample.core.color import canonical_primaries
+from envsample.core.latlong import MAPPINGS, parse_size
+from envsample.core.sphere import UP_AXES
 from envsample.errors import EnvsampleError, MapReadError
+from envsample.io.maps import supported_extensions
 from envsample.pipeline.outcomes import (
     BatchInterrupted,
     BatchProgress,
@@ -121,6 +126,7 @@ from envsample.pipeline.tasks import (
     remove_tree,
     up_to_date,
 )
+from envsample.qa.profile import load_profile
 
 __all__ = [
     "BUILD_OPTIONS",
@@ -191,7 +197,6 @@ def _glob_root(pattern: str) -> Path:
 
 def _collect_sources(sources, *, exclude=None, follow_links: bool = False) -> tuple[list[Path], dict]:
     """(sorted unique files, {path: why refused}) for :func:`expand_sources` and :func:`run_batch`."""
-    from envsample.io.maps import supported_extensions
 
     if isinstance(sources, (str, os.PathLike)):
         sources = [sources]
@@ -276,9 +281,6 @@ def normalize_options(options: Mapping | None) -> dict:
     ``compensate``, ``tune``, ``raw``, ``repair``, ``allow_aspect`` (as ``envsample build``).
     Unknown keys raise ValueError listing the valid ones.
     """
-    from envsample.core.color import canonical_primaries
-    from envsample.core.latlong import MAPPINGS, parse_size
-    from envsample.core.sphere import UP_AXES
 
     given = dict(options or {})
     for old in ("rotate", "rotate_deg"):
@@ -508,8 +510,6 @@ def run_batch(
 
 def _prepare(sources, outdir, *, options, profile, follow_links, scheduler, flags) -> tuple:
     """Check everything a batch is given, find its sources, make OUTDIR; (paths, refused, _Run)."""
-    from envsample._version import __version__
-    from envsample.qa.profile import load_profile
 
     opts = normalize_options(options)
     prof = load_profile(profile)

@@ -30,6 +30,7 @@ from envsample.lights.split import SUN_SCHEMA, SunSplit, split_sun
 from envsample.pipeline.workflow import check_output_folder
 from envsample.sampling.sun import SunLight
 from envsample.sampling.table import EnvTable, build_table
+from envsample.validation.split import compare_split
 
 __all__ = ["SplitResult", "split_map_file", "write_split", "load_sun", "SplitSource", "find_split", "verify_split"]
 
@@ -162,7 +163,6 @@ def verify_split(split: SplitSource, sky_table: EnvTable, outdir, *, spp: int, n
     The comparison uses at most 64 x 32 normals of the verify grid's size.  Returns the JSON
     document; without the original map (moved or deleted) it says so and compares nothing.
     """
-    from envsample.validation.split import compare_split
 
     out = Path(outdir)
     if split.original is None:

@@ -21,10 +21,12 @@ import io as _io
 import json
 from collections.abc import Sequence
 
+from envsample._version import __version__
 from envsample.core.files import atomic_write_text
 from envsample.core.schema import Schema
 from envsample.core.text import caution
 from envsample.pipeline.outcomes import ROW_FIELDS, BatchResult
+from envsample.reports.pages import index_page
 
 __all__ = ["SUMMARY_SCHEMA", "STATES", "csv_cell", "write_summaries", "index_rows"]
 
@@ -60,8 +62,6 @@ def _pending_row(source: str) -> dict:
 def write_summaries(result: BatchResult, key_docs: dict, profile, *, state: str = "complete",
                     pending: Sequence[str] = ()) -> dict:
     """summary.json, summary.csv and index.html in OUTDIR, each by temporary file and rename; returns the paths."""
-    from envsample._version import __version__
-    from envsample.reports.pages import index_page
 
     if state not in STATES:
         raise ValueError(f"unknown summary state {state!r}; valid: {', '.join(STATES)}")

@@ -43,7 +43,24 @@ import numpy as np
 from envsample.core.schema import Schema
 from envsample.core.text import caution, one_line
 from envsample.errors import EnvsampleError, EnvsampleWarning, MapReadError, MapValidationError, SunSplitError
+from envsample.io.maps import read_map, validate_map, write_map
+from envsample.lights.split import split_sun
+from envsample.pipeline.fix import (
+    FIX_LOG_SCHEMA,
+    HEADER_ATTRIBUTE,
+    FixRefusedError,
+    header_record,
+    output_pixel_type,
+    repair_image,
+)
 from envsample.pipeline.outcomes import ROW_FIELDS
+from envsample.pipeline.split import write_split
+from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
+from envsample.qa.run import check_map
+from envsample.reports.pages import check_page, report_row
+from envsample.reports.pictures import thumbnail, write_png
+from envsample.sampling.table import build_table, load_table
+from envsample.validation.tuning import recommend
 
 #: Name and version of each map folder's ``manifest.json`` (3: one options key and file list per output).
 MANIFEST_SCHEMA = Schema("envsample.batch-map", 3)
@@ -221,7 +238,6 @@ def _carry_over(src: Path, work: Path, files: Mapping) -> None:
 def _report_figures(report) -> dict:
     """Key figures of a QA report for the summary row (None where a check did not run); the same
     figures as a row of the index page (:func:`envsample.reports.pages.report_row`)."""
-    from envsample.reports.pages import report_row
 
     row = report_row(report)
     return {k: row.get(k) for k in OUTPUT_FIELDS["check"] if k in row}
@@ -242,14 +258,12 @@ class _Map:
         The table is built from the file itself, so it records ``fixed.exr`` (beside it in the map's
         folder) as its source and reads its radiance back from there, bit for bit the pixels it sampled.
         """
-        from envsample.io.maps import read_map
 
         if (work / "fixed.exr").is_file():
             return read_map(work / "fixed.exr")
         return self.image()
 
     def image(self):
-        from envsample.io.maps import read_map
 
         if not self._read:
             self._read = True
@@ -265,9 +279,6 @@ class _Map:
 
 def _make_check(task: Mapping, source: _Map, work: Path) -> dict:
     """check.json, thumb.png and check.html; the row part of the check output."""
-    from envsample.qa.run import check_map
-    from envsample.reports.pages import check_page
-    from envsample.reports.pictures import thumbnail, write_png
 
     image = source.image()
     # An unreadable file still gets its QA report (a failing "read" check) so the reviewer sees why.
@@ -318,8 +329,6 @@ def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping,
     rebuild does not lose what a rerun did not ask for.  With ``fix`` the table is built
     from the repaired map (``fixed.exr`` of the check output) when there is one.
     """
-    from envsample.io.maps import validate_map
-    from envsample.sampling.table import build_table
 
     o = {**task["options"], **{k: bool(task["options"][k] or extras.get(k)) for k in ADDITIVE}}
     image = source.fixed_image(work) if o.get("fix") else source.image()
@@ -335,7 +344,6 @@ def _make_table(task: Mapping, source: _Map, work: Path, extras: Mapping,
         except (MapValidationError, EnvsampleError, ValueError) as e:
             return {"table_note": "no table: " + error_line(e).removeprefix(f"{source.path}: ")}, False
         if o["tune"]:
-            from envsample.validation.tuning import recommend
 
             table.metadata["recommendation"] = recommend(table, seed=map_seed(task["sha256"]) % (1 << 32))
     table.save(work / "table", raw=o["raw"])
@@ -358,17 +366,6 @@ def _auto_fix(image, report, work: Path, profile):
     map.  A map that cannot be fixed, or needs nothing, is kept as it is (the note says why).
     """
     import dataclasses
-
-    from envsample.io.maps import write_map
-    from envsample.pipeline.fix import (
-        FIX_LOG_SCHEMA,
-        HEADER_ATTRIBUTE,
-        FixRefusedError,
-        header_record,
-        output_pixel_type,
-        repair_image,
-    )
-    from envsample.qa.run import check_map
 
     try:
         rgb, records, _, _ = repair_image(image, report, auto=True, profile=profile)
@@ -393,8 +390,6 @@ def _split(image, folder: Path, task: Mapping) -> dict:
     The threshold is the profile's ``[sampling] analytic_light_share`` (the share from which
     the check advises an analytic sun); the sun is the shared finder's.
     """
-    from envsample.lights.split import split_sun
-    from envsample.pipeline.split import write_split
 
     share = float(task["profile"].section("sampling")["analytic_light_share"])
     o = task["options"]
@@ -421,10 +416,8 @@ def _make_verify(task: Mapping, work: Path) -> dict:
     verify's recommended estimator ranks by measured efficiency, which includes timings,
     so it is left in ``verify/metrics.json``).
     """
-    from envsample.pipeline.verify import verify_map  # lazily: verify pulls in the estimators and matplotlib
 
     s = VERIFY_SETTINGS
-    from envsample.sampling.table import load_table
 
     # The table object, not its staging path, so metrics.json names the map it came from.
     doc = verify_map(load_table(work / "table"), work / "verify", spp=s["spp"], normals=tuple(s["normals"]),

@@ -33,12 +33,21 @@ from pathlib import Path
 
 import numpy as np
 
+from envsample._version import __version__
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.compat import renamed_keywords
+from envsample.core.files import atomic_write_text, refuse_overwriting_inputs
+from envsample.core.latlong import row_channel_sums
 from envsample.core.schema import Schema
 from envsample.core.sphere import direction_angles, row_solid_angles, uv_to_direction
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError, MapValidationError, TableFormatError
+from envsample.io.maps import file_sha256, read_map, validate_map
+from envsample.io.tables import SCHEMA_VERSION as TABLE_FORMAT
+from envsample.io.tables import array_checksums, read_bin_header, read_table_json, table_paths
+from envsample.sampling.radiance import source_radiance
+from envsample.sampling.table import load_table, plan_build, sampled_function, table_from_function
+from envsample.validation.tuning import recommend
 
 __all__ = [
     "BuildResult",
@@ -169,11 +178,6 @@ def build_from_file(
     build_options : passed to :func:`envsample.sampling.table.plan_build` (size,
         primaries, mapping, uniform_mix, up, rotation_deg, compensate, cell_choice).
     """
-    from envsample.core.files import refuse_overwriting_inputs
-    from envsample.io.maps import read_map, validate_map
-    from envsample.io.tables import table_paths
-    from envsample.sampling.radiance import source_radiance
-    from envsample.sampling.table import plan_build, sampled_function, table_from_function
 
     out = output_prefix(prefix, map_path)
     check_output_folder(out)
@@ -197,7 +201,6 @@ def build_from_file(
     seconds = time.perf_counter() - start
     notes = list(notes) + [n for n in table.metadata.get("notes", []) if n not in notes]
     if tune:
-        from envsample.validation.tuning import recommend
 
         _tick(progress, "tune")
         table.metadata["recommendation"] = recommend(table)
@@ -273,11 +276,6 @@ def golden_vectors(table, *, count: int = 256, seed: int = 0, method="both", tab
             if r is not None:
                 rec[m]["radiance"] = r[k]
         records.append(rec)
-    from envsample._version import __version__
-    from envsample.io.maps import file_sha256
-    from envsample.io.tables import array_checksums
-
-    from envsample.io.tables import SCHEMA_VERSION as TABLE_FORMAT
 
     info = {
         "format_version": TABLE_FORMAT,
@@ -317,7 +315,6 @@ def vectors_text(doc: dict) -> str:
 
 def write_vectors(path, doc: dict, *, make_dirs: bool = True) -> Path:
     """Write a golden-vector document atomically (temporary file, then rename); return the path."""
-    from envsample.core.files import atomic_write_text
 
     p = Path(path)
     check_output_folder(p)
@@ -337,7 +334,6 @@ def map_integrals(rgb: np.ndarray, primaries: str = "bt709") -> tuple[list[float
     Each pixel weighs its exact solid angle (:func:`envsample.sphere.row_solid_angles`).
     Returns ``([R, G, B], Y, luminance float32 (H, W))``.
     """
-    from envsample.core.latlong import row_channel_sums
 
     h, w = rgb.shape[:2]
     sa = row_solid_angles(h, w)
@@ -358,7 +354,6 @@ def map_facts(image, *, primaries: str = "bt709", up: str = "y", rotation_deg: f
     elevation in degrees, unit vector for ``up``); and whether ``envsample
     build`` would accept the map as it is (``validate_map``).
     """
-    from envsample.io.maps import validate_map
 
     primaries = canonical_primaries(primaries)
     rgb = np.asarray(image.rgb, dtype=np.float32)
@@ -425,8 +420,6 @@ def table_facts(prefix_or_path, *, verify: bool | None = None) -> dict:
     direction of that cell's centre (from the JSON's summary), notes, and the files
     with their sizes.
     """
-    from envsample.io.tables import read_bin_header, read_table_json, table_paths
-    from envsample.sampling.table import load_table
 
     paths = table_paths(prefix_or_path)
     suffix = Path(prefix_or_path).suffix.lower()

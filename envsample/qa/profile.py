@@ -18,6 +18,7 @@ from pathlib import Path
 
 from envsample.core.color import canonical_primaries
 from envsample.errors import EnvsampleError
+from envsample.estimation.estimators import estimators
 
 
 class ProfileError(EnvsampleError, ValueError):
@@ -115,7 +116,6 @@ def _check_range(where: str, section: str, key: str, value) -> None:
         except ValueError as e:
             raise ProfileError(f"{where}: {full}: {e}") from None
     elif section == "sampling" and key == "estimator":
-        from envsample.estimation.estimators import estimators
 
         if value not in estimators("irradiance"):
             raise ProfileError(f"{where}: {full}: unknown estimator {value!r}; valid names: "

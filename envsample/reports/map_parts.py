@@ -22,10 +22,15 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.constants import HALF_FLOAT_MAX
+from envsample.core.sphere import angles_to_uv, pixel_center_angles
 from envsample.core.text import number
-from envsample.errors import EnvsampleError, MapValidationError
+from envsample.errors import EnvsampleError, EnvsampleWarning, MapValidationError
+from envsample.io.maps import map_pixels, read_map
+from envsample.qa.profile import load_profile
 from envsample.qa.results import Report
+from envsample.reports.pictures import RANGE_COLORS, encode_png, heatmap_figure, mark_points, range_overlay, thumbnail
 from envsample.reports.templating import picture
+from envsample.sampling.table import build_table
 
 __all__ = ["THUMB_WIDTH", "PDF_TABLE_SIZE", "VERDICTS", "as_report_dict", "report_row", "map_context", "num",
            "map_name", "verdict_of"]
@@ -181,7 +186,6 @@ def report_row(report, *, name: str | None = None, thumbnail=None, page: str | N
 
 def _pixels(rep: dict, image):
     """(raw pixels or None, linear RGB float32 with bad pixels zeroed or None, note)."""
-    from envsample.io.maps import map_pixels, read_map
 
     if image is None:
         if not rep.get("readable", True):
@@ -211,7 +215,6 @@ def _pixels(rep: dict, image):
 
 def _profile(rep: dict):
     """The report's profile (the defaults when it cannot be loaded again)."""
-    from envsample.qa.profile import load_profile
 
     try:
         return load_profile((rep.get("profile") or {}).get("path"))
@@ -221,7 +224,6 @@ def _profile(rep: dict):
 
 def _emitter_uv(emitters: list[dict]) -> np.ndarray:
     """Image (u, v) of emitters given by azimuth/elevation (deg) in the map's own frame (rotation 0)."""
-    from envsample.core.sphere import angles_to_uv
 
     if not emitters:
         return np.zeros((0, 2))
@@ -251,7 +253,6 @@ def _enlarged(pic: np.ndarray, width: int) -> np.ndarray:
 
 def thumbnail_png(rgb: np.ndarray, emitters: list[dict]) -> bytes:
     """The tone-mapped thumbnail with the emitters ringed, as PNG bytes."""
-    from envsample.reports.pictures import encode_png, mark_points, thumbnail
 
     # Small maps are enlarged by pixel repetition so rings keep their size and pixels stay honest.
     pic = _enlarged(thumbnail(rgb, width=THUMB_WIDTH), THUMB_WIDTH)
@@ -262,8 +263,6 @@ def thumbnail_png(rgb: np.ndarray, emitters: list[dict]) -> bytes:
 
 def pdf_values(rgb: np.ndarray, primaries: str) -> np.ndarray:
     """The pdf per steradian of a table of at most :data:`PDF_TABLE_SIZE` cells (float64 (h, w))."""
-    from envsample.errors import EnvsampleWarning
-    from envsample.sampling.table import build_table
 
     H, W = rgb.shape[:2]
     size = (min(PDF_TABLE_SIZE[0], W), min(PDF_TABLE_SIZE[1], H))
@@ -276,7 +275,6 @@ def pdf_values(rgb: np.ndarray, primaries: str) -> np.ndarray:
 
 def pdf_png(rgb: np.ndarray, primaries: str, emitters: list[dict]) -> tuple[bytes, str]:
     """The table pdf (per sr) as a log-scale heat map PNG with the emitters ringed, and a caption."""
-    from envsample.reports.pictures import heatmap_figure
 
     pdf = pdf_values(rgb, primaries)
     positive = pdf[pdf > 0]
@@ -298,7 +296,6 @@ def pdf_png(rgb: np.ndarray, primaries: str, emitters: list[dict]) -> tuple[byte
     elif hi <= 1.01 * float(np.median(positive)):
         caption += f"; this map is nearly flat (peak {num(hi, 3)} /sr). "
     else:
-        from envsample.core.sphere import pixel_center_angles
 
         i, j = np.unravel_index(int(np.argmax(pdf)), pdf.shape)
         az, el = pixel_center_angles(i, j, pdf.shape[0], pdf.shape[1])
@@ -352,7 +349,6 @@ def _levels_text(level) -> str:
 
 def overlay_png(raw: np.ndarray, rep: dict) -> tuple[bytes, str, list]:
     """The range overlay as PNG bytes, its caption and its legend (name, colour, pixel count)."""
-    from envsample.reports.pictures import RANGE_COLORS, encode_png, range_overlay
 
     level, tol = clip_settings(rep)
     pic, counts = range_overlay(raw, clip_level=level, clip_tolerance=tol, over_level=HALF_FLOAT_MAX,

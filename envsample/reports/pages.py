@@ -42,7 +42,6 @@ References
 
 from __future__ import annotations
 
-import json
 import os
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -65,6 +64,7 @@ from envsample.reports.map_parts import (
     report_row,
     verdict_of,
 )
+from envsample.reports.pictures import encode_png
 from envsample.reports.templating import check_folder, picture, render, write_page
 from envsample.reports.verify_parts import verify_context
 
@@ -249,7 +249,6 @@ def _thumb(thumb, base: Path, label: str) -> tuple[dict | None, str]:
         return None, "no picture"
     try:
         if isinstance(thumb, np.ndarray):
-            from envsample.reports.pictures import encode_png
 
             data = encode_png(thumb)
         else:

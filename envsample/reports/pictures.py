@@ -392,9 +392,8 @@ def heatmap_figure(panels: Sequence, *, path, label: str, vmin: float | None = N
     from the full-resolution values.
     """
     import matplotlib
-    from matplotlib import cm
+    from matplotlib import cm, rc_context
     from matplotlib import colors as mcolors
-    from matplotlib import rc_context
     from matplotlib.figure import Figure
 
     if not panels:

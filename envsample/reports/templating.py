@@ -17,8 +17,10 @@ from __future__ import annotations
 import functools
 from pathlib import Path
 
+from envsample._version import __version__
 from envsample.core.files import atomic_write_bytes
 from envsample.errors import EnvsampleError
+from envsample.reports.pictures import png_data_uri, png_size
 
 __all__ = ["TEMPLATES", "picture", "render", "write_page", "check_folder"]
 
@@ -37,14 +39,12 @@ def _environment():
 
 def render(template: str, **context) -> str:
     """Render one of the package's templates with ``context`` (every value is escaped)."""
-    from envsample._version import __version__
 
     return _environment().get_template(template).render(version=__version__, **context)
 
 
 def picture(data: bytes, alt: str) -> dict:
     """What a template needs to show PNG bytes: the data URI, the pixel size and the text alternative."""
-    from envsample.reports.pictures import png_data_uri, png_size
 
     w, h = png_size(data)
     return {"uri": png_data_uri(data), "width": w, "height": h, "alt": alt}

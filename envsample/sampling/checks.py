@@ -28,7 +28,7 @@ import numpy as np
 from envsample.core.sphere import row_solid_angles
 from envsample.errors import TableFormatError
 from envsample.sampling import distribution as dist
-from envsample.sampling.kernels import kernels
+from envsample.sampling.kernels import kernels, threads
 
 __all__ = ["ABS_TOLERANCE", "REL_TOLERANCE", "TOTAL_TOLERANCE", "check_distribution"]
 
@@ -110,7 +110,6 @@ def _pdf_row_sums(pdf: np.ndarray, path) -> np.ndarray:
 
 def _compiled_row_checks(k_mod, arrays: dict, path) -> np.ndarray:
     """The per-row checks in the compiled kernel; returns the row sums of cell_pdf (float64)."""
-    from envsample.sampling.kernels import threads
 
     pdf = np.ascontiguousarray(arrays["cell_pdf"], dtype=np.float32)
     h, w = pdf.shape

@@ -37,7 +37,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from envsample.sampling.kernels import kernels
+from envsample.sampling.kernels import kernels, threads
 
 __all__ = [
     "build_cdf",
@@ -374,7 +374,6 @@ def build_rows(weights, *, row_scale=None, cdf: bool = True, alias: bool = True,
     idx = np.empty((h, n), dtype=np.uint16) if alias else None
     k_mod = kernels(backend)
     if k_mod is not None and w.dtype == np.float32 and w.flags.c_contiguous:
-        from envsample.sampling.kernels import threads
 
         totals = np.empty(h, dtype=np.float64)
         empty = np.empty(0, dtype=np.uint8)

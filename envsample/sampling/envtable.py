@@ -33,7 +33,9 @@ import numpy as np
 from envsample.core.compat import warn_renamed
 from envsample.core.sphere import _frame, direction_to_uv, row_cos_edges, row_solid_angles
 from envsample.errors import EnvsampleError
+from envsample.io.tables import save_table, table_paths
 from envsample.sampling import distribution as dist
+from envsample.sampling.checks import check_distribution
 from envsample.sampling.kernels import kernels
 
 __all__ = ["SAMPLE_METHODS", "EnvTable", "Samples"]
@@ -340,8 +342,6 @@ class EnvTable:
         map (12 bytes per pixel); by default the table records the source map's path
         and sha256 instead.  See :func:`envsample.io.tables.save_table`.
         """
-        from envsample.io.tables import save_table, table_paths
-        from envsample.sampling.checks import check_distribution
 
         name = f"{table_paths(prefix)['json'].with_suffix('')} (table to be written)"
         # A table that would not load is refused before any of its files is replaced; the check

@@ -15,6 +15,7 @@ import warnings
 from pathlib import Path
 
 from envsample.errors import TableFormatError
+from envsample.io.maps import file_sha256, read_map, validate_map
 
 __all__ = ["source_radiance"]
 
@@ -38,7 +39,6 @@ def source_radiance(doc: dict, json_path: Path, *, override=None):
     json_path = Path(json_path)
 
     def load():
-        from envsample.io.maps import file_sha256, read_map, validate_map
 
         paths = [Path(override)] if override is not None else _candidates(src, json_path)
         found = next((p for p in paths if p.is_file()), None)

@@ -49,18 +49,21 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from envsample._version import __version__
 from envsample.core.color import canonical_primaries, luminance
 from envsample.core.compat import renamed_keywords
+from envsample.core.constants import luminance_weights
 from envsample.core.latlong import MAPPINGS, parse_size, reduce_power, row_channel_sums
 from envsample.core.limits import MAX_TABLE_CELLS, MAX_TABLE_WIDTH, check_memory
 from envsample.core.sphere import convention, row_solid_angles
 from envsample.errors import EnvsampleWarning, MapValidationError, ResourceLimitError
 from envsample.io.maps import map_pixels
 from envsample.io.table_json import CELL_CHOICES
+from envsample.io.tables import read_table
 from envsample.sampling import distribution as dist
 from envsample.sampling.checks import check_distribution
 from envsample.sampling.envtable import SAMPLE_METHODS, EnvTable, Samples
-from envsample.sampling.kernels import kernels
+from envsample.sampling.kernels import kernels, threads
 from envsample.sampling.radiance import source_radiance
 
 __all__ = ["SAMPLE_METHODS", "CELL_CHOICES", "EnvTable", "Samples", "BuildPlan", "SampledFunction", "build_table",
@@ -192,8 +195,6 @@ def _luminance_and_row_sums(image: np.ndarray, primaries: str) -> tuple[np.ndarr
     """
     k_mod = kernels()
     if k_mod is not None and image.dtype == np.float32 and image.flags.c_contiguous:
-        from envsample.core.constants import luminance_weights
-        from envsample.sampling.kernels import threads
 
         H, W = image.shape[:2]
         mode = {"max": 1, "mean": 2}.get(primaries, 0)
@@ -272,7 +273,6 @@ def _pdf_in_place(values: np.ndarray, total: float) -> np.ndarray:
 
 
 def _metadata(f: SampledFunction, total: float, plan: BuildPlan, source) -> dict:
-    from envsample._version import __version__
 
     size = plan.size
 
@@ -406,7 +406,6 @@ def load_table(prefix_or_path, *, source=None) -> EnvTable:
     source map — or the map file ``source`` — read on first access and verified
     against the recorded sha256.  Raises :class:`TableFormatError` naming the file.
     """
-    from envsample.io.tables import read_table
 
     stored = read_table(prefix_or_path)
     check_distribution(stored.arrays, stored.array_path)

@@ -6,9 +6,9 @@ import math
 
 import numpy as np
 import pytest
+from support.reference_maps import AXES, random_normals
 
 from envsample.reference.boundary import chunk_size, irradiance_numpy
-from support.reference_maps import AXES, random_normals
 
 
 def test_uniform_map_gives_pi_in_the_map_frame():

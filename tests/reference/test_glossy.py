@@ -7,11 +7,11 @@ import math
 import numpy as np
 import pytest
 from scipy import integrate
+from support.reference_maps import AXES, cap_map, frame_rows, random_normals, unit  # noqa: F401
 
 from envsample.core.sphere import pixel_center_directions, uv_to_direction
 from envsample.reference.glossy import reference_glossy, reference_glossy_accuracy
 from envsample.reference.grid import KERNELS
-from support.reference_maps import AXES, cap_map, frame_rows, random_normals, unit  # noqa: F401
 
 #: Absolute tolerance on a GGX directional albedo (a number <= 1) from two quadratures.
 ALBEDO_ATOL = 2e-6

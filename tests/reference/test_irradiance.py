@@ -12,6 +12,7 @@ import math
 import numpy as np
 import pytest
 from scipy import integrate
+from support.reference_maps import AXES, cap_map, frame_rows, random_normals, unit  # noqa: F401
 
 from envsample.core.latlong import reduce_power
 from envsample.core.sphere import pixel_center_directions, row_solid_angles
@@ -23,7 +24,6 @@ from envsample.reference.irradiance import (
     reference_accuracy,
     reference_irradiance,
 )
-from support.reference_maps import AXES, cap_map, frame_rows, random_normals, unit  # noqa: F401
 
 #: The implementations to test: numpy always, the compiled kernel where it is built.
 BACKENDS = ["numpy"] + (["compiled"] if KERNELS.backend_name() == "compiled" else [])

@@ -6,10 +6,10 @@ import math
 
 import numpy as np
 import pytest
+from support.reference_maps import AXES, cap_map, frame_rows, random_normals, unit  # noqa: F401
 
 from envsample.reference.irradiance import reference_irradiance
 from envsample.reference.sh9 import SH9_BAND_FACTORS, sh9_irradiance, sh9_project
-from support.reference_maps import AXES, cap_map, frame_rows, random_normals, unit  # noqa: F401
 
 # ---------------------------------------------------------------------------
 # spherical harmonics (Ramamoorthi & Hanrahan 2001)

@@ -534,7 +534,9 @@ def test_the_range_overlay_marks_a_clipped_sun_and_not_a_clean_one(tmp_path):
     """issue 10: a clipped and a clean sun looked identical.  The overlay paints the plateau the
     clipping check failed on in the 'clipped' colour, at the sun (support.qa_maps.clipped_sun, sun at
     azimuth 40, elevation 35), and nothing on the same sky unclipped."""
-    from support.qa_maps import SUN_AZ as AZ, SUN_EL as EL, W, clipped_sun, sunny
+    from support.qa_maps import SUN_AZ as AZ
+    from support.qa_maps import SUN_EL as EL
+    from support.qa_maps import W, clipped_sun, sunny
 
     from envsample.reports.pictures import RANGE_COLORS
 

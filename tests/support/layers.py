@@ -128,3 +128,23 @@ def cycles(edges: dict[str, set[str]]) -> list[list[str]]:
         if v not in index:
             visit(v)
     return sorted(out)
+
+
+def function_level_imports(root: Path, package: str) -> list[str]:
+    """``"module:line"`` of every import of the package's own modules made inside a function.
+
+    Our modules import each other at the top, so the graph is visible in one place;
+    heavy third-party modules (scipy, matplotlib, OpenCV, OpenEXR) may still load lazily.
+    """
+    found = []
+    for name, path in module_names(root, package).items():
+        tree = ast.parse(path.read_text(encoding="utf-8"))
+        for fn in ast.walk(tree):
+            if not isinstance(fn, (ast.FunctionDef, ast.AsyncFunctionDef)):
+                continue
+            for node in ast.walk(fn):
+                if isinstance(node, ast.ImportFrom) and (node.level or (node.module or "").split(".")[0] == package):
+                    found.append(f"{name}:{node.lineno}")
+                elif isinstance(node, ast.Import) and any(a.name.split(".")[0] == package for a in node.names):
+                    found.append(f"{name}:{node.lineno}")
+    return sorted(set(found))

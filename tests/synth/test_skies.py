@@ -13,9 +13,15 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from envsample.core.constants import SUN_SOLID_ANGLE_SR
 from envsample.core.color import luminance
-from envsample.core.sphere import direction_to_uv, pixel_center_directions, pixel_solid_angles, row_cos_edges, row_solid_angles
+from envsample.core.constants import SUN_SOLID_ANGLE_SR
+from envsample.core.sphere import (
+    direction_to_uv,
+    pixel_center_directions,
+    pixel_solid_angles,
+    row_cos_edges,
+    row_solid_angles,
+)
 from envsample.synth import skies
 
 #: Relative tolerance of integrals of float32 maps whose cell averages are exact.
