@@ -52,6 +52,8 @@ __all__ = [
     "uv_to_angles",
     "angles_to_uv",
     "direction_angles",
+    "as_vectors",
+    "UNIT_TOLERANCE",
     "orthonormal_basis",
     "to_local",
     "to_world",
@@ -269,3 +271,37 @@ def to_world(local, n) -> np.ndarray:
 def _check_size(height, width) -> None:
     if int(height) != height or int(width) != width or height < 1 or width < 1:
         raise ValueError(f"height and width must be positive integers, got {height}x{width}")
+
+
+#: Largest deviation from length 1 accepted where unit vectors are required (float64 rounding of callers' normals).
+UNIT_TOLERANCE = 1e-6
+
+_UNIT_RULES = ("any", "normalise", "require")
+
+
+def as_vectors(x, name: str = "directions", *, unit: str = "any", flat: bool = True):
+    """The one boundary check of direction arrays: ``(..., 3)`` finite float64, as ``(N, 3)`` and the leading shape.
+
+    ``unit`` says what length they must have: ``"any"`` (any finite vector), ``"normalise"``
+    (any non-zero vector, returned divided by its length) or ``"require"`` (length 1 within
+    :data:`UNIT_TOLERANCE`, returned exactly normalised).  Messages name ``name`` and the remedy.
+    Returns ``(vectors (N, 3), lead)`` where ``lead`` is the input's leading shape.
+    """
+    if unit not in _UNIT_RULES:
+        raise ValueError(f"unknown unit rule {unit!r}; valid: {', '.join(_UNIT_RULES)}")
+    a = np.asarray(x, dtype=np.float64)
+    if a.ndim == 0 or a.shape[-1] != 3:
+        raise ValueError(f"{name} must have shape (..., 3), got {a.shape}; pass 3-vectors")
+    lead = a.shape[:-1]
+    a = a.reshape(-1, 3) if flat else a
+    if not np.all(np.isfinite(a)):
+        raise ValueError(f"{name} contains NaN or Inf; pass finite vectors")
+    if unit == "any":
+        return a, lead
+    norm = np.linalg.norm(a, axis=-1)
+    if unit == "normalise" and np.any(norm < 1e-12):
+        raise ValueError(f"{name} contains a zero vector; pass unit vectors")
+    if unit == "require" and norm.size and np.max(np.abs(norm - 1.0)) > UNIT_TOLERANCE:
+        worst = float(norm.reshape(-1)[np.argmax(np.abs(norm - 1.0))])
+        raise ValueError(f"{name} must be unit vectors (one has length {worst:.6g}); normalise them first")
+    return a / norm[..., None], lead
