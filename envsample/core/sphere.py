@@ -52,6 +52,7 @@ __all__ = [
     "uv_to_angles",
     "angles_to_uv",
     "direction_angles",
+    "local_angles",
     "as_vectors",
     "UNIT_TOLERANCE",
     "orthonormal_basis",
@@ -213,6 +214,19 @@ def angles_to_uv(azimuth_deg, elevation_deg, *, rotation_deg: float = 0.0):
     u = ((np.asarray(azimuth_deg, dtype=np.float64) - float(rotation_deg)) / 360.0 + 0.5) % 1.0
     v = (90.0 - np.asarray(elevation_deg, dtype=np.float64)) / 180.0
     return (float(u), float(v)) if np.ndim(u) == 0 and np.ndim(v) == 0 else (u, v)
+
+
+def local_angles(cf, cr, ca, *, rotation_deg: float = 0.0):
+    """Azimuth and elevation, **degrees**, of a vector given by its (forward, right, up) components.
+
+    For vectors already in the map's own frame (a power-weighted mean direction of an
+    emitter, say): ``phi = atan2(right, forward)``, ``theta = atan2(|horizontal|, up)``,
+    then :func:`uv_to_angles`.  Need not be normalised; the zero vector gives (0, 90).
+    """
+    cf, cr, ca = (np.asarray(c, dtype=np.float64) for c in (cf, cr, ca))
+    phi = np.arctan2(cr, cf)
+    theta = np.arctan2(np.hypot(cf, cr), ca)
+    return uv_to_angles(phi / (2.0 * math.pi) + 0.5, theta / math.pi, rotation_deg=rotation_deg)
 
 
 @renamed_keywords(rotate_deg="rotation_deg")
