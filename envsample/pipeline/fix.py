@@ -22,6 +22,7 @@ from envsample.core.schema import Schema
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError
 from envsample.io.maps import read_map, write_map
+from envsample.pipeline.workflow import check_output_folder
 from envsample.qa.profile import load_profile
 from envsample.qa.remedies import UNFIXABLE, apply_remedy, plan_remedies
 from envsample.qa.run import check_map
@@ -175,6 +176,7 @@ def fix_map(source, output, *, remedies: Mapping | None = None, auto: bool = Fal
     """
     src, out = Path(source), Path(output)
     refuse_overwriting_inputs([out, log_path(out)], [src], option="-o")
+    check_output_folder(out)
     prof = load_profile(profile)
     image = read_map(src)
     before = check_map(image, profile=prof)
@@ -186,6 +188,8 @@ def fix_map(source, output, *, remedies: Mapping | None = None, auto: bool = Fal
         raise ValueError(f"{src}: no remedy to apply{why}: the checks propose none that --auto may apply{hint}")
     if pixel_type is None:
         pixel_type = output_pixel_type(image, rgb)
+    # A missing output folder is created only now, once the map was read, checked and repaired.
+    out.parent.mkdir(parents=True, exist_ok=True)
     write_map(out, rgb, pixel_type=pixel_type, chromaticities=image.chromaticities,
               attributes={HEADER_ATTRIBUTE: header_record(image, records)})
     after = check_map(out, profile=prof)

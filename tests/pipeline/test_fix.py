@@ -89,3 +89,15 @@ def test_sun_azimuth_rotation_puts_the_sun_there(tmp_path, profile_file):
     result = fix_map(src, tmp_path / "r.exr", remedies={"rotate": {"sun_azimuth": -100.0}}, profile=profile_file)
     az = next(e for e in result.after["sun"].details["emitters"] if e["sun_like"])["azimuth_deg"]
     assert abs(az + 100.0) <= 360.0 / 256
+
+
+def test_a_missing_output_folder_is_created_only_for_a_repaired_map(tmp_path, profile_file):
+    img = sunny(64)
+    img[5, 7] = np.nan
+    src = write_map(tmp_path / "m.exr", img, pixel_type="float")
+    result = fix_map(src, tmp_path / "new" / "deeper" / "f.exr", auto=True, profile=profile_file)
+    assert result.output.is_file() and log_path(result.output).is_file()
+    clean = write_map(tmp_path / "clean.exr", sunny(64), pixel_type="float")
+    with pytest.raises(ValueError, match="no remedy to apply"):
+        fix_map(clean, tmp_path / "other" / "f.exr", auto=True, profile=profile_file)
+    assert not (tmp_path / "other").exists()
