@@ -9,6 +9,7 @@ a JSON log beside it (schema ``envsample.fix-log``) with the before and after ve
 
 from __future__ import annotations
 
+import dataclasses
 import json
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -138,6 +139,15 @@ def repair_image(image, before, *, remedies: Mapping | None = None, auto: bool =
     steps, proposed = plan_remedies(before, auto=auto, requested=remedies)
     rgb, records, skipped = image.rgb, [], []
     for step in steps:
+        if step["why"] != "requested" and any(r["why"] == "requested" for r in records):
+            # A requested step ran first (a flip, a rotation, padding): the check that planned this one
+            # may pass by now (a flipped map's exposure, say).  Ask it again before changing more pixels.
+            check_id = step["why"].split()[0]
+            again = check_map(dataclasses.replace(image, rgb=rgb), profile=prof, checks=[check_id])
+            if again.get(check_id) is not None and again[check_id].severity == "pass":
+                skipped.append({"remedy": step["remedy"], "check": check_id,
+                                "reason": f"{check_id} passes after the earlier steps"})
+                continue
         try:
             repair = apply_remedy(step["remedy"], rgb, **_options(step["remedy"], step["options"], prof, before, src))
         except ValueError as e:

@@ -12,6 +12,7 @@ from support.qa_maps import TEST_PROFILE, sunny
 from envsample.core.files import OutputIsInputError
 from envsample.io.maps import read_map, write_map
 from envsample.pipeline.fix import HEADER_ATTRIBUTE, FixRefusedError, fix_map, log_path
+from envsample.synth.skies import make_sky
 
 
 @pytest.fixture()
@@ -101,3 +102,15 @@ def test_a_missing_output_folder_is_created_only_for_a_repaired_map(tmp_path, pr
     with pytest.raises(ValueError, match="no remedy to apply"):
         fix_map(clean, tmp_path / "other" / "f.exr", auto=True, profile=profile_file)
     assert not (tmp_path / "other").exists()
+
+
+def test_auto_remedies_planned_before_a_requested_flip_are_asked_again(tmp_path, profile_file):
+    """An upside-down map warns about its exposure only because it is upside down: after the requested flip
+    the exposure check passes, so --auto does not rescale it (the flipped pixels stay exactly the source's)."""
+    img = make_sky("sun", width=256, elevation_deg=55.0, azimuth_deg=30.0)  # a black ground: flipped, no light falls on "up"
+    src = write_map(tmp_path / "down.exr", np.flipud(img).copy(), pixel_type="float")
+    result = fix_map(src, tmp_path / "up.exr", auto=True, remedies={"flip": {}}, profile=profile_file)
+    assert result.before["exposure"].severity == "warn"
+    assert [s["remedy"] for s in result.steps] == ["flip"]
+    assert any(k["remedy"] == "exposure" and "passes after the earlier steps" in k["reason"] for k in result.skipped)
+    assert np.array_equal(read_map(result.output).rgb, img)
