@@ -13,7 +13,6 @@ External references used here:
 
 from __future__ import annotations
 
-import hashlib
 import json
 import math
 import os
