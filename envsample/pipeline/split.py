@@ -32,7 +32,7 @@ from envsample.sampling.sun import SunLight
 from envsample.sampling.table import EnvTable, build_table
 from envsample.validation.split import compare_split
 
-__all__ = ["SplitResult", "split_map_file", "write_split", "load_sun", "SplitSource", "find_split", "verify_split"]
+__all__ = ["SplitResult", "split_map_file", "write_split", "load_sun", "SplitSource", "find_split", "split_comparison"]
 
 
 @dataclass
@@ -157,23 +157,17 @@ def find_split(source) -> SplitSource | None:
     return SplitSource(table=json_path, sun=sun_path, original=original)
 
 
-def verify_split(split: SplitSource, sky_table: EnvTable, outdir, *, spp: int, normals, seed: int) -> dict:
-    """Compare the split with its original map (:func:`envsample.validation.split.compare_split`), write split.json.
+def split_comparison(split: SplitSource, sky_table: EnvTable, *, spp: int, normals, seed: int) -> dict:
+    """Compare the split with its original map (:func:`envsample.validation.split.compare_split`): the JSON document.
 
-    The comparison uses at most 64 x 32 normals of the verify grid's size.  Returns the JSON
-    document; without the original map (moved or deleted) it says so and compares nothing.
+    The comparison uses at most 64 x 32 normals of the verify grid's size.  Without the
+    original map (moved or deleted) the document says so and compares nothing.
     """
-
-    out = Path(outdir)
     if split.original is None:
-        doc = {"compared": False, "reason": f"{split.sun}: the original map it names is not there; "
-                                            "verify the original beside the split to compare them"}
-    else:
-        image, _ = validate_map(read_map(split.original))
-        original = build_table(image, primaries=sky_table.primaries, up=sky_table.up,
-                               rotation_deg=sky_table.rotation_deg)
-        grid = (min(64, int(normals[0])), min(32, int(normals[1])))
-        doc = {"compared": True, "original": str(split.original), "sun_file": str(split.sun)}
-        doc |= compare_split(original, sky_table, load_sun(split.sun), spp=spp, normals=grid, seed=seed).to_dict()
-    atomic_write_text(out / "split.json", json.dumps(doc, indent=2) + "\n")
-    return doc
+        return {"compared": False, "reason": f"{split.sun}: the original map it names is not there; "
+                                             "verify the original beside the split to compare them"}
+    image, _ = validate_map(read_map(split.original))
+    original = build_table(image, primaries=sky_table.primaries, up=sky_table.up, rotation_deg=sky_table.rotation_deg)
+    grid = (min(64, int(normals[0])), min(32, int(normals[1])))
+    doc = {"compared": True, "original": str(split.original), "sun_file": str(split.sun)}
+    return doc | compare_split(original, sky_table, load_sun(split.sun), spp=spp, normals=grid, seed=seed).to_dict()

@@ -16,7 +16,7 @@ import numpy as np
 from envsample.core.latlong import parse_size
 from envsample.core.limits import check_memory
 from envsample.io.maps import MapImage, read_map, supported_extensions, validate_map
-from envsample.pipeline.split import find_split, verify_split
+from envsample.pipeline.split import find_split, split_comparison
 from envsample.reports.validation import write_validation
 from envsample.sampling.table import EnvTable, build_table, load_table
 from envsample.validation.render import DEFAULT_ESTIMATORS, Progress, check_roughness, render_validation
@@ -156,13 +156,14 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     table, source_info = load_source(source if split is None else split.table, table_size=table_size)
     result = render_validation(table, spp=spp, normals=normals, estimators=estimators, roughness=roughness,
                                seed=seed, progress=progress)
-    if progress is not None:
-        progress("pictures")
-    doc = write_validation(result, outdir, source=source_info, sphere=sphere)
+    comparison = None
     if split is not None:
         if progress is not None:
             progress("split")
-        doc["split"] = verify_split(split, table, outdir, spp=spp, normals=normals, seed=seed)
+        comparison = split_comparison(split, table, spp=spp, normals=normals, seed=seed)
+    if progress is not None:
+        progress("pictures")
+    doc = write_validation(result, outdir, source=source_info, sphere=sphere, split=comparison)
     doc["outdir"] = str(outdir)
     return doc
 

@@ -160,11 +160,13 @@ def _glossy_picture(result, outdir: Path) -> str | None:
     return "glossy.png"
 
 
-def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> dict:
+def write_validation(result, outdir, *, source: dict, sphere: bool = True, split: dict | None = None) -> dict:
     """Write a :class:`~envsample.validation.render.ValidationResult` into ``outdir``; return ``metrics.json``'s content.
 
     ``source`` describes where the table came from (``metrics.json["source"]``).
-    ``sphere=False`` skips ``sphere.png``.  Every file is first written into a staging
+    ``sphere=False`` skips ``sphere.png``.  ``split``, the comparison of a sun split with its
+    original map (:func:`envsample.pipeline.split.split_comparison`), is written as ``split.json``,
+    kept in the returned document under ``"split"`` and shown on the page.  Every file is first written into a staging
     folder beside ``outdir``; only when all are written does the folder appear (one
     rename) or, for a folder that exists, its files replace the old ones one by one with
     ``metrics.json`` last.  A failure on the way leaves no new folder and the old files as
@@ -180,7 +182,7 @@ def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> di
         raise EnvsampleError(f"{outdir}: cannot create the output folder ({exc.strerror or exc}); "
                              "choose another -o") from None
     try:
-        doc = _write_files(result, stage, source=source, sphere=sphere, shown=outdir)
+        doc = _write_files(result, stage, source=source, sphere=sphere, shown=outdir, split=split)
         if outdir.exists():
             for p in sorted(stage.iterdir(), key=lambda q: q.name == "metrics.json"):
                 os.replace(p, outdir / p.name)
@@ -192,7 +194,7 @@ def write_validation(result, outdir, *, source: dict, sphere: bool = True) -> di
     return doc
 
 
-def _write_files(result, outdir: Path, *, source: dict, sphere: bool, shown: Path) -> dict:
+def _write_files(result, outdir: Path, *, source: dict, sphere: bool, shown: Path, split: dict | None = None) -> dict:
     """Every file of the report into ``outdir`` (a staging folder), metrics.json last."""
     table = result.table
     w, h = result.grid
@@ -228,7 +230,12 @@ def _write_files(result, outdir: Path, *, source: dict, sphere: bool, shown: Pat
     if glossy:
         files["glossy"] = glossy
     files["page"] = "report.html"
+    if split is not None:
+        atomic_write_text(outdir / "split.json", json.dumps(split, indent=2, allow_nan=False) + "\n")
+        files["split"] = "split.json"
     doc = result.metrics(source=source, files=files)
+    if split is not None:
+        doc["split"] = split
     doc["notes"] = notes
     doc["sphere_view"] = sphere_view(table.up)
     verify_page(outdir, metrics=doc, label=shown)

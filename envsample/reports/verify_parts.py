@@ -103,6 +103,25 @@ def _glossy(metrics: Mapping) -> dict:
             "glossy_meta": meta}
 
 
+def _split(metrics: Mapping) -> dict:
+    """The comparison of a sun split with its original map, side by side at equal samples (or why there is none)."""
+    sp = metrics.get("split")
+    if not isinstance(sp, Mapping):
+        return {"split_rows": [], "split_meta": ""}
+    if not sp.get("compared"):
+        return {"split_rows": [], "split_meta": f"Sun split: not compared ({sp.get('reason', 'no original map')})."}
+    rows = [{"scene": e.get("scene"), "name": e.get("estimator"), "rmse": num(finite(e.get("relative_rmse")), 4),
+             "firefly": num(finite(e.get("firefly_index")), 3),
+             "bias": f"{num(finite(e.get('mean_bias')), 3)} \u00b1 {num(finite(e.get('mean_bias_se')), 2)}"}
+            for e in (sp.get("estimators") or {}).values()]
+    agrees = "agrees with" if sp.get("consistent") else "does NOT agree with"
+    g = sp.get("normals") or ["?", "?"]
+    meta = (f"Sun split: sky + sun {agrees} the original map {sp.get('original')} within the Monte Carlo error "
+            f"(exact references differ by {num(finite(sp.get('reference_difference')), 2)} of the mean); "
+            f"{g[0]}\u00d7{g[1]} normals, {sp.get('spp')} spp each, all judged against the original's exact irradiance.")
+    return {"split_rows": rows, "split_meta": meta}
+
+
 def verify_context(folder, *, metrics: Mapping | None = None, k: int = 0) -> dict:
     """Everything ``verify_section.html`` shows for one verify output folder."""
     folder = Path(folder)
@@ -122,7 +141,8 @@ def verify_context(folder, *, metrics: Mapping | None = None, k: int = 0) -> dic
                                      f"per sample: {rec.get('lowest_variance')}.")
         ctx["notes"] = [str(x) for x in metrics.get("notes") or []]
         ctx.update(_glossy(metrics))
+        ctx.update(_split(metrics))
     else:
-        ctx.update(glossy_rows=[], glossy_angles=[], glossy_meta="")
+        ctx.update(glossy_rows=[], glossy_angles=[], glossy_meta="", split_rows=[], split_meta="")
     ctx["wide"], ctx["other"] = _pictures(folder, metrics, k)
     return ctx

@@ -19,6 +19,7 @@ References
 
 from __future__ import annotations
 
+import json
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -27,11 +28,12 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.color import luminance
+from envsample.core.files import atomic_write_text
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError, SunSplitError
 from envsample.io.maps import write_map
 from envsample.io.tables import table_paths
-from envsample.pipeline.split import find_split, split_map_file, verify_split
+from envsample.pipeline.split import find_split, split_comparison, split_map_file
 from envsample.pipeline.verify import verify_map
 from envsample.pipeline.workflow import (
     BuildResult,
@@ -201,8 +203,10 @@ def _split_step(scene: DemoScene) -> DemoStep:
         ctx.files.extend([result.paths["sky_map"], result.paths["sun"], *result.paths["table"]])
         out = ctx.path("reports", scene.name, "split", "split.json").parent
         normals = (min(64, ctx.width // 2), min(32, ctx.width // 4))
-        doc = verify_split(find_split(ctx.outdir / "split" / scene.name), result.table, out, spp=DEMO_VERIFY_SPP,
-                           normals=normals, seed=DEMO_VERIFY_SEED)
+        doc = split_comparison(find_split(ctx.outdir / "split" / scene.name), result.table, spp=DEMO_VERIFY_SPP,
+                               normals=normals, seed=DEMO_VERIFY_SEED)
+        out.mkdir(parents=True, exist_ok=True)
+        atomic_write_text(out / "split.json", json.dumps(doc, indent=2, allow_nan=False) + "\n")
         ctx.files.append(out / "split.json")
         sun = result.split.sun
         est = doc.get("estimators", {})

@@ -69,3 +69,9 @@ def test_verify_on_a_split_folder_compares_it_with_the_original(sun_map, tmp_pat
     saved = json.loads((tmp_path / "v" / "split.json").read_text())
     assert set(saved["estimators"]) == {"unsplit:table", "unsplit:mis-balance", "split:sun-mis-balance",
                                         "split:sun-one-sample-balance"}
+    # The comparison is part of the report: listed in metrics.json and shown side by side on the page.
+    metrics = json.loads((tmp_path / "v" / "metrics.json").read_text())
+    assert metrics["files"]["split"] == "split.json" and metrics["split"] == saved
+    page = (tmp_path / "v" / "report.html").read_text(encoding="utf-8")
+    assert "Sun split: sky + sun agrees with the original map" in page
+    assert all(name in page for name in ("sun-mis-balance", "sun-one-sample-balance"))
