@@ -1,12 +1,19 @@
-"""Tests of envsample.qa.emitters: regions that wrap across the seam and around the poles are one region.
+"""Tests of envsample.lights.regions: regions that wrap across the seam and around the poles are one
+region, their rings, and the angular size of a cap.
+
+Outside references: scipy.sparse.csgraph.connected_components and scipy.ndimage.maximum_filter
+(reference libraries) for the labels and rings; the solid angle of a spherical cap of half-angle a,
+2 pi (1 - cos a) (textbook), for cap_diameter.
 """
 
 from __future__ import annotations
 
-import numpy as np
-from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
+import math
 
-from envsample.qa.emitters import label_wrapped, ring
+import numpy as np
+import pytest
+
+from envsample.lights.regions import cap_diameter, label_wrapped, ring
 
 
 def test_label_wrapped_joins_across_the_seam_and_around_the_poles():
@@ -66,3 +73,23 @@ def test_label_wrapped_and_ring_match_scipy(rng):
         assert n == len(np.unique(theirs)) and sorted(np.unique(mine)) == list(range(1, n + 1))
         grown = ndimage.maximum_filter(mask, size=3, mode=("constant", "wrap"), cval=False)
         assert np.array_equal(ring(mask), grown & ~mask)
+
+
+def test_cap_diameter_inverts_the_solid_angle_of_a_cap():
+    """A cap of half-angle a subtends 2 pi (1 - cos a) sr (textbook): its diameter is 2 a, element-wise."""
+    half = np.array([[1e-3, 0.0046513], [0.3, math.pi / 2]])
+    omega = 2.0 * math.pi * (1.0 - np.cos(half))
+    np.testing.assert_allclose(cap_diameter(omega), 2.0 * half, rtol=1e-9)
+    assert cap_diameter(2.0 * math.pi) == pytest.approx(math.pi)  # a hemisphere
+    assert cap_diameter(4.0 * math.pi) == pytest.approx(2.0 * math.pi)  # the whole sphere
+    assert cap_diameter(5.0 * math.pi) == pytest.approx(2.0 * math.pi)  # more than the sphere: clipped, not NaN
+    assert cap_diameter(0.0) == 0.0
+
+
+def test_ring_wraps_at_the_seam_but_not_over_the_poles():
+    mask = np.zeros((6, 10), bool)
+    mask[0, 0] = True
+    r = ring(mask)
+    want = np.zeros((6, 10), bool)
+    want[0, [1, 9]] = want[1, [9, 0, 1]] = True  # 8-neighbours, column -1 is column 9; no row above row 0
+    assert np.array_equal(r, want)

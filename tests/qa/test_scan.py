@@ -1,4 +1,5 @@
-"""Tests of envsample.qa.context: the solid-angle weighted quantiles against an argsort reference.
+"""Tests of envsample.qa.scan: the one pass over a map (row sums and maxima, the reduced map) and its
+solid-angle weighted quantiles, against numpy reductions and an argsort reference.
 """
 
 from __future__ import annotations
