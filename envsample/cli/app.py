@@ -36,7 +36,7 @@ FLAG_WORDS = (
     ("choose one with layer=NAME", "choose one with --layer NAME"),
     ("pass one of them as layer=", "pass one of them with --layer"),
     ("pixel_type='float'", "--pixel-type float"),
-    ("pass build_failed=True", "pass --build-failed"),
+    ("(batch --build-failed, build_failed=True in Python, builds it anyway)", "(--build-failed builds it anyway)"),
     ("pass follow_links=True", "pass --follow-links"),
 )
 

@@ -83,7 +83,7 @@ def _print_demo(s: dict) -> None:
                    f"rel. RMSE {sp['relative_rmse_split']:.3g} (sun-mis-balance) vs {sp['relative_rmse_unsplit_table']:.3g}"
                    " (table, unsplit) at equal samples")
     if checks or verified:
-        click.echo(f"reports: {s['outdir']}/reports/<map>/check.html and verify/metrics.json")
+        click.echo(f"reports: {s['outdir']}/reports/<map>/check.html and verify/report.html")
     first = next((m for m in s["maps"] if "table_files" in m), None)
     if first is not None:
         json_file = next(p for p in first["table_files"] if p.endswith(".json"))

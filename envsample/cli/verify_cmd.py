@@ -7,7 +7,7 @@ from pathlib import Path
 import click
 
 from envsample.cli.app import main
-from envsample.cli.options import SIZE
+from envsample.cli.options import SIZE, max_memory_option
 from envsample.cli.output import print_rows, progress_bar, warnings_as_lines
 from envsample.estimation.estimators import estimators as estimator_names
 from envsample.pipeline.verify import verify_map
@@ -28,9 +28,10 @@ from envsample.pipeline.verify import verify_map
 @click.option("--seed", type=click.IntRange(0, None), default=0, show_default=True, help="Random seed (recorded).")
 @click.option("--table-size", type=SIZE, default=None, help="Table grid when SOURCE is a map (default: its size).")
 @click.option("--no-sphere", is_flag=True, help="Skip the picture of a shaded sphere.")
+@max_memory_option
 @click.option("--list", "list_only", is_flag=True, is_eager=True, expose_value=True,
               help="List the estimator names and exit.")
-def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size, no_sphere, list_only):
+def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size, no_sphere, max_memory, list_only):
     """Render irradiance over a sphere of normals with every sampling strategy and
     MIS combination, compare with the exact reference, and say which is best.
 
@@ -51,7 +52,7 @@ def verify(source, outdir, spp, normals, estimators, roughness, seed, table_size
             bar.refresh()
 
         m = verify_map(source, outdir, spp=spp, normals=normals, estimators=names, roughness=roughness, seed=seed,
-                       table_size=table_size, sphere=not no_sphere, progress=progress)
+                       table_size=table_size, sphere=not no_sphere, progress=progress, max_memory=max_memory)
     _print_report(source, outdir, m)
     return 0
 

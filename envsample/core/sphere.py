@@ -52,6 +52,9 @@ __all__ = [
     "uv_to_angles",
     "angles_to_uv",
     "direction_angles",
+    "local_angles",
+    "as_vectors",
+    "UNIT_TOLERANCE",
     "orthonormal_basis",
     "to_local",
     "to_world",
@@ -213,6 +216,19 @@ def angles_to_uv(azimuth_deg, elevation_deg, *, rotation_deg: float = 0.0):
     return (float(u), float(v)) if np.ndim(u) == 0 and np.ndim(v) == 0 else (u, v)
 
 
+def local_angles(cf, cr, ca, *, rotation_deg: float = 0.0):
+    """Azimuth and elevation, **degrees**, of a vector given by its (forward, right, up) components.
+
+    For vectors already in the map's own frame (a power-weighted mean direction of an
+    emitter, say): ``phi = atan2(right, forward)``, ``theta = atan2(|horizontal|, up)``,
+    then :func:`uv_to_angles`.  Need not be normalised; the zero vector gives (0, 90).
+    """
+    cf, cr, ca = (np.asarray(c, dtype=np.float64) for c in (cf, cr, ca))
+    phi = np.arctan2(cr, cf)
+    theta = np.arctan2(np.hypot(cf, cr), ca)
+    return uv_to_angles(phi / (2.0 * math.pi) + 0.5, theta / math.pi, rotation_deg=rotation_deg)
+
+
 @renamed_keywords(rotate_deg="rotation_deg")
 def direction_angles(directions, *, up: str = "y", rotation_deg: float = 0.0):
     """Azimuth and elevation in **degrees** of directions ``(..., 3)``: :func:`direction_to_uv` then :func:`uv_to_angles`."""
@@ -269,3 +285,37 @@ def to_world(local, n) -> np.ndarray:
 def _check_size(height, width) -> None:
     if int(height) != height or int(width) != width or height < 1 or width < 1:
         raise ValueError(f"height and width must be positive integers, got {height}x{width}")
+
+
+#: Largest deviation from length 1 accepted where unit vectors are required (float64 rounding of callers' normals).
+UNIT_TOLERANCE = 1e-6
+
+_UNIT_RULES = ("any", "normalise", "require")
+
+
+def as_vectors(x, name: str = "directions", *, unit: str = "any", flat: bool = True):
+    """The one boundary check of direction arrays: ``(..., 3)`` finite float64, as ``(N, 3)`` and the leading shape.
+
+    ``unit`` says what length they must have: ``"any"`` (any finite vector), ``"normalise"``
+    (any non-zero vector, returned divided by its length) or ``"require"`` (length 1 within
+    :data:`UNIT_TOLERANCE`, returned exactly normalised).  Messages name ``name`` and the remedy.
+    Returns ``(vectors (N, 3), lead)`` where ``lead`` is the input's leading shape.
+    """
+    if unit not in _UNIT_RULES:
+        raise ValueError(f"unknown unit rule {unit!r}; valid: {', '.join(_UNIT_RULES)}")
+    a = np.asarray(x, dtype=np.float64)
+    if a.ndim == 0 or a.shape[-1] != 3:
+        raise ValueError(f"{name} must have shape (..., 3), got {a.shape}; pass 3-vectors")
+    lead = a.shape[:-1]
+    a = a.reshape(-1, 3) if flat else a
+    if not np.all(np.isfinite(a)):
+        raise ValueError(f"{name} contains NaN or Inf; pass finite vectors")
+    if unit == "any":
+        return a, lead
+    norm = np.linalg.norm(a, axis=-1)
+    if unit == "normalise" and np.any(norm < 1e-12):
+        raise ValueError(f"{name} contains a zero vector; pass unit vectors")
+    if unit == "require" and norm.size and np.max(np.abs(norm - 1.0)) > UNIT_TOLERANCE:
+        worst = float(norm.reshape(-1)[np.argmax(np.abs(norm - 1.0))])
+        raise ValueError(f"{name} must be unit vectors (one has length {worst:.6g}); normalise them first")
+    return a / norm[..., None], lead

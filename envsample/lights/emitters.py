@@ -20,6 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from envsample.core.constants import SUN_ANGULAR_DIAMETER_DEG
+from envsample.core.sphere import local_angles
 from envsample.lights.regions import cap_diameter
 
 __all__ = ["Emitter", "emitter_level", "find_emitters"]
@@ -108,10 +109,8 @@ def find_emitters(luminance: np.ndarray, labels: np.ndarray, count: int, row_sol
     mean_row = per_label(p * rows) / np.maximum(power, 1e-300)
     out = []
     for k in np.argsort(-power, kind="stable"):
-        norm = math.sqrt(dx[k] ** 2 + dy[k] ** 2 + dz[k] ** 2)
-        if norm > 0:
-            elev = math.degrees(math.asin(max(-1.0, min(1.0, dz[k] / norm))))
-            az = math.degrees(math.atan2(dy[k], dx[k]))
+        if dx[k] or dy[k] or dz[k]:
+            az, elev = local_angles(dx[k], dy[k], dz[k])
         else:
             elev, az = 0.0, 0.0
         row = int(min(height - 1, max(0, round(mean_row[k]))))

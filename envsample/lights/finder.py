@@ -58,7 +58,7 @@ import numpy as np
 from envsample.core.color import luminance as _luminance
 from envsample.core.constants import HALF_FLOAT_MAX, SUN_ANGULAR_DIAMETER_DEG
 from envsample.core.latlong import RowWeightedSample
-from envsample.core.sphere import row_solid_angles, uv_to_direction
+from envsample.core.sphere import row_solid_angles, uv_to_angles, uv_to_direction
 from envsample.lights.emitters import Emitter, emitter_level, find_emitters
 from envsample.lights.fill import harmonic_fill
 from envsample.lights.plateau import find_plateau, plateau_is_clipped
@@ -376,10 +376,9 @@ def _measure(img, lum, omega, label_img, sun: Emitter, total, median, opt, clip,
     conf = _confidence(clipping, ended, r_px, share, notes)
     row_c = min(height - 1, int(theta_c / dth))
     px = math.degrees(2.0 * math.acos(1.0 - omega[row_c] / (2.0 * math.pi)))
-    az = math.degrees(phi_c) + rotation_deg
-    az = (az + 180.0) % 360.0 - 180.0
+    az, el = uv_to_angles(u, v, rotation_deg=rotation_deg)
     return SunEstimate(
-        direction=direction, azimuth_deg=az, elevation_deg=90.0 - math.degrees(theta_c),
+        direction=direction, azimuth_deg=az, elevation_deg=el,
         diameter_deg=math.degrees(2.0 * r), solid_angle_sr=solid, power_rgb=power_rgb,
         radiance_rgb=power_rgb / solid, share=share, clipped=clipping is not None, confidence=conf,
         resolved=2.0 * r > 2.0 * math.radians(px), pixel_diameter_deg=px, glare_radius_deg=math.degrees(radius),

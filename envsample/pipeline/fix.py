@@ -9,6 +9,7 @@ a JSON log beside it (schema ``envsample.fix-log``) with the before and after ve
 
 from __future__ import annotations
 
+import dataclasses
 import json
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -22,6 +23,7 @@ from envsample.core.schema import Schema
 from envsample.core.text import caution
 from envsample.errors import EnvsampleError
 from envsample.io.maps import read_map, write_map
+from envsample.pipeline.workflow import check_output_folder
 from envsample.qa.profile import load_profile
 from envsample.qa.remedies import UNFIXABLE, apply_remedy, plan_remedies
 from envsample.qa.run import check_map
@@ -137,6 +139,15 @@ def repair_image(image, before, *, remedies: Mapping | None = None, auto: bool =
     steps, proposed = plan_remedies(before, auto=auto, requested=remedies)
     rgb, records, skipped = image.rgb, [], []
     for step in steps:
+        if step["why"] != "requested" and any(r["why"] == "requested" for r in records):
+            # A requested step ran first (a flip, a rotation, padding): the check that planned this one
+            # may pass by now (a flipped map's exposure, say).  Ask it again before changing more pixels.
+            check_id = step["why"].split()[0]
+            again = check_map(dataclasses.replace(image, rgb=rgb), profile=prof, checks=[check_id])
+            if again.get(check_id) is not None and again[check_id].severity == "pass":
+                skipped.append({"remedy": step["remedy"], "check": check_id,
+                                "reason": f"{check_id} passes after the earlier steps"})
+                continue
         try:
             repair = apply_remedy(step["remedy"], rgb, **_options(step["remedy"], step["options"], prof, before, src))
         except ValueError as e:
@@ -175,6 +186,7 @@ def fix_map(source, output, *, remedies: Mapping | None = None, auto: bool = Fal
     """
     src, out = Path(source), Path(output)
     refuse_overwriting_inputs([out, log_path(out)], [src], option="-o")
+    check_output_folder(out)
     prof = load_profile(profile)
     image = read_map(src)
     before = check_map(image, profile=prof)
@@ -186,6 +198,8 @@ def fix_map(source, output, *, remedies: Mapping | None = None, auto: bool = Fal
         raise ValueError(f"{src}: no remedy to apply{why}: the checks propose none that --auto may apply{hint}")
     if pixel_type is None:
         pixel_type = output_pixel_type(image, rgb)
+    # A missing output folder is created only now, once the map was read, checked and repaired.
+    out.parent.mkdir(parents=True, exist_ok=True)
     write_map(out, rgb, pixel_type=pixel_type, chromaticities=image.chromaticities,
               attributes={HEADER_ATTRIBUTE: header_record(image, records)})
     after = check_map(out, profile=prof)

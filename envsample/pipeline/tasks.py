@@ -96,7 +96,7 @@ OUTPUT_FIELDS = {
 }
 
 #: The row note of a map that failed QA and got no table.
-NOT_BUILT_NOTE = "no table: the map failed QA (pass build_failed=True to build it anyway)"
+NOT_BUILT_NOTE = "no table: the map failed QA (batch --build-failed, build_failed=True in Python, builds it anyway)"
 
 _HASH_CHUNK = 1 << 20
 

@@ -14,12 +14,13 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.latlong import parse_size
+from envsample.core.limits import check_memory
 from envsample.io.maps import MapImage, read_map, supported_extensions, validate_map
 from envsample.pipeline.split import find_split, verify_split
 from envsample.reports.validation import write_validation
 from envsample.sampling.table import EnvTable, build_table, load_table
 from envsample.validation.render import DEFAULT_ESTIMATORS, Progress, check_roughness, render_validation
-from envsample.validation.streams import RENDER_MEMORY_LIMIT, check_normals, check_render_size, check_seed, check_spp
+from envsample.validation.streams import check_normals, check_render_size, check_seed, check_spp
 
 __all__ = ["SCALE_RANGE", "TABLE_BYTES_PER_CELL", "load_source", "verify_map"]
 
@@ -111,7 +112,7 @@ def load_source(source, *, table_size=None) -> tuple:
 
 def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=None, roughness=None,
                seed: int | None = 0, table_size=None, sphere: bool = True,
-               progress: Progress | None = None) -> dict:
+               progress: Progress | None = None, max_memory=None) -> dict:
     """Render irradiance over a grid of normals with each estimator, compare with the exact reference, write a report.
 
     Parameters
@@ -136,9 +137,10 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     dict
         The content of ``metrics.json`` (:mod:`envsample.validation.render`), with ``"outdir"`` added.
 
-    Requests that would need more than :data:`envsample.validation.streams.RENDER_MEMORY_LIMIT`
-    bytes (normals x spp x estimators, or a ``table_size`` of too many cells) are refused
-    with one line (ValueError) before any file is read or folder made.  The folder appears
+    Requests that would need more than the memory limit (normals x spp x estimators, or a
+    ``table_size`` of too many cells; :func:`envsample.core.limits.max_memory`, raised on purpose
+    with ``max_memory=``) are refused with one line (ResourceLimitError) before any file is read
+    or folder made.  The folder appears
     only when every file is written (:func:`envsample.reports.validation.write_validation`).
     """
     # Option values are checked before any file is read.
@@ -146,8 +148,8 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     roughness = check_roughness(roughness)
     count = len(DEFAULT_ESTIMATORS) + 1 if estimators is None else (
         len([e for e in estimators.split(",") if e.strip()]) if isinstance(estimators, str) else len(estimators)) + 1
-    check_render_size(normals, spp, count)
-    _check_table_size(table_size)
+    check_render_size(normals, spp, count, limit=max_memory)
+    _check_table_size(table_size, max_memory)
     if progress is not None:
         progress("load")
     split = find_split(source)  # a split's folder or sky table: also compared with its original map
@@ -165,14 +167,12 @@ def verify_map(source, outdir, *, spp: int = 64, normals=(128, 64), estimators=N
     return doc
 
 
-def _check_table_size(table_size) -> None:
+def _check_table_size(table_size, limit=None) -> None:
     try:
         size = parse_size(table_size)
     except (TypeError, ValueError) as e:
         raise ValueError(f"table_size must be (width, height) or 'WxH', e.g. 512x256 ({e})") from None
     if size is None:
         return
-    need = size[0] * size[1] * TABLE_BYTES_PER_CELL
-    if need > RENDER_MEMORY_LIMIT:
-        raise ValueError(f"table size {size[0]}x{size[1]} would need about {need / 2 ** 30:.3g} GiB of memory "
-                         f"(limit {RENDER_MEMORY_LIMIT / 2 ** 30:.3g} GiB); choose a smaller table size")
+    check_memory(size[0] * size[1] * TABLE_BYTES_PER_CELL, what=f"verify --table-size {size[0]}x{size[1]}",
+                 limit=limit, remedy="choose a smaller table size")

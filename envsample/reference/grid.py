@@ -27,20 +27,18 @@ import numpy as np
 
 from envsample.core.kernels import KernelSwitch
 from envsample.core.latlong import parse_size, reduce_power
-from envsample.core.sphere import UP_AXES
+from envsample.core.sphere import UP_AXES, as_vectors
 from envsample.errors import MapValidationError
 from envsample.io.maps import map_pixels
 
 __all__ = ["Grid", "map_frame", "map_array", "prepare_map", "unit_normals", "cos_sin_deg", "thread_count",
-           "KERNELS", "TWO_PI", "UNIT_TOLERANCE"]
+           "KERNELS", "TWO_PI"]
 
 TWO_PI = 2.0 * math.pi
 
 #: The compiled kernels of the reference (``ENVSAMPLE_KERNELS=numpy`` disables them).
 KERNELS = KernelSwitch("envsample.reference._kernels")
 
-#: Normal length tolerated before renormalisation (larger deviations are an input error).
-UNIT_TOLERANCE = 1e-6
 
 def map_array(rgb, name: str = "rgb") -> np.ndarray:
     """(H, W, 3) float32/float64 radiance from an array or a MapImage (:func:`envsample.io.map_pixels`).
@@ -75,18 +73,7 @@ def prepare_map(rgb, size, *, checked: bool = False) -> np.ndarray:
 
 def unit_normals(normals, name: str = "normals") -> tuple[np.ndarray, tuple[int, ...]]:
     """Flatten (..., 3) unit vectors to (N, 3) float64; returns them and the leading shape."""
-    a = np.asarray(normals, dtype=np.float64)
-    if a.ndim == 0 or a.shape[-1] != 3:
-        raise ValueError(f"{name} must have shape (..., 3), got {a.shape}; pass unit vectors")
-    lead = a.shape[:-1]
-    a = a.reshape(-1, 3)
-    if not np.all(np.isfinite(a)):
-        raise ValueError(f"{name} contains NaN or Inf; pass finite unit vectors")
-    norm = np.linalg.norm(a, axis=1)
-    if a.shape[0] and np.max(np.abs(norm - 1.0)) > UNIT_TOLERANCE:
-        worst = float(norm[np.argmax(np.abs(norm - 1.0))])
-        raise ValueError(f"{name} must be unit vectors (one has length {worst:.6g}); normalise them first")
-    return a / norm[:, None], lead
+    return as_vectors(normals, name, unit="require")
 
 
 def cos_sin_deg(deg: float) -> tuple[float, float]:

@@ -31,7 +31,7 @@ from pathlib import Path
 import numpy as np
 
 from envsample.core.compat import warn_renamed
-from envsample.core.sphere import _frame, direction_to_uv, row_cos_edges, row_solid_angles
+from envsample.core.sphere import _frame, as_vectors, direction_to_uv, row_cos_edges, row_solid_angles
 from envsample.errors import EnvsampleError
 from envsample.io.tables import save_table, table_paths
 from envsample.sampling import distribution as dist
@@ -363,9 +363,7 @@ def _finite_directions(directions) -> np.ndarray:
     d = np.asarray(directions, dtype=np.float64)
     if d.ndim != 2 or d.shape[1] != 3:
         raise ValueError(f"directions must have shape (N, 3), got {d.shape}")
-    if not np.isfinite(d).all():
-        raise ValueError("directions contain NaN or Inf; every direction must be a finite vector")
-    return d
+    return as_vectors(d, "directions")[0]
 
 
 def _axis_map(frame) -> list[tuple[int, float]]:

@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from envsample.core.sphere import as_vectors
+
 __all__ = ["MIN_ROUGHNESS", "Frame", "make_frame", "check_u"]
 
 #: Smallest GGX alpha accepted: below it D overflows float64 near the peak.
@@ -58,18 +60,11 @@ class Frame:
 
 def _unit_vectors(x, name: str, n: int | None = None) -> np.ndarray:
     a = np.asarray(x, dtype=np.float64)
-    if a.ndim == 1:
-        a = a[None, :]
-    if a.ndim != 2 or a.shape[1] != 3:
+    if a.ndim not in (1, 2) or a.shape[-1] != 3:
         raise ValueError(f"{name} must have shape (N, 3) or (3,), got {np.shape(x)}; pass unit vectors")
+    a, _ = as_vectors(a, name, unit="normalise")
     if n is not None and a.shape[0] not in (1, n):
         raise ValueError(f"{name} has {a.shape[0]} rows but the normals have {n}; pass one per normal or one for all")
-    if not np.all(np.isfinite(a)):
-        raise ValueError(f"{name} contains NaN or Inf; pass finite unit vectors")
-    norm = np.linalg.norm(a, axis=1)
-    if np.any(norm < 1e-12):
-        raise ValueError(f"{name} contains a zero vector; pass unit vectors")
-    a = a / norm[:, None]
     if n is not None and a.shape[0] == 1 and n != 1:
         a = np.broadcast_to(a, (n, 3)).copy()
     return a

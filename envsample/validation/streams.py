@@ -13,13 +13,10 @@ import zlib
 import numpy as np
 
 from envsample.core.latlong import parse_size
+from envsample.core.limits import check_memory
 
-__all__ = ["STREAM_PURPOSES", "RENDER_MEMORY_LIMIT", "stream", "check_seed", "check_spp", "check_normals",
+__all__ = ["STREAM_PURPOSES", "stream", "check_seed", "check_spp", "check_normals",
            "render_bytes", "check_render_size"]
-
-#: Largest memory (bytes) a validation render may need before it is refused: 4 GiB, a sixth of
-#: the 24 GiB machines this project is built for (our choice).
-RENDER_MEMORY_LIMIT = 4 << 30
 
 #: Purposes of the random streams (first word of the SeedSequence spawn key).
 STREAM_PURPOSES = {"render": 1, "convergence": 2, "glossy": 3, "tune-pilot": 4, "tune-confirm": 5, "qa": 6, "split": 7}
@@ -69,20 +66,14 @@ def render_bytes(normals: tuple[int, int], spp: int, estimators: int) -> int:
     return n * (32 + 12 * (int(estimators) + 1)) + 2 * n * int(spp) * 9
 
 
-def _size_text(nbytes: float) -> str:
-    for unit in ("B", "KiB", "MiB", "GiB", "TiB", "PiB"):
-        if nbytes < 1024 or unit == "PiB":
-            return f"{nbytes:.3g} {unit}"
-        nbytes /= 1024.0
-    return f"{nbytes:.3g} PiB"
+def check_render_size(normals: tuple[int, int], spp: int, estimators: int, *, limit=None) -> int:
+    """Refuse a render whose estimated memory (:func:`render_bytes`) exceeds the memory limit, before anything is allocated.
 
-
-def check_render_size(normals: tuple[int, int], spp: int, estimators: int, *,
-                      limit: int = RENDER_MEMORY_LIMIT) -> int:
-    """Refuse a render that would need more than ``limit`` bytes, in one line, before anything is allocated."""
+    The limit is :func:`envsample.core.limits.max_memory` (8 GiB unless ``limit``,
+    ``--max-memory`` or ``ENVSAMPLE_MAX_MEMORY`` say otherwise); the refusal is one line
+    (:class:`~envsample.errors.ResourceLimitError`) naming the estimate.  Returns the estimate.
+    """
     need = render_bytes(normals, spp, estimators)
-    if need > limit:
-        raise ValueError(f"normals {normals[0]}x{normals[1]} at {spp} spp with {estimators} estimators would need "
-                         f"about {_size_text(need)} of memory (limit {_size_text(limit)}); choose fewer normals, "
-                         "samples or estimators")
+    check_memory(need, what=f"verify --normals {normals[0]}x{normals[1]} at {spp} spp with {estimators} estimators",
+                 limit=limit, remedy="choose fewer normals, samples or estimators")
     return need

@@ -44,7 +44,7 @@ def test_verify_refuses_oversized_requests_before_making_anything(run, tmp_path)
     for args in (("--normals", "100000x50000"), ("--table-size", "100000x50000")):
         r = run("verify", tmp_path / "sky.exr", "-o", tmp_path / "report", *args)
         assert r.exit_code == 2, r.output
-        assert r.output.startswith("error:") and "would need about" in r.output and len(r.output.splitlines()) == 1
+        assert r.output.startswith("error:") and "needs about" in r.output and len(r.output.splitlines()) == 1
         assert not (tmp_path / "report").exists()
 
 

@@ -12,6 +12,7 @@ from support.qa_maps import TEST_PROFILE, sunny
 from envsample.core.files import OutputIsInputError
 from envsample.io.maps import read_map, write_map
 from envsample.pipeline.fix import HEADER_ATTRIBUTE, FixRefusedError, fix_map, log_path
+from envsample.synth.skies import make_sky
 
 
 @pytest.fixture()
@@ -89,3 +90,27 @@ def test_sun_azimuth_rotation_puts_the_sun_there(tmp_path, profile_file):
     result = fix_map(src, tmp_path / "r.exr", remedies={"rotate": {"sun_azimuth": -100.0}}, profile=profile_file)
     az = next(e for e in result.after["sun"].details["emitters"] if e["sun_like"])["azimuth_deg"]
     assert abs(az + 100.0) <= 360.0 / 256
+
+
+def test_a_missing_output_folder_is_created_only_for_a_repaired_map(tmp_path, profile_file):
+    img = sunny(64)
+    img[5, 7] = np.nan
+    src = write_map(tmp_path / "m.exr", img, pixel_type="float")
+    result = fix_map(src, tmp_path / "new" / "deeper" / "f.exr", auto=True, profile=profile_file)
+    assert result.output.is_file() and log_path(result.output).is_file()
+    clean = write_map(tmp_path / "clean.exr", sunny(64), pixel_type="float")
+    with pytest.raises(ValueError, match="no remedy to apply"):
+        fix_map(clean, tmp_path / "other" / "f.exr", auto=True, profile=profile_file)
+    assert not (tmp_path / "other").exists()
+
+
+def test_auto_remedies_planned_before_a_requested_flip_are_asked_again(tmp_path, profile_file):
+    """An upside-down map warns about its exposure only because it is upside down: after the requested flip
+    the exposure check passes, so --auto does not rescale it (the flipped pixels stay exactly the source's)."""
+    img = make_sky("sun", width=256, elevation_deg=55.0, azimuth_deg=30.0)  # a black ground: flipped, no light falls on "up"
+    src = write_map(tmp_path / "down.exr", np.flipud(img).copy(), pixel_type="float")
+    result = fix_map(src, tmp_path / "up.exr", auto=True, remedies={"flip": {}}, profile=profile_file)
+    assert result.before["exposure"].severity == "warn"
+    assert [s["remedy"] for s in result.steps] == ["flip"]
+    assert any(k["remedy"] == "exposure" and "passes after the earlier steps" in k["reason"] for k in result.skipped)
+    assert np.array_equal(read_map(result.output).rgb, img)

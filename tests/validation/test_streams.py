@@ -9,8 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from envsample.errors import ResourceLimitError
 from envsample.validation.streams import (
-    RENDER_MEMORY_LIMIT,
     check_normals,
     check_render_size,
     check_seed,
@@ -54,6 +54,8 @@ def test_oversized_renders_are_refused_with_the_estimate():
     """issue 12 item 4: 100000x50000 normals were attempted (37 GiB and more) before failing."""
     need = render_bytes((128, 64), 64, 13)
     assert need == 128 * 64 * (32 + 12 * 14) + 2 * 128 * 64 * 64 * 9
-    assert check_render_size((128, 64), 64, 13) == need < RENDER_MEMORY_LIMIT
-    with pytest.raises(ValueError, match=r"normals 100000x50000 at 64 spp .* would need about [\d.]+ TiB .*limit 4 GiB"):
+    assert check_render_size((128, 64), 64, 13) == need < 8 << 30  # the default limit, envsample.core.limits
+    with pytest.raises(ResourceLimitError, match=r"normals 100000x50000 at 64 spp .* needs about [\d.]+ TiB .*limit of 8.0 GiB"):
         check_render_size((100000, 50000), 64, 13)
+    with pytest.raises(ResourceLimitError, match=r"limit of 1.0 kiB"):
+        check_render_size((128, 64), 64, 13, limit=1024)
