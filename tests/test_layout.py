@@ -1,5 +1,6 @@
 """The package's layout keeps its promises: layers point one way, no import cycles, small modules and
-functions, and a test file per module (the contributor guide, "Layout and layers").
+functions, and a test file per module, tests/<package>/test_<module>.py (the contributor guide,
+"Layout and layers" and "Tests").
 
 The graph is read with ``ast`` (tests/support/layers.py); Tarjan, R. (1972). Depth-first search and
 linear graph algorithms. SIAM J. Computing 1(2) finds the cycles.
@@ -11,7 +12,15 @@ import ast
 from pathlib import Path
 
 import pytest
-from support.layers import LAYERS, cycles, function_level_imports, graph, layer_violations, module_names
+from support.layers import (
+    LAYERS,
+    cycles,
+    function_level_imports,
+    graph,
+    layer_violations,
+    module_names,
+    modules_without_tests,
+)
 
 ROOT = Path(__file__).resolve().parents[1]
 PACKAGE = "envsample"
@@ -80,3 +89,26 @@ def test_modules_and_functions_stay_small():
                 if n > MAX_FUNCTION_LINES:
                     long_functions.append(f"{name}.{node.name}")
     assert set(long_modules + long_functions) <= STILL_LARGE
+
+
+def test_every_module_has_its_own_test_file():
+    """envsample/<pkg>/<mod>.py is tested in tests/<pkg>/test_<mod>.py (envsample/<mod>.py in tests/test_<mod>.py)."""
+    missing = modules_without_tests(ROOT, PACKAGE)
+    assert not missing, "modules without a test file tests/<package>/test_<module>.py: " + ", ".join(missing)
+
+
+def test_the_test_file_rule_names_each_module_without_one(tmp_path):
+    """The rule must be able to fail: two modules without a test file are listed, the tested one and the
+    package markers are not."""
+    _write(tmp_path, {
+        "envsample/__init__.py": "",
+        "envsample/_version.py": "",
+        "envsample/errors.py": "",
+        "envsample/core/__init__.py": "",
+        "envsample/core/sphere.py": "",
+        "envsample/qa/checks/__init__.py": "",
+        "envsample/qa/checks/pixels.py": "",
+        "tests/core/test_sphere.py": "",
+        "tests/qa/test_pixels.py": "",  # the wrong folder: checks/ is mirrored too
+    })
+    assert modules_without_tests(tmp_path, PACKAGE) == ["envsample/errors.py", "envsample/qa/checks/pixels.py"]

@@ -16,7 +16,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import re
 import struct
 import zipfile
 from bisect import bisect_right
@@ -25,6 +24,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import xxhash
+from support.table_files import names_file, rewrite_json, rewrite_npz_with_checksums, saved, table_test_map
 
 from envsample.errors import TableFormatError
 from envsample.io import tables as tableio
@@ -33,37 +33,6 @@ from envsample.sampling.table import build_table, load_table
 
 #: Position within a cell is kept in [EDGE, 1 - EDGE] (docs/table-format.md).
 EDGE = 1e-7
-
-
-def _map(seed=5, h=16, w=32):
-    r = np.random.default_rng(seed)
-    rgb = np.exp(r.normal(0.0, 1.0, (h, w, 3))).astype(np.float32)
-    rgb[3, 7] = 5e4  # a small sun
-    return rgb
-
-
-@pytest.fixture
-def table():
-    t = build_table(_map(), mapping="uv-linear", up="z", rotation_deg=30.0, uniform_mix=0.1, size=(16, 8))
-    t.metadata["recommendation"] = {"method": "alias", "why": "invented for the test"}
-    return t
-
-
-def _match(path) -> str:
-    """A pytest.raises pattern that requires the message to name the file."""
-    return re.escape(str(path))
-
-
-def _saved(tmp_path, table, raw=False):
-    prefix = tmp_path / "rooftop"
-    table.save(prefix, raw=raw)
-    return prefix, table_paths(prefix)
-
-
-def _rewrite_json(path, edit):
-    doc = json.loads(Path(path).read_text())
-    edit(doc)
-    Path(path).write_text(json.dumps(doc))
 
 
 # ------------------------------------------------------------------ round trip
@@ -93,8 +62,8 @@ def test_round_trip_is_bit_exact(tmp_path, table, rng):
 
 
 def test_round_trip_of_a_compensated_table(tmp_path):
-    t = build_table(_map(), compensate=True)
-    prefix, _ = _saved(tmp_path, t)
+    t = build_table(table_test_map(), compensate=True)
+    prefix, _ = saved(tmp_path, t)
     loaded = load_table(prefix)
     assert loaded.compensated and loaded.metadata.get("valid_only_inside_mis") is True
     np.testing.assert_array_equal(loaded.cell_pdf, t.cell_pdf)
@@ -102,7 +71,7 @@ def test_round_trip_of_a_compensated_table(tmp_path):
 
 def test_json_describes_the_table(tmp_path, table):
     """The JSON names the schema and version, sizes, convention, mapping, and a recipe for its mapping."""
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     doc = read_table_json(paths["json"])
     assert doc["schema"] == SCHEMA_NAME and doc["schema_version"] == SCHEMA_VERSION == 2
     assert doc["image"] == {"width": 32, "height": 16} and doc["table"] == {"width": 16, "height": 8}
@@ -119,7 +88,7 @@ def test_json_describes_the_table(tmp_path, table):
 
 def test_checksums_in_json_match_xxhash(tmp_path, table):
     """XXH64 (the xxhash package) of each array's C-order little-endian bytes equals the JSON entry."""
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     doc = json.loads(paths["json"].read_text())
     with np.load(paths["npz"]) as z:
         for name, entry in doc["arrays"].items():
@@ -222,7 +191,7 @@ class _DocLoader:
 def test_documented_recipe_reproduces_sampling(tmp_path, rng, mapping, method):
     """docs/table-format.md is enough to write a loader: following its recipe on the raw file gives
     the cells, directions and pdf of EnvTable.sample (to the float rounding of the recipe)."""
-    t = build_table(_map(), mapping=mapping, up="z", rotation_deg=-40.0)
+    t = build_table(table_test_map(), mapping=mapping, up="z", rotation_deg=-40.0)
     prefix = tmp_path / "studio"
     t.save(prefix, raw=True)
     ref = _DocLoader(str(prefix) + ".bin")
@@ -236,74 +205,12 @@ def test_documented_recipe_reproduces_sampling(tmp_path, rng, mapping, method):
 
 
 # ------------------------------------------------------------------ refused tables
-def test_missing_json_is_refused(tmp_path):
-    with pytest.raises(TableFormatError, match=_match(tmp_path / "nothing.json") + ".*not found"):
-        load_table(tmp_path / "nothing")
 
 
 def test_missing_npz_is_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     paths["npz"].unlink()
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*not found"):
-        load_table(paths["json"])
-
-
-def test_invalid_json_is_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
-    paths["json"].write_text('{"schema": "envsample.sampling-table", "schema_version": 1,')
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*not valid JSON"):
-        load_table(paths["json"])
-    paths["json"].write_bytes(b"\xff\xfe\x00garbage")
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*not valid JSON"):
-        load_table(paths["json"])
-
-
-def test_other_schema_or_version_is_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
-    _rewrite_json(paths["json"], lambda d: d.update(schema_version=SCHEMA_VERSION + 1))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + f".*schema version {SCHEMA_VERSION + 1}"):
-        load_table(paths["json"])
-    _rewrite_json(paths["json"], lambda d: d.update(schema="someone.else", schema_version=SCHEMA_VERSION))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*not an envsample table"):
-        load_table(paths["json"])
-    paths["json"].write_text("[1, 2, 3]")
-    with pytest.raises(TableFormatError, match="not an envsample table"):
-        load_table(paths["json"])
-
-
-@pytest.mark.parametrize(
-    "label, edit",
-    [
-        ("entry without checksum", lambda d: d["arrays"]["cell_pdf"].pop("xxh64")),
-        ("entry without dtype", lambda d: d["arrays"]["cell_pdf"].pop("dtype")),
-        ("table without height", lambda d: d["table"].pop("height")),
-        ("arrays as a list", lambda d: d.update(arrays=[1, 2])),
-        ("convention without up", lambda d: d["convention"].pop("up")),
-        ("convention without handedness", lambda d: d["convention"].pop("handedness")),
-        ("height of 1e400", lambda d: d["table"].update(height=float("inf"))),
-        ("source as a string", lambda d: d.update(source="somewhere")),
-        ("integrals as a list", lambda d: d.update(integrals=[1, 2])),
-        ("notes as an int", lambda d: d.update(notes=3)),
-        ("a huge integer height", lambda d: d["table"].update(height=10**400)),
-        ("options without uniform_mix", lambda d: d["options"].pop("uniform_mix")),
-        ("height as text", lambda d: d["table"].update(height="eight")),
-        ("sampled_integral as text", lambda d: d.update(sampled_integral="x")),
-        ("unknown up axis", lambda d: d["convention"].update(up="w")),
-    ],
-)
-def test_malformed_json_structure_is_refused(tmp_path, table, label, edit):
-    """Valid JSON of the wrong structure (hand-edited or written by another tool) is refused with a
-    TableFormatError that names the JSON file, not a bare KeyError/ValueError."""
-    _, paths = _saved(tmp_path, table)
-    _rewrite_json(paths["json"], edit)
-    with pytest.raises(TableFormatError, match=_match(paths["json"])):
-        load_table(paths["json"])
-
-
-def test_missing_json_key_is_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
-    _rewrite_json(paths["json"], lambda d: d.pop("arrays"))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*arrays is missing"):
+    with pytest.raises(TableFormatError, match=names_file(paths["npz"]) + ".*not found"):
         load_table(paths["json"])
 
 
@@ -317,109 +224,56 @@ def _rewrite_npz(path, edit):
 
 def test_tampered_value_is_refused(tmp_path, table):
     """One value changed in one array: its checksum no longer matches the JSON."""
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
 
     def tamper(a):
         a["cell_pdf"][2, 3] = np.nextafter(a["cell_pdf"][2, 3], np.float32(1e9))
 
     _rewrite_npz(paths["npz"], tamper)
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'cell_pdf' fails its checksum"):
+    with pytest.raises(TableFormatError, match=names_file(paths["npz"]) + ".*'cell_pdf' fails its checksum"):
         load_table(paths["json"])
 
 
 def test_wrong_dtype_and_missing_array_are_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     _rewrite_npz(paths["npz"], lambda a: a.update(alias_index=a["alias_index"].astype(np.int64)))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' has dtype <i8 .* expected <u2"):
+    with pytest.raises(TableFormatError, match=names_file(paths["npz"]) + ".*'alias_index' has dtype <i8 .* expected <u2"):
         load_table(paths["json"])
     _rewrite_npz(paths["npz"], lambda a: a.pop("alias_index"))
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*'alias_index' missing"):
+    with pytest.raises(TableFormatError, match=names_file(paths["npz"]) + ".*'alias_index' missing"):
         load_table(paths["json"])
 
 
 @pytest.mark.parametrize("keep", [0.5, 0.1, 0.0])
 def test_truncated_npz_is_refused(tmp_path, table, keep):
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     data = paths["npz"].read_bytes()
     paths["npz"].write_bytes(data[: int(len(data) * keep)])
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*corrupt or truncated"):
+    with pytest.raises(TableFormatError, match=names_file(paths["npz"]) + ".*corrupt or truncated"):
         load_table(paths["json"])
 
 
 def test_npz_that_is_not_a_zip_is_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     paths["npz"].write_text("this is not an archive\n" * 20)
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*corrupt or truncated"):
+    with pytest.raises(TableFormatError, match=names_file(paths["npz"]) + ".*corrupt or truncated"):
         load_table(paths["json"])
 
 
 def test_mismatched_shapes_are_refused(tmp_path, table):
     """The JSON's array shape, or its table size, disagreeing with the arrays or with each other."""
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     original = paths["json"].read_text()
-    _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(shape=[4, 32]))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + r".*'cell_pdf' is declared \[4, 32\], expected \[8, 16\]"):
+    rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(shape=[4, 32]))
+    with pytest.raises(TableFormatError, match=names_file(paths["json"]) + r".*'cell_pdf' is declared \[4, 32\], expected \[8, 16\]"):
         load_table(paths["json"])
     paths["json"].write_text(original)
-    _rewrite_json(paths["json"], lambda d: d["table"].update(width=8, height=16))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*expected .* for this table"):
+    rewrite_json(paths["json"], lambda d: d["table"].update(width=8, height=16))
+    with pytest.raises(TableFormatError, match=names_file(paths["json"]) + ".*expected .* for this table"):
         load_table(paths["json"])
     paths["json"].write_text(original)
-    _rewrite_json(paths["json"], lambda d: d.update(radiance="embedded"))  # says it holds a map it has not
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*missing \\['radiance'\\]"):
-        load_table(paths["json"])
-
-
-@pytest.mark.parametrize(
-    "name, edit, message",
-    [
-        ("marginal_cdf", lambda a: a.__setitem__(3, a[2] - 0.01), "marginal_cdf is not non-decreasing"),
-        ("conditional_cdf", lambda a: a.__setitem__((1, -1), 0.99), "conditional_cdf is not a CDF"),
-        ("marginal_cdf", lambda a: a.__setitem__(0, 1e-6), "marginal_cdf does not start at exactly 0"),
-        ("alias_index", lambda a: a.__setitem__((2, 5), a.shape[1]), "alias_index has entries outside"),
-        ("alias_probability", lambda a: a.__setitem__((2, 5), 1.5), "alias_probability has values outside"),
-        ("row_alias_index", lambda a: a.__setitem__(1, a.size), "row_alias_index has entries outside"),
-        ("cell_pdf", lambda a: a.__imul__(np.float32(1e30)), "cell_pdf integrates to"),
-        ("cell_pdf", lambda a: a.__setitem__(slice(None), 0.0), "cell_pdf integrates to 0"),
-        ("cell_pdf", lambda a: a.__setitem__((3, 2), a[3, 2] * 2), "does not match cell_pdf"),
-        ("alias_probability", lambda a: a.__setitem__((3, 2), a[3, 2] * 0.5), "alias tables do not match"),
-        ("cell_pdf", lambda a: a.__setitem__((0, 0), -1.0), "cell_pdf has negative or non-finite"),
-        ("cell_pdf", lambda a: a.__setitem__((0, 0), np.nan), "cell_pdf has negative or non-finite"),
-    ],
-)
-def test_inconsistent_arrays_with_valid_checksums_are_refused(tmp_path, name, edit, message):
-    """A writer that produced bad arrays (checksums consistent): the loader's own checks catch it."""
-    t = build_table(_map())
-    prefix, paths = _saved(tmp_path, t)
-
-    def bad(arrays):
-        edit(arrays[name])
-
-    _rewrite_npz_with_checksums(paths, bad)
-    with pytest.raises(TableFormatError, match=_match(paths["npz"]) + ".*" + re.escape(message)):
-        load_table(prefix)
-    # save() refuses such a table before writing anything (it could not be loaded).
-    edit(getattr(t, name))
-    with pytest.raises(TableFormatError, match=re.escape(message)):
-        t.save(tmp_path / "never")
-    assert not list(tmp_path.glob("never*"))
-
-
-def _rewrite_npz_with_checksums(paths, edit):
-    """Edit arrays and record their new checksums in the JSON: only the meaning checks can then object."""
-    with np.load(paths["npz"]) as z:
-        arrays = {k.removesuffix(".npy"): z[k].copy() for k in z.files}
-    edit(arrays)
-    with open(paths["npz"], "wb") as f:
-        np.savez(f, **arrays)
-    _rewrite_json(paths["json"], lambda d: [d["arrays"][k].update(xxh64=xxhash.xxh64(a.tobytes()).hexdigest())
-                                            for k, a in arrays.items()])
-
-
-def test_unknown_mapping_is_refused(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
-    _rewrite_json(paths["json"], lambda d: d["options"].update(mapping="spiral"))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*options.mapping must be one of equal-area"):
+    rewrite_json(paths["json"], lambda d: d.update(radiance="embedded"))  # says it holds a map it has not
+    with pytest.raises(TableFormatError, match=names_file(paths["json"]) + ".*missing \\['radiance'\\]"):
         load_table(paths["json"])
 
 
@@ -446,9 +300,9 @@ def test_failed_save_keeps_the_existing_table(tmp_path, table, monkeypatch, fail
     .bin leaves the old table intact, byte for byte, and loadable (all files change as one unit)."""
     import errno
 
-    prefix, paths = _saved(tmp_path, table, raw=True)
+    prefix, paths = saved(tmp_path, table, raw=True)
     before = {k: p.read_bytes() for k, p in paths.items()}
-    other = build_table(_map(seed=9))
+    other = build_table(table_test_map(seed=9))
     real = getattr(tableio, failing)
 
     def disk_full(f, *args):
@@ -467,8 +321,8 @@ def test_failed_save_keeps_the_existing_table(tmp_path, table, monkeypatch, fail
 def test_interrupted_before_the_json_never_loads_a_hybrid(tmp_path, table, monkeypatch):
     """If the save dies after the new arrays are in place but before the JSON is renamed, the old JSON's
     checksums refuse the new arrays: a half-written table never loads (tableio module docstring)."""
-    prefix, paths = _saved(tmp_path, table)
-    other = build_table(_map(seed=9), mapping="uv-linear", up="z", rotation_deg=30.0, uniform_mix=0.1, size=(16, 8))
+    prefix, paths = saved(tmp_path, table)
+    other = build_table(table_test_map(seed=9), mapping="uv-linear", up="z", rotation_deg=30.0, uniform_mix=0.1, size=(16, 8))
     real_replace = os.replace
 
     def replace(src, dst):
@@ -502,7 +356,7 @@ def test_table_paths():
 def test_npz_is_a_plain_uncompressed_zip(tmp_path, table):
     """NPZ is numpy's zip container (PKWARE APPNOTE, read back by Python's zipfile): every member is a
     stored (uncompressed) .npy file with the right CRC-32."""
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     with zipfile.ZipFile(paths["npz"]) as z:
         names = {i.filename for i in z.infolist()}
         assert names == {f"{n}.npy" for n in ARRAY_DTYPES if n != "radiance"}
@@ -511,29 +365,12 @@ def test_npz_is_a_plain_uncompressed_zip(tmp_path, table):
 
 
 # ------------------------------------------------------------------ hostile files (issue 12, items 3 and 9)
-def test_a_version_1_table_is_refused_with_the_command_that_rebuilds_it(tmp_path, table):
-    _, paths = _saved(tmp_path, table)
-    _rewrite_json(paths["json"], lambda d: d.update(schema_version=1, source={"path": "/maps/roof top.exr"}))
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*version 1 table.*rebuild it with "
-                       "envsample build '/maps/roof top.exr' -o " + re.escape(str(tmp_path / "rooftop"))):
-        load_table(paths["json"])
-
-
-def test_deeply_nested_or_huge_json_is_refused_in_one_line(tmp_path, table, monkeypatch):
-    _, paths = _saved(tmp_path, table)
-    paths["json"].write_text("[" * 100_000 + "]" * 100_000)
-    with pytest.raises(TableFormatError, match=_match(paths["json"]) + ".*nested too deeply|not an envsample"):
-        load_table(paths["json"])
-    monkeypatch.setattr("envsample.io.table_json.MAX_JSON_BYTES", 1000)
-    paths["json"].write_text(" " * 2000)
-    with pytest.raises(TableFormatError, match="far larger than a table's metadata"):
-        load_table(paths["json"])
 
 
 def test_declared_dtype_message_names_what_the_json_says(tmp_path, table):
     """Issue 12, item 9: the JSON saying <f8 is reported as such (not 'has dtype <f4, expected <f4')."""
-    _, paths = _saved(tmp_path, table)
-    _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(dtype="<f8"))
+    _, paths = saved(tmp_path, table)
+    rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(dtype="<f8"))
     with pytest.raises(TableFormatError, match=r"'cell_pdf' is declared '<f8', the format stores '<f4'"):
         load_table(paths["json"])
 
@@ -544,9 +381,9 @@ def test_a_forged_npz_header_is_refused_before_anything_is_allocated(tmp_path, t
     allocation."""
     import tracemalloc
 
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     shape = [23170, 46340]  # 1.07e9 cells: about 15 GiB of arrays
-    _rewrite_json(paths["json"], lambda d: (d["table"].update(width=shape[1], height=shape[0]),
+    rewrite_json(paths["json"], lambda d: (d["table"].update(width=shape[1], height=shape[0]),
                                             [e.update(shape=[shape[0], shape[1]]) for e in d["arrays"].values()]))
     tracemalloc.start()
     try:
@@ -565,13 +402,13 @@ def test_a_forged_npz_header_is_refused_before_anything_is_allocated(tmp_path, t
     table.save(tmp_path / "ok")
     ok = table_paths(tmp_path / "ok")
     ok["npz"].write_bytes(paths["npz"].read_bytes())
-    with pytest.raises(TableFormatError, match=_match(ok["npz"])):
+    with pytest.raises(TableFormatError, match=names_file(ok["npz"])):
         load_table(ok["json"])
 
 
 def test_a_table_bigger_than_the_memory_limit_is_refused_before_reading(tmp_path, table, monkeypatch):
     """Issue 12, item 4: loading checks the arrays' size against the memory limit first."""
-    _, paths = _saved(tmp_path, table)
+    _, paths = saved(tmp_path, table)
     monkeypatch.setenv("ENVSAMPLE_MAX_MEMORY", "1k")
     from envsample.errors import ResourceLimitError
 
@@ -592,7 +429,7 @@ def test_a_damaged_binary_is_refused_where_it_is_read(tmp_path, table, damage, m
     checksum, array checksums, agreement with the JSON); the NPZ of the same table still loads."""
     from envsample.pipeline.workflow import table_facts
 
-    _, paths = _saved(tmp_path, table, raw=True)
+    _, paths = saved(tmp_path, table, raw=True)
     data = bytearray(paths["bin"].read_bytes())
     if damage == "truncated to 1 kB":
         data = data[:1024]
@@ -604,7 +441,7 @@ def test_a_damaged_binary_is_refused_where_it_is_read(tmp_path, table, damage, m
         data[40] ^= 0x01
     elif damage.startswith("offset"):
         value = 10**12 if "1e12" in damage else -64
-        _rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(offset=value))
+        rewrite_json(paths["json"], lambda d: d["arrays"]["cell_pdf"].update(offset=value))
     paths["bin"].write_bytes(bytes(data))
     for read in (load_table, table_facts):
         with pytest.raises(TableFormatError, match=message):
@@ -613,35 +450,8 @@ def test_a_damaged_binary_is_refused_where_it_is_read(tmp_path, table, damage, m
         load_table(paths["json"])
 
 
-def test_radiance_comes_from_the_verified_source_map(tmp_path, rng):
-    """Issue 8: no copy of the map is stored; eval re-reads the recorded source map and checks its
-    sha256; a moved map is found relative to the table or given with source=; a changed one is refused."""
-    from envsample.io.maps import read_map, write_map
-    from envsample.pipeline.workflow import build_from_file
-
-    maps = tmp_path / "maps"
-    maps.mkdir()
-    rgb = _map()
-    write_map(maps / "sky.exr", rgb, pixel_type="float")
-    build_from_file(maps / "sky.exr", tmp_path / "tables" / "sky", keep_map=False)
-    doc = read_table_json(tmp_path / "tables" / "sky")
-    assert doc["radiance"] == "source" and doc["source"]["relative_path"] == "../maps/sky.exr"
-    t = load_table(tmp_path / "tables" / "sky")
-    assert not t.has_image
-    np.testing.assert_array_equal(t.image, read_map(maps / "sky.exr").rgb)
-    # The whole project moves: the relative path still finds the map.
-    os.rename(tmp_path / "maps", tmp_path / "elsewhere")
-    with pytest.raises(TableFormatError, match="source map is not found.*--embed-radiance"):
-        load_table(tmp_path / "tables" / "sky").image
-    t = load_table(tmp_path / "tables" / "sky", source=tmp_path / "elsewhere" / "sky.exr")
-    np.testing.assert_array_equal(t.image, rgb)
-    write_map(tmp_path / "elsewhere" / "sky.exr", rgb * 2, pixel_type="float")
-    with pytest.raises(TableFormatError, match="has changed since the table was built"):
-        load_table(tmp_path / "tables" / "sky", source=tmp_path / "elsewhere" / "sky.exr").image
-
-
 def test_an_embedded_copy_travels_with_the_table_and_is_checked(tmp_path, table):
-    prefix, paths = _saved(tmp_path, table)
+    prefix, paths = saved(tmp_path, table)
     table.save(prefix, embed_radiance=True)
     assert read_table_json(prefix)["radiance"] == "embedded"
     np.testing.assert_array_equal(load_table(prefix).image, table.image)
@@ -649,7 +459,7 @@ def test_an_embedded_copy_travels_with_the_table_and_is_checked(tmp_path, table)
     def negative(arrays):
         arrays["radiance"][0, 0, 0] = -1.0
 
-    _rewrite_npz_with_checksums(paths, negative)
+    rewrite_npz_with_checksums(paths, negative)
     with pytest.raises(TableFormatError, match="radiance has negative or non-finite values"):
         load_table(prefix)
 

@@ -1,4 +1,8 @@
-"""Tests of envsample.pipeline.split (the files of ``envsample split``) and the split command."""
+"""Tests of envsample.pipeline.split: the files of ``envsample split`` (sky map, sun file, sky table).
+
+Outside reference: energy conservation (the sky's integral plus the sun's power equals the map's,
+within 1e-4 relative); the command itself is tested in tests/cli/test_split_cmd.py.
+"""
 
 from __future__ import annotations
 
@@ -6,10 +10,8 @@ import json
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
 from support.sun_maps import analytic_sun
 
-from envsample.cli import main
 from envsample.io.maps import read_map, write_map
 from envsample.lights.split import SUN_SCHEMA, map_integral
 from envsample.pipeline.split import load_sun, split_map_file
@@ -37,20 +39,6 @@ def test_split_writes_sky_sun_and_a_table_that_names_the_sun(sun_map, tmp_path):
     sun = load_sun(out / "clear.sun.json")
     original = read_map(sun_map).rgb
     assert np.allclose(map_integral(sky) + sun.power, map_integral(original), rtol=1e-4)
-
-
-def test_split_writes_nothing_for_a_map_without_a_sun(tmp_path):
-    path = tmp_path / "flat.exr"
-    write_map(path, np.ones((64, 128, 3), np.float32), pixel_type="float")
-    result = CliRunner().invoke(main, ["split", str(path), "-o", str(tmp_path / "out")])
-    assert result.exit_code == 2 and "no sun-like emitter" in result.output
-    assert not (tmp_path / "out").exists()
-
-
-def test_split_command_prints_the_sun_and_the_caution(sun_map, tmp_path):
-    result = CliRunner().invoke(main, ["split", str(sun_map), "-o", str(tmp_path / "o"), "--sun-illuminance", "4"])
-    assert result.exit_code == 0, result.output
-    assert "restored" in result.output and "assumed" in result.output and "not certified" in result.output
 
 
 def test_load_sun_refuses_another_schema(tmp_path):

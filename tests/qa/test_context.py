@@ -1,50 +1,80 @@
-"""Tests of envsample.qa.context: the solid-angle weighted quantiles against an argsort reference.
+"""Tests of envsample.qa.context (CheckContext): what every check reads, from one scan of the map.
+
+Outside references: closed forms (a constant map L has luminance integral 4 pi L; a polar cap of
+half-angle a holds the share (1 - cos a) / 2 of the sphere, Archimedes' hat-box theorem); the sRGB
+decoding of IEC 61966-2-1:1999 (code value 0.5 -> ((0.5 + 0.055) / 1.055)^2.4 = 0.2140); IEEE 754
+non-finite values.
 """
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
-from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
+import pytest
 
-from envsample.core.sphere import row_solid_angles
-from envsample.qa.scan import scan_map
+from envsample.io.maps import MapImage, read_map
+from envsample.qa.context import SUBSAMPLE_SIZE, CheckContext
 
-
-def test_scan_quantiles_match_an_argsort_reference_to_the_bucket_width(rng):
-    """Quantiles from the scan's log histogram must match a plain argsort of (value, weight) pairs
-    (numpy reference) to within the bucket width, 2^-8 of the value (IEEE 754 binary32 layout:
-    8 mantissa bits kept), including ties, zeros and negative zeros."""
-    values = rng.lognormal(size=(37, 74)).astype(np.float32)
-    values[rng.random(values.shape) < 0.2] = 0.0
-    values[3, :10] = -0.0
-    values[5] = values[6]  # ties across rows
-    scan = scan_map(np.repeat(values[..., None], 3, axis=2), primaries="mean")
-    w = row_solid_angles(37, 74)
-    flat = np.maximum(scan.luminance, 0).ravel().astype(np.float64)
-    weights = np.broadcast_to(w[:, None], values.shape).ravel()
-    order = np.argsort(flat, kind="stable")
-    cdf = np.cumsum(weights[order])
-    assert np.isclose(scan.histogram.total, w.sum() * 74)
-    for q in (0.0, 0.01, 0.25, 0.5, 0.9, 0.999, 1.0):
-        k = min(int(np.searchsorted(cdf, q * cdf[-1], side="left")), flat.size - 1)
-        exact = flat[order[k]]
-        assert abs(scan.histogram.quantile(q) - exact) <= 2.0 ** -8 * exact + 1e-30
+H, W = 64, 128
 
 
-def test_scan_row_sums_maxima_and_reduction_match_numpy(rng):
-    """Row sums and maxima per channel, luminance and the reduced map against whole-array numpy
-    (reference: numpy reductions; the reduction against envsample.core.latlong.reduce_power)."""
-    from envsample.core.color import luminance
-    from envsample.core.latlong import reduce_power
+def _ctx(rgb, profile):
+    return CheckContext(MapImage.from_array(np.asarray(rgb, np.float32)), profile)
 
-    rgb = rng.lognormal(size=(64, 128, 3)).astype(np.float32)
-    rgb[10, 5, 1] = np.nan
-    rgb[11, 7, 2] = -3.0
-    scan = scan_map(rgb, reduce_to=(32, 16))
-    clean = np.where(np.isfinite(rgb) & (rgb > 0), rgb, 0).astype(np.float32)
-    assert not scan.finite and not scan.nonnegative
-    assert np.array_equal(scan.row_channel_max, clean.max(axis=1))
-    assert np.allclose(scan.row_channel_sum, clean.sum(axis=1, dtype=np.float64), rtol=1e-6)
-    assert np.allclose(scan.luminance, luminance(clean), rtol=1e-6)
-    assert np.allclose(scan.reduced, reduce_power(clean, (32, 16)), rtol=1e-5)
-    assert scan.raw_max == float(np.nanmax(rgb))
+
+def test_defects_are_cleaned_for_the_other_checks_and_the_raw_map_kept(profile):
+    rgb = np.full((H, W, 3), 0.5, np.float32)
+    rgb[3, 4] = (np.nan, np.inf, -np.inf)
+    rgb[5, 6, 1] = -2.0
+    ctx = _ctx(rgb, profile)
+    assert not ctx.all_finite and not ctx.clean
+    assert np.array_equal(ctx.rgb[3, 4], [0, 0, 0]) and ctx.rgb[5, 6, 1] == 0.0
+    bad = np.zeros((H, W, 3), bool)
+    bad[3, 4] = bad[5, 6, 1] = True
+    assert np.array_equal(ctx.rgb[~bad], rgb[~bad])
+    assert np.isnan(ctx.raw[3, 4, 0]) and ctx.raw[5, 6, 1] == -2.0  # the map as read
+    clean = _ctx(np.full((H, W, 3), 0.5), profile)
+    assert clean.clean and clean.rgb is clean.raw  # no copy of a clean map
+
+
+def test_total_power_of_a_constant_map_is_four_pi_times_its_luminance(profile):
+    ctx = _ctx(np.full((H, W, 3), 2.5), profile)
+    assert ctx.total_power == pytest.approx(4.0 * math.pi * 2.5, rel=1e-6)
+    assert ctx.row_power.shape == (H,) and ctx.row_power.sum() == pytest.approx(ctx.total_power)
+    assert ctx.peak_luminance == pytest.approx(2.5, rel=1e-6)
+
+
+def test_quantiles_are_weighted_by_solid_angle(profile):
+    """A bright polar cap (theta < 45 deg, 3.0) over a dim rest (1.0): the cap holds (1 - cos 45 deg) / 2 =
+    14.6 % of the sphere, so the median is the dim level and the 90th percentile the bright one (to 0.4 %),
+    although the cap is a quarter of the pixel rows."""
+    rgb = np.ones((H, W, 3), np.float32)
+    rgb[: H // 4] = 3.0
+    ctx = _ctx(rgb, profile)
+    share = (1.0 - math.cos(math.pi / 4)) / 2.0
+    assert share < 0.5 and 1.0 - share < 0.9
+    assert ctx.median_luminance == pytest.approx(1.0, rel=4e-3)
+    assert ctx.quantile(0.9) == pytest.approx(3.0, rel=4e-3)
+    assert ctx.quantile(0.8) == pytest.approx(1.0, rel=4e-3)
+
+
+def test_an_ldr_image_is_srgb_decoded(tmp_path, profile):
+    import imageio.v3 as iio
+
+    iio.imwrite(tmp_path / "photo.png", np.full((32, 64, 3), 128, np.uint8))
+    ctx = CheckContext(read_map(tmp_path / "photo.png"), profile)
+    v = 128 / 255
+    assert ctx.rgb[0, 0, 0] == pytest.approx(((v + 0.055) / 1.055) ** 2.4, rel=1e-5)
+    assert ctx.channel_medians == pytest.approx([((v + 0.055) / 1.055) ** 2.4] * 3, rel=1e-5)
+
+
+def test_pixel_directions_and_the_subsample_follow_the_map(profile):
+    ctx = _ctx(np.ones((H, W, 3)), profile)
+    theta, phi = ctx.pixel_directions
+    np.testing.assert_allclose(theta, (np.arange(H) + 0.5) * math.pi / H)
+    np.testing.assert_allclose(phi, (np.arange(W) + 0.5) * 2 * math.pi / W - math.pi)
+    assert ctx.subsample.shape == (H * W, 3)  # a small map is kept whole
+    big = _ctx(np.ones((1024, 2048, 3)), profile)
+    assert big.subsample.shape[0] <= SUBSAMPLE_SIZE
+    assert ctx.settings("sun") == profile.section("sun")

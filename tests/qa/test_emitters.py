@@ -1,68 +1,51 @@
-"""Tests of envsample.qa.emitters: regions that wrap across the seam and around the poles are one region.
+"""Tests of envsample.qa.emitters: the checks' adapters to envsample.lights.emitters give the same emitters
+as the library functions applied to the whole map with the profile's thresholds.
+
+No outside reference is needed beyond that equivalence (the emitters themselves are tested against
+closed forms in tests/lights/test_emitters.py); the map is an invented overcast sky with a sun of
+the mean 0.533 deg diameter (tests/support/qa_maps.py).
 """
 
 from __future__ import annotations
 
 import numpy as np
-from support.qa_maps import *  # noqa: F403 - the shared test maps and helpers
+from support.qa_maps import sunny
 
-from envsample.qa.emitters import label_wrapped, ring
-
-
-def test_label_wrapped_joins_across_the_seam_and_around_the_poles():
-    mask = np.zeros((8, 16), bool)
-    mask[3, 0] = mask[4, 15] = True  # diagonal neighbours across the seam
-    mask[0, 2] = mask[0, 9] = True  # both touch the zenith
-    mask[6, 7] = True  # alone
-    labels, n = label_wrapped(mask)
-    assert n == 3
-    assert labels[3, 0] == labels[4, 15] != 0
-    assert labels[0, 2] == labels[0, 9] != 0
-    assert len({labels[3, 0], labels[0, 2], labels[6, 7]}) == 3
+from envsample.io.maps import MapImage
+from envsample.lights import emitters as lights_emitters
+from envsample.lights.regions import label_wrapped
+from envsample.qa.context import CheckContext
+from envsample.qa.emitters import emitter_level, emitter_mask, find_emitters
 
 
-def _reference_components(mask: np.ndarray) -> np.ndarray:
-    """Components of the pixel graph (8-neighbours, columns wrapping, each pole row one vertex set) by
-    scipy.sparse.csgraph.connected_components, an outside reference library; -1 off the mask."""
-    from scipy import sparse
-    from scipy.sparse.csgraph import connected_components
-
-    h, w = mask.shape
-    idx = np.arange(h * w).reshape(h, w)
-    a, b = [], []
-    for dy in (-1, 0, 1):
-        for dx in (-1, 0, 1):
-            if dy == dx == 0:
-                continue
-            ys, xs = np.nonzero(mask)
-            ny, nx = ys + dy, (xs + dx) % w
-            ok = (ny >= 0) & (ny < h)
-            ok[ok] &= mask[ny[ok], nx[ok]]
-            a.append(idx[ys[ok], xs[ok]])
-            b.append(idx[ny[ok], nx[ok]])
-    for row in (0, h - 1):
-        cols = np.nonzero(mask[row])[0]
-        a.append(idx[row, cols[:-1]])
-        b.append(idx[row, cols[1:]])
-    a, b = np.concatenate(a), np.concatenate(b)
-    g = sparse.coo_matrix((np.ones(a.size), (a, b)), shape=(h * w, h * w))
-    _, comp = connected_components(g, directed=False)
-    return np.where(mask, comp.reshape(h, w), -1)
+def test_the_level_from_the_scans_row_maxima_is_the_level_of_the_whole_map(profile):
+    ctx = CheckContext(MapImage.from_array(sunny()), profile)
+    s = profile.section("sun")
+    whole = lights_emitters.emitter_level(ctx.luminance, ctx.median_luminance,
+                                          median_multiple=s["threshold_median_multiple"],
+                                          max_fraction=s["threshold_max_fraction"])
+    assert emitter_level(ctx) == whole
 
 
-def test_label_wrapped_and_ring_match_scipy(rng):
-    """Against outside reference libraries: the components of the wrapped pixel graph by
-    scipy.sparse.csgraph, and the ring by scipy.ndimage.maximum_filter (columns wrapping)."""
-    from scipy import ndimage
+def test_the_emitters_are_those_of_the_whole_maps_mask(profile):
+    ctx = CheckContext(MapImage.from_array(sunny()), profile)
+    level = emitter_level(ctx)
+    labels, n = label_wrapped(ctx.luminance > level)
+    want = lights_emitters.find_emitters(ctx.luminance, labels, n, ctx.row_solid_angles)
+    got = find_emitters(ctx)
+    assert len(got) == len(want) >= 1
+    for a, b in zip(got, want):
+        assert (a.pixels, a.peak) == (b.pixels, b.peak)
+        np.testing.assert_allclose([a.share, a.solid_angle_sr, a.azimuth_deg, a.elevation_deg],
+                                   [b.share, b.solid_angle_sr, b.azimuth_deg, b.elevation_deg], rtol=1e-6)
 
-    for _ in range(30):
-        h, w = int(rng.integers(2, 20)), int(rng.integers(3, 40))
-        mask = rng.random((h, w)) < rng.choice([0.05, 0.2, 0.45])
-        labels, n = label_wrapped(mask)
-        ref = _reference_components(mask)
-        on = mask.ravel()
-        mine, theirs = labels.ravel()[on], ref.ravel()[on]
-        assert np.array_equal(mine[:, None] == mine[None, :], theirs[:, None] == theirs[None, :])
-        assert n == len(np.unique(theirs)) and sorted(np.unique(mine)) == list(range(1, n + 1))
-        grown = ndimage.maximum_filter(mask, size=3, mode=("constant", "wrap"), cval=False)
-        assert np.array_equal(ring(mask), grown & ~mask)
+
+def test_an_emitters_mask_covers_exactly_its_pixels(profile):
+    ctx = CheckContext(MapImage.from_array(sunny()), profile)
+    sun = find_emitters(ctx)[0]
+    rows, mask = emitter_mask(ctx, sun)
+    labels = ctx.emitter_labels[0]
+    assert np.array_equal(rows, np.nonzero((labels == sun.label).any(axis=1))[0])
+    assert np.array_equal(mask, labels[rows] == sun.label) and int(mask.sum()) == sun.pixels
+    flat = CheckContext(MapImage.from_array(np.ones((64, 128, 3), np.float32)), profile)
+    assert find_emitters(flat) == [] and flat.emitter_rows.size == 0

@@ -148,3 +148,20 @@ def function_level_imports(root: Path, package: str) -> list[str]:
                 elif isinstance(node, ast.Import) and any(a.name.split(".")[0] == package for a in node.names):
                     found.append(f"{name}:{node.lineno}")
     return sorted(set(found))
+
+
+#: Modules that need no test file of their own: package markers and the version string.
+UNTESTED_NAMES = ("__init__.py", "_version.py")
+
+
+def modules_without_tests(root: Path, package: str, tests: str = "tests") -> list[str]:
+    """Modules ``package/<pkg>/<mod>.py`` with no ``tests/<pkg>/test_<mod>.py`` (the test file that mirrors it),
+    as paths relative to ``root``; ``__init__.py`` and ``_version.py`` need none."""
+    missing = []
+    for path in sorted((root / package).rglob("*.py")):
+        if path.name in UNTESTED_NAMES:
+            continue
+        rel = path.relative_to(root / package)
+        if not (root / tests / rel.parent / f"test_{rel.stem}.py").is_file():
+            missing.append(str(path.relative_to(root)))
+    return missing

@@ -1,4 +1,5 @@
-"""End-to-end tests of the demo (envsample.demo.run_demo and ``envsample demo``) at 64x32.
+"""End-to-end tests of envsample.synth.demo (run_demo, its steps) at 64x32; one run shared with the
+demo command's tests (the session fixture ``demo_run``, tests/conftest.py).
 
 External references used below:
 - Traditional overcast sky L = Lz (1 + 2 cos theta) / 3 (Moon & Spencer 1942;
@@ -17,43 +18,15 @@ import math
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
+from support.demo_runs import DEMO_WIDTH as WIDTH
 
-from envsample.cli import main
 from envsample.errors import EnvsampleError
 from envsample.io.maps import read_map
 from envsample.sampling.table import load_table
-from envsample.synth.demo import DEMO_SCENES, DEMO_VECTOR_SEED, DemoStep, demo_steps, run_demo
+from envsample.synth.demo import DEMO_SCENES, DEMO_VECTOR_SEED, demo_steps, run_demo
 from envsample.synth.skies import ROOFTOP_SUN
 
-WIDTH = 64
 HALF_REL_ERROR = 2.0**-11
-
-
-def _table_checksums(summary) -> list[dict]:
-    """The stored arrays' checksums (XXH64) of every scene's table, read from its JSON."""
-    out = []
-    for m in summary["maps"]:
-        doc = json.loads(open(next(p for p in m["table_files"] if p.endswith(".json")), encoding="utf-8").read())
-        out.append({k: v["xxh64"] for k, v in doc["arrays"].items()})
-    return out
-
-
-@pytest.fixture(scope="module")
-def demo_run(tmp_path_factory):
-    """One demo run for the whole file, with an extra step appended and the progress calls recorded."""
-    out = tmp_path_factory.mktemp("demo") / "envsample-demo"
-    seen, calls = {}, []
-
-    def extra(ctx):
-        seen["tables"] = sorted(ctx.tables)
-        ctx.extra["checked"] = len(ctx.tables)
-
-    steps = demo_steps() + [DemoStep("count tables", extra)]
-    summary = run_demo(out, width=WIDTH, steps=steps, progress=lambda *a: calls.append(a))
-    vectors = json.loads(open(summary["vectors"][0]["path"], encoding="utf-8").read())["vectors"]
-    return {"out": out, "summary": summary, "steps": steps, "seen": seen, "calls": calls,
-            "checksums": _table_checksums(summary), "vectors": vectors}
 
 
 @pytest.fixture(scope="module")
@@ -134,34 +107,6 @@ def test_demo_refuses_bad_arguments(tmp_path):
     blocker.write_text("x")
     with pytest.raises(EnvsampleError, match="exists and is not a folder"):
         run_demo(blocker, width=32)
-
-
-def test_demo_command_reruns_in_the_same_folder_with_the_same_tables(demo_run):
-    """The command prints its summary table; a rerun into the same folder rebuilds the same tables bit for bit."""
-    out = demo_run["out"]
-    result = CliRunner().invoke(main, ["demo", str(out), "--width", str(WIDTH)], catch_exceptions=False)
-    assert result.exit_code == 0, result.output
-    lines = result.stdout.splitlines()
-    assert lines[0].startswith(f"demo in {out}: invented scenes")
-    header = next(k for k, line in enumerate(lines) if line.startswith("map "))
-    assert lines[header].split() == ["map", "size", "integral", "Y", "brightest", "(az,", "el)", "table", "build",
-                                     "check", "best", "sampling", "(rel.", "RMSE)"]
-    rows = [line.split()[0] for line in lines[header + 1 : header + 1 + len(DEMO_SCENES)]]
-    assert rows == [s.name for s in DEMO_SCENES]
-    assert f"next: envsample inspect {out}/tables/rooftop.json" in result.stdout
-    assert _table_checksums(demo_run["summary"]) == demo_run["checksums"]
-    vectors = json.loads(open(demo_run["summary"]["vectors"][0]["path"], encoding="utf-8").read())["vectors"]
-    assert vectors == demo_run["vectors"]
-
-
-def test_demo_command_json_and_bad_width(tmp_path):
-    runner = CliRunner()
-    done = runner.invoke(main, ["demo", str(tmp_path / "small"), "--width", "32", "--json"], catch_exceptions=False)
-    assert done.exit_code == 0
-    assert json.loads(done.stdout)["width"] == 32
-    odd = runner.invoke(main, ["demo", str(tmp_path / "odd"), "--width", "63"])
-    assert odd.exit_code == 2 and odd.stderr.startswith("error: Invalid value for '--width': 63 is odd")
-    assert not (tmp_path / "odd").exists()
 
 
 def test_demo_rooftop_goes_through_the_split(demo):
