@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from envsample.reference.grid import unit_normals
 from envsample.reference.irradiance import reference_irradiance
 
 __all__ = ["reference_split_irradiance"]
@@ -38,7 +39,5 @@ def reference_split_irradiance(sky_rgb, sun, normals, *, up: str = "y", rotation
     e = reference_irradiance(sky_rgb, normals, up=up, rotation_deg=rotation_deg, size=size)
     if sun is None:
         return e
-    n = np.asarray(normals, dtype=np.float64)
-    flat = n.reshape(-1, 3)
-    flat = flat / np.linalg.norm(flat, axis=1, keepdims=True)
+    flat, _ = unit_normals(normals)  # reference_irradiance has accepted them as unit vectors
     return e + sun.irradiance(flat).reshape(e.shape)

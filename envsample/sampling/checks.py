@@ -52,6 +52,11 @@ def _close(got: np.ndarray, want: np.ndarray) -> np.ndarray:
     return bad
 
 
+def _fail_row(path, problem: int, rows: np.ndarray, r0: int = 0) -> None:
+    """Fail with the text of ``problem`` and the first row (offset ``r0``) where ``rows`` is True: as the kernel does."""
+    _fail(path, f"{_ROW_PROBLEMS[problem]} (row {r0 + int(np.argmax(rows))})")
+
+
 _ROW_PROBLEMS = {
     1: "cell_pdf has negative or non-finite values",
     2: "conditional_cdf is not a CDF (it must start at exactly 0, end at exactly 1 and never decrease)",
@@ -103,7 +108,8 @@ def _pdf_row_sums(pdf: np.ndarray, path) -> np.ndarray:
     for r0 in range(0, h, step):
         block = pdf[r0:r0 + step]
         if not np.isfinite(block).all() or block.min() < 0.0:
-            _fail(path, "cell_pdf has negative or non-finite values")
+            with np.errstate(invalid="ignore"):
+                _fail_row(path, 1, (~np.isfinite(block) | (block < 0.0)).any(axis=1), r0)
         sums[r0:r0 + step] = block.sum(axis=1, dtype=np.float64)
     return sums
 
@@ -144,14 +150,18 @@ def _check_conditional(arrays: dict, sums: np.ndarray, path) -> None:
     for r0 in range(0, h, step):
         block = conditional[r0:r0 + step]
         if dist.check_cdf(block):
-            _fail(path, "conditional_cdf is not a CDF (it must start at exactly 0, end at exactly 1 and never decrease)")
+            with np.errstate(invalid="ignore"):
+                not_cdf = (~np.isfinite(block).all(axis=1) | (block[:, 0] != 0.0) | (block[:, -1] != 1.0)
+                           | (np.diff(block, axis=1) < 0.0).any(axis=1))
+            _fail_row(path, 2, not_cdf, r0)
         s = sums[r0:r0 + step]
         live = s > 0
         if not live.any():
             continue
         q = pdf[r0:r0 + step][live].astype(np.float64) / s[live, None]
-        if _close(np.diff(block[live].astype(np.float64), axis=1), q).any():
-            _fail(path, "conditional_cdf does not match cell_pdf (cell probabilities differ beyond the tolerance)")
+        off = _close(np.diff(block[live].astype(np.float64), axis=1), q).any(axis=1)
+        if off.any():
+            _fail(path, f"{_ROW_PROBLEMS[3]} (row {r0 + int(np.flatnonzero(live)[np.argmax(off)])})")
 
 
 def _check_row_alias(arrays: dict, row_p: np.ndarray, path) -> None:
@@ -169,9 +179,10 @@ def _check_column_alias(arrays: dict, sums: np.ndarray, path) -> None:
     prob, idx, pdf = arrays["alias_probability"], arrays["alias_index"], arrays["cell_pdf"]
     h, w = pdf.shape
     if not (np.isfinite(prob).all() and prob.min() >= 0.0 and prob.max() <= 1.0):
-        _fail(path, "alias_probability has values outside [0, 1]")
+        with np.errstate(invalid="ignore"):
+            _fail_row(path, 4, (~np.isfinite(prob) | (prob < 0.0) | (prob > 1.0)).any(axis=1))
     if idx.max() >= w:
-        _fail(path, f"alias_index has entries outside the row (>= {w})")
+        _fail_row(path, 5, (idx >= w).any(axis=1))
     step = max(1, _BLOCK // w)
     for r0 in range(0, h, step):
         p = prob[r0:r0 + step].astype(np.float64)
@@ -184,5 +195,6 @@ def _check_column_alias(arrays: dict, sums: np.ndarray, path) -> None:
         if not live.any():
             continue
         q = pdf[r0:r0 + step][live].astype(np.float64) / s[live, None]
-        if _close(enc[live], q).any():
-            _fail(path, "alias tables do not match cell_pdf (cell probabilities differ beyond the tolerance)")
+        off = _close(enc[live], q).any(axis=1)
+        if off.any():
+            _fail(path, f"{_ROW_PROBLEMS[6]} (row {r0 + int(np.flatnonzero(live)[np.argmax(off)])})")

@@ -57,11 +57,14 @@ def test_clear_sky_restoration_gives_the_models_direct_to_diffuse_ratio():
 
 def test_clear_sky_restoration_refuses_a_sun_below_the_horizon():
     img = analytic_sun(1024, azimuth_deg=0.0, elevation_deg=0.1)
-    cap = clipped_capture(img, azimuth_deg=0.0, elevation_deg=-0.5, clip=40.0, glare=400.0)
+    # A clipped sun a degree below the horizon: what the ground leaves of it is found below the horizon,
+    # where the clear-sky model (an air mass of the sun's elevation) has nothing to say.
+    cap = clipped_capture(analytic_sun(1024, azimuth_deg=0.0, elevation_deg=-1.0), azimuth_deg=0.0,
+                          elevation_deg=-1.0, clip=40.0, glare=400.0)
     sp = split_sun(cap)
-    if sp.found.elevation_deg <= 0:
-        with pytest.raises(SunSplitError, match="--sun-illuminance"):
-            split_sun(cap, restore="clear-sky")
+    assert sp.found.clipped and sp.found.elevation_deg < 0.0
+    with pytest.raises(SunSplitError, match="--sun-illuminance"):
+        split_sun(cap, restore="clear-sky")
     with pytest.raises(SunSplitError, match="unknown restore method"):
         split_sun(img, restore="guess")
 

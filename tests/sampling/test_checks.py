@@ -82,18 +82,18 @@ def test_the_uniform_distribution_from_closed_forms_passes(backend):
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-@pytest.mark.parametrize("name, edit, message", [
-    ("conditional_cdf", lambda a: a.__setitem__((2, 5), a[2, 4]), "conditional_cdf does not match cell_pdf"),
-    ("conditional_cdf", lambda a: a.__setitem__((4, 0), 0.01), "conditional_cdf is not a CDF"),
-    ("alias_probability", lambda a: a.__setitem__((1, 3), 0.5), None),  # bucket 3 still aliases itself: no change
-    ("alias_index", lambda a: a.__setitem__((6, 1), 16), "alias_index has entries outside the row"),
-    ("alias_both", None, "alias tables do not match cell_pdf"),
-    ("cell_pdf", lambda a: a.__setitem__((0, 0), -0.0 - 1e-3), "cell_pdf has negative or non-finite values"),
-    ("marginal_cdf", lambda a: a.__setitem__(2, a[3] + 0.01), "marginal_cdf"),
+@pytest.mark.parametrize("name, edit, message, row", [
+    ("conditional_cdf", lambda a: a.__setitem__((2, 5), a[2, 4]), "conditional_cdf does not match cell_pdf", 2),
+    ("conditional_cdf", lambda a: a.__setitem__((4, 0), 0.01), "conditional_cdf is not a CDF", 4),
+    ("alias_probability", lambda a: a.__setitem__((1, 3), 0.5), None, None),  # bucket 3 still aliases itself
+    ("alias_index", lambda a: a.__setitem__((6, 1), 16), "alias_index has entries outside the row", 6),
+    ("alias_both", None, "alias tables do not match cell_pdf", 1),
+    ("cell_pdf", lambda a: a.__setitem__((3, 0), -0.0 - 1e-3), "cell_pdf has negative or non-finite values", 3),
+    ("marginal_cdf", lambda a: a.__setitem__(2, a[3] + 0.01), "marginal_cdf", None),
 ])
-def test_each_backend_names_the_same_broken_rule(backend, name, edit, message):
-    """The compiled and the numpy checks apply one set of rules: the same corruption names the same rule
-    (the compiled one adds the row)."""
+def test_each_backend_names_the_same_broken_rule_and_row(backend, name, edit, message, row):
+    """The compiled and the numpy checks apply one set of rules: the same corruption names the same rule and
+    the first row that breaks it (the marginal CDF is one array: no row)."""
     arrays = _uniform_arrays()
     if name == "alias_both":  # bucket 3 of row 1 keeps half and gives half to column 4: 0.5/w and 1.5/w
         arrays["alias_probability"][1, 3], arrays["alias_index"][1, 3] = 0.5, 4
@@ -102,7 +102,8 @@ def test_each_backend_names_the_same_broken_rule(backend, name, edit, message):
     if message is None:
         check_distribution(arrays, "uniform.npz", backend=backend)
         return
-    with pytest.raises(TableFormatError, match=r"^uniform\.npz: " + re.escape(message) + ".*; rebuild the table$"):
+    where = "" if row is None else re.escape(f" (row {row})")
+    with pytest.raises(TableFormatError, match=r"^uniform\.npz: " + re.escape(message) + ".*" + where + "; rebuild the table$"):
         check_distribution(arrays, "uniform.npz", backend=backend)
 
 
