@@ -9,16 +9,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from support.sun_maps import analytic_sun
+from support.sun_maps import write_sun_map
 
 from envsample.io.maps import write_map
 
 
 @pytest.fixture()
 def sun_map(tmp_path):
-    path = tmp_path / "clear.exr"
-    write_map(path, analytic_sun(512, azimuth_deg=179.9, elevation_deg=1.5), pixel_type="float")
-    return path
+    return write_sun_map(tmp_path)
 
 
 def test_split_writes_nothing_for_a_map_without_a_sun(run, tmp_path):

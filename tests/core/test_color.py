@@ -1,17 +1,7 @@
 """Tests of envsample.core.color: luminance of images under named primaries.
 
-External references used here:
-- colour-science (the ``colour`` package): ``colour.RGB_COLOURSPACES[name].matrix_RGB_to_XYZ``,
-  whose second row is the luminance (Y) row of each RGB space, and ``colour.RGB_to_XYZ``.
-  colour-science derives its matrices from the published primaries: ITU-R BT.709-6,
-  ITU-R BT.2020-2, Academy S-2014-004 (ACEScg / AP1) and SMPTE ST 2065-1 (ACES2065-1 / AP0).
-- SMPTE RP 177-1993: the normalised primary matrix maps the white point to Y = 1, so
-  the luminance weights of every space sum to 1.
-
-Choice documented and tested here: envsample uses the BT.709 Y row *derived* from the
-primaries (0.212639, 0.715169, 0.072192), i.e. colour-science's "ITU-R BT.709" entry,
-not its "sRGB" entry, which carries the four-decimal rounding (0.2126, 0.7152, 0.0722)
-printed in IEC 61966-2-1.  The two differ in the fourth decimal place.
+Reference: colour-science's ``colour.RGB_to_XYZ`` with the colourspaces of the same published primaries
+(tests/support/colour_spaces.py); the weights themselves are tested in tests/core/test_constants.py.
 """
 
 from __future__ import annotations

@@ -10,9 +10,9 @@ import json
 
 import numpy as np
 import pytest
-from support.sun_maps import analytic_sun
+from support.sun_maps import write_sun_map
 
-from envsample.io.maps import read_map, write_map
+from envsample.io.maps import read_map
 from envsample.lights.split import SUN_SCHEMA, map_integral
 from envsample.pipeline.split import load_sun, split_map_file
 from envsample.sampling.table import load_table
@@ -20,9 +20,7 @@ from envsample.sampling.table import load_table
 
 @pytest.fixture()
 def sun_map(tmp_path):
-    path = tmp_path / "clear.exr"
-    write_map(path, analytic_sun(512, azimuth_deg=179.9, elevation_deg=1.5), pixel_type="float")
-    return path
+    return write_sun_map(tmp_path)
 
 
 def test_split_writes_sky_sun_and_a_table_that_names_the_sun(sun_map, tmp_path):

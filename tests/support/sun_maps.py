@@ -45,3 +45,12 @@ def angle_between_deg(az1, el1, az2, el2) -> float:
     a1, e1, a2, e2 = map(math.radians, (az1, el1, az2, el2))
     c = math.sin(e1) * math.sin(e2) + math.cos(e1) * math.cos(e2) * math.cos(a1 - a2)
     return math.degrees(math.acos(max(-1.0, min(1.0, c))))
+
+
+def write_sun_map(folder) -> "Path":
+    """A clear map with a sun 1.5 deg above the horizon, on the seam (azimuth 179.9 deg), 512 px, as a float EXR."""
+    from envsample.io.maps import write_map
+
+    path = folder / "clear.exr"
+    write_map(path, analytic_sun(512, azimuth_deg=179.9, elevation_deg=1.5), pixel_type="float")
+    return path
