@@ -47,7 +47,7 @@ def angle_between_deg(az1, el1, az2, el2) -> float:
     return math.degrees(math.acos(max(-1.0, min(1.0, c))))
 
 
-def write_sun_map(folder) -> "Path":
+def write_sun_map(folder):
     """A clear map with a sun 1.5 deg above the horizon, on the seam (azimuth 179.9 deg), 512 px, as a float EXR."""
     from envsample.io.maps import write_map
 
