@@ -568,9 +568,13 @@ def latlong_figure(picture, *, path, rotation_deg: float = 0.0, title: str | Non
     pic = _as_picture(picture)
     h, w = pic.shape[:2]
     with rc_context(_STYLE):
-        fig = Figure(figsize=(min(10.0, max(5.0, w / _DPI)) + 0.6, min(5.0, max(2.5, h / _DPI)) + 0.9),
-                     layout="constrained")
-        ax = fig.subplots()
+        # Fixed margins (inches) instead of a layout engine, as in _panel_row: the box holds the picture's shape.
+        box_w = min(10.0, max(5.0, w / _DPI))
+        box_h = box_w * h / w
+        m = _ROW_MARGINS
+        width, height = m["left"] + box_w + 0.35, m["below"] + box_h + m["above"]
+        fig = Figure(figsize=(width, height))
+        ax = fig.add_axes((m["left"] / width, m["below"] / height, box_w / width, box_h / height))
         ax.imshow(pic, extent=(-180.0 + rotation_deg, 180.0 + rotation_deg, -90.0, 90.0), origin="upper",
                   interpolation="nearest", aspect="equal")
         ax.set_xticks(np.arange(-180.0, 181.0, 45.0) + rotation_deg)
@@ -595,8 +599,10 @@ def image_panels(panels: Sequence, *, path, title: str | None = None) -> Path:
         raise ValueError("image_panels needs at least one (title, image) pair")
     h = max(int(np.asarray(img).shape[0]) for _, img in panels)
     w = sum(int(np.asarray(img).shape[1]) for _, img in panels)
+    # A title of several lines (split at "\n" by the caller, so none is wider than the pictures) gets room per line.
+    title_room = 0.25 * (title.count("\n") + 1) + 0.05 if title else 0.0
     with rc_context(_STYLE):
-        fig = Figure(figsize=(max(3.0, w / _DPI * 1.1), h / _DPI + (0.9 if title else 0.6)), layout="constrained")
+        fig = Figure(figsize=(max(3.0, w / _DPI * 1.1), h / _DPI + 0.6 + title_room), layout="constrained")
         axes = fig.subplots(1, len(panels), squeeze=False)[0]
         for ax, (name, img) in zip(axes, panels):
             ax.imshow(_as_picture(img), interpolation="nearest")

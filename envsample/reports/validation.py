@@ -223,8 +223,7 @@ def _write_files(result, outdir: Path, *, source: dict, sphere: bool, shown: Pat
         forward, up = _view_axes(table.up)
         image_panels([("exact reference", ref_pic), (f"{best}, {result.spp} spp", est_pic)],
                      path=outdir / "sphere.png",
-                     title=f"white diffuse sphere lit by the map (one exposure); camera looks along {forward}, "
-                           f"{up} up")
+                     title=f"white diffuse sphere lit by the map (one exposure)\ncamera looks along {forward}, {up} up")
         files["sphere"] = "sphere.png"
     glossy = _glossy_picture(result, outdir)
     if glossy:
