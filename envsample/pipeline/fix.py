@@ -139,10 +139,10 @@ def repair_image(image, before, *, remedies: Mapping | None = None, auto: bool =
     steps, proposed = plan_remedies(before, auto=auto, requested=remedies)
     rgb, records, skipped = image.rgb, [], []
     for step in steps:
-        if step["why"] != "requested" and any(r["why"] == "requested" for r in records):
+        check_id = step["check"]
+        if check_id is not None and any(r["why"] == "requested" for r in records):
             # A requested step ran first (a flip, a rotation, padding): the check that planned this one
             # may pass by now (a flipped map's exposure, say).  Ask it again before changing more pixels.
-            check_id = step["why"].split()[0]
             again = check_map(dataclasses.replace(image, rgb=rgb), profile=prof, checks=[check_id])
             if again.get(check_id) is not None and again[check_id].severity == "pass":
                 skipped.append({"remedy": step["remedy"], "check": check_id,

@@ -290,7 +290,8 @@ def plan_remedies(report, *, auto: bool = False, requested=None) -> tuple[list[d
 
     ``requested`` maps remedy names to their options (applied whatever the report says);
     with ``auto``, the safe remedy of every check that warned or failed is added (see
-    :data:`FIXES`).  ``steps`` are ``{"remedy", "options", "why"}`` in :data:`ORDER`;
+    :data:`FIXES`).  ``steps`` are ``{"remedy", "options", "why", "check"}`` in :data:`ORDER`
+    (``check`` is the id of the check that asked for the step, None for a requested one);
     ``proposed`` lists the remedies the checks propose that are not applied (geometry
     changes without a request) with the check that proposes them.
     """
@@ -299,6 +300,7 @@ def plan_remedies(report, *, auto: bool = False, requested=None) -> tuple[list[d
     if unknown:
         raise ValueError(f"unknown remedy {', '.join(map(repr, unknown))}; valid names: {', '.join(REMEDIES)}")
     why = {name: "requested" for name in requested}
+    asked_by = {}
     proposed = []
     for c in report.checks:
         if c.severity == "pass" or c.id not in FIXES:
@@ -309,7 +311,9 @@ def plan_remedies(report, *, auto: bool = False, requested=None) -> tuple[list[d
         if auto and safe:
             requested[name] = {}
             why[name] = f"{c.id} {c.severity}"
+            asked_by[name] = c.id
         else:
             proposed.append({"remedy": name, "check": c.id, "severity": c.severity})
-    steps = [{"remedy": n, "options": requested[n], "why": why[n]} for n in ORDER if n in requested]
+    steps = [{"remedy": n, "options": requested[n], "why": why[n], "check": asked_by.get(n)}
+             for n in ORDER if n in requested]
     return steps, proposed
